@@ -1,0 +1,125 @@
+"""The ``sqlgen`` command: a thin shell over the library.
+
+Exit codes: 0 ok, 1 a spec, data or output problem (or stale files for --check), 2 usage.
+"""
+
+from __future__ import annotations
+
+import argparse
+import difflib
+import sys
+from pathlib import Path
+
+from . import __version__
+from .compiler import render_files
+from .dialects import TARGETS, target_names
+from .errors import SpecError, SqlgenError
+from .output import check_files, write_files
+from .spec import Spec, load_spec
+
+
+def _dialects(value: str) -> list[str]:
+    names = target_names() if value == "all" else [v.strip() for v in value.split(",") if v.strip()]
+    for name in names:
+        if name not in TARGETS:
+            close = difflib.get_close_matches(name, target_names(), n=1)
+            hint = f" Did you mean {close[0]!r}?" if close else ""
+            raise argparse.ArgumentTypeError(
+                f"{name!r} is not one of {', '.join(target_names())}, all.{hint}")
+    if not names:
+        raise argparse.ArgumentTypeError("name at least one dialect")
+    return names
+
+
+def _parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="sqlgen", description="Generate growth-accounting SQL views from a YAML spec.")
+    parser.add_argument("--version", action="version", version=f"sqlgen {__version__}")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    build = sub.add_parser("build", help="write the SQL files for a spec")
+    build.add_argument("spec", help="the YAML spec file")
+    build.add_argument("--dialect", type=_dialects, metavar="D",
+                       help="target dialect(s): one name, a comma-separated list, or all "
+                            "(default: output.dialect of the spec)")
+    build.add_argument("--out", metavar="DIR", help="output folder (default: output.folder, "
+                       "relative to the spec; with several dialects one subfolder each)")
+    build.add_argument("--check", action="store_true",
+                       help="write nothing; exit 1 with a diff if the files are not up to date")
+
+    validate = sub.add_parser("validate", help="check a spec and report every problem")
+    validate.add_argument("spec", help="the YAML spec file")
+
+    demo = sub.add_parser("demo", help="build and run the views on an invented demo dataset")
+    demo.add_argument("--folder", default="sqlgen-demo", metavar="DIR",
+                      help="where the demo database, spec and SQL go (default: sqlgen-demo)")
+    demo.add_argument("--grain", default="month", choices=["day", "week", "month", "quarter",
+                                                           "year"])
+    return parser
+
+
+def _folders(spec: Spec, spec_path: str, dialects: list[str], out: str | None) -> list[tuple[str, Path]]:
+    base = Path(out) if out else Path(spec_path).parent / spec.output.folder
+    if len(dialects) == 1:
+        return [(dialects[0], base)]
+    return [(name, base / name) for name in dialects]
+
+
+def _build(args: argparse.Namespace) -> int:
+    spec = load_spec(args.spec)
+    dialects = args.dialect or [spec.output.dialect]
+    jobs = [(folder, render_files(spec, name)) for name, folder in
+            _folders(spec, args.spec, dialects, args.out)]
+    if args.check:
+        return _check(jobs)
+    for folder, files in jobs:
+        result = write_files(folder, files)
+        print(f"{folder}: {len(result.written)} written, {len(result.unchanged)} unchanged"
+              + (f", {len(result.removed)} removed" if result.removed else ""))
+    return 0
+
+
+def _check(jobs: list[tuple[Path, dict[str, str]]]) -> int:
+    stale = [diff for folder, files in jobs for diff in check_files(folder, files)]
+    if stale:
+        sys.stdout.write("".join(stale))
+        print(f"sqlgen: {len(stale)} file(s) out of date; run `sqlgen build` to update them",
+              file=sys.stderr)
+        return 1
+    print("sqlgen: generated files are up to date")
+    return 0
+
+
+def _validate(args: argparse.Namespace) -> int:
+    spec = load_spec(args.spec)
+    render_files(spec)  # a combination the target cannot express is a spec problem too
+    print(f"{args.spec}: ok ({spec.grain} grain, target {spec.output.dialect})")
+    return 0
+
+
+def _demo(args: argparse.Namespace) -> int:
+    from .demo import run_demo
+
+    print(run_demo(Path(args.folder), args.grain))
+    return 0
+
+
+COMMANDS = {"build": _build, "validate": _validate, "demo": _demo}
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = _parser().parse_args(argv)
+    try:
+        return COMMANDS[args.command](args)
+    except SpecError as err:
+        print(err.render(), file=sys.stderr)
+        return 1
+    except SqlgenError as err:
+        print(f"Error: {err}", file=sys.stderr)
+        return 1
+    except KeyboardInterrupt:
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,69 @@
+{%- import '_periods.sql' as p with context -%}
+WITH tallies AS (
+  SELECT
+    period_key AS tally_key,
+    COUNT(CASE WHEN state <> 'churned' THEN 1 END) AS active_count,
+    COUNT(CASE WHEN state = 'new' THEN 1 END) AS new_count,
+    COUNT(CASE WHEN state = 'retained' THEN 1 END) AS retained_count,
+    COUNT(CASE WHEN state = 'resurrected' THEN 1 END) AS resurrected_count,
+    COUNT(CASE WHEN state = 'churned' THEN 1 END) AS churned_count
+  FROM {{ ref('user_states') }}
+  GROUP BY period_key
+), data_range AS (
+  SELECT
+    MIN(period_key) AS first_key,
+    MAX(period_key) AS last_key,
+    MAX(last_active_date) AS data_through
+  FROM {{ ref('user_activity') }}
+), data_edge AS (
+  SELECT first_key, last_key, data_through,
+    {{ p.period_key("data_through + INTERVAL 1 DAY") }} AS after_data_key
+  FROM data_range
+), {{ p.digits_cte() }}, calendar AS (
+  SELECT e.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) AS calendar_key
+  FROM data_edge AS e
+  CROSS JOIN {{ p.counting(grain.calendar_digits) }}
+  WHERE e.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) <= e.last_key
+), filled AS (
+  SELECT
+    c.calendar_key,
+    COALESCE(t.active_count, 0) AS active_count,
+    COALESCE(t.new_count, 0) AS new_count,
+    COALESCE(t.retained_count, 0) AS retained_count,
+    COALESCE(t.resurrected_count, 0) AS resurrected_count,
+    COALESCE(t.churned_count, 0) AS churned_count,
+    CASE
+      WHEN c.calendar_key = e.last_key AND e.after_data_key = e.last_key THEN 'in_progress'
+      ELSE 'complete'
+    END AS status
+  FROM calendar AS c
+  CROSS JOIN data_edge AS e
+  LEFT JOIN tallies AS t
+    ON t.tally_key = c.calendar_key
+), sequenced AS (
+  SELECT
+    calendar_key,
+    active_count,
+    COALESCE(LAG(active_count) OVER (ORDER BY calendar_key), 0) AS previous_count,
+    new_count,
+    retained_count,
+    resurrected_count,
+    churned_count,
+    status
+  FROM filled
+)
+SELECT
+  {{ p.period_start('calendar_key') }} AS period_start,
+  active_count AS active_users,
+  previous_count AS previous_active_users,
+  new_count AS new_users,
+  retained_count AS retained_users,
+  resurrected_count AS resurrected_users,
+  churned_count AS churned_users,
+  active_count - previous_count AS net_change,
+  CAST(new_count + resurrected_count AS DOUBLE) / NULLIF(churned_count, 0) AS quick_ratio,
+  CAST(retained_count AS DOUBLE) / NULLIF(previous_count, 0) AS retention_rate,
+  CAST(churned_count AS DOUBLE) / NULLIF(previous_count, 0) AS churn_rate,
+  status AS period_status,
+  calendar_key AS period_key
+FROM sequenced

@@ -1,0 +1,34 @@
+{%- import '_periods.sql' as p with context -%}
+WITH sequenced AS (
+  SELECT
+    user_id,
+    period_key,
+    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key,
+    LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS later_key
+  FROM {{ ref('user_activity') }}
+), data_range AS (
+  SELECT MAX(period_key) AS last_key FROM {{ ref('user_activity') }}
+), lapsed AS (
+  SELECT s.user_id, s.period_key + {{ grain.step }} AS lapse_key
+  FROM sequenced AS s
+  CROSS JOIN data_range AS r
+  WHERE (s.later_key IS NULL OR s.later_key <> s.period_key + {{ grain.step }})
+    AND s.period_key + {{ grain.step }} <= r.last_key
+)
+SELECT
+  user_id,
+  period_key,
+  {{ p.period_start('period_key') }} AS period_start,
+  CASE
+    WHEN prior_key IS NULL THEN 'new'
+    WHEN prior_key = period_key - {{ grain.step }} THEN 'retained'
+    ELSE 'resurrected'
+  END AS state
+FROM sequenced
+UNION ALL
+SELECT
+  user_id,
+  lapse_key AS period_key,
+  {{ p.period_start('lapse_key') }} AS period_start,
+  'churned' AS state
+FROM lapsed
