@@ -1,0 +1,165 @@
+"""``sqlgen demo``: an invented app's activity, the views built on it, the result printed.
+
+The scenario is made up: Quillfinch, a journaling app, over 2024 and 2025. About 8,000 users
+arrive at a growing rate; "habit" users write most months, "casual" users fade and sometimes
+come back, "tourists" try it once. Everything is generated inside DuckDB from a fixed seed,
+so every run prints the same table.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import duckdb
+
+from .compiler import render_files
+from .errors import OutputError
+from .output import write_files
+from .spec import parse_spec
+
+SEED = "quillfinch-1"
+DB_NAME = "quillfinch.duckdb"
+MARKER_TABLE = "sqlgen_demo_marker"
+
+SPEC_TEMPLATE = """\
+# Demo spec written by `sqlgen demo`: an invented journaling app, Quillfinch.
+version: 1
+activity:
+  table: app.journal_events
+  user: member_id
+  timestamp: happened_at
+  where: "event_name <> 'push_received'"
+grain: {grain}
+output:
+  dialect: duckdb
+  schema: growth
+  folder: sql
+"""
+
+# A uniform number in [0, 1) from a hash of its inputs and the seed: reproducible everywhere.
+_U = "((hash({args}, '" + SEED + "') % 1000003) / 1000003.0)"
+
+
+def _u(*args: str) -> str:
+    return _U.format(args=", ".join(args))
+
+
+DATA_SQL = f"""
+CREATE SCHEMA IF NOT EXISTS app;
+CREATE OR REPLACE TABLE app.members AS
+SELECT
+  i AS member_no,
+  'm' || lpad(CAST(i AS VARCHAR), 5, '0') AS member_id,
+  CAST(floor(24 * sqrt({_u('i', "'arrival'")})) AS INTEGER) AS signup_month,
+  CASE WHEN {_u('i', "'kind'")} < 0.25 THEN 'habit'
+       WHEN {_u('i', "'kind'")} < 0.75 THEN 'casual' ELSE 'tourist' END AS segment
+FROM range(8000) AS t(i);
+
+CREATE OR REPLACE TABLE app.member_months AS
+SELECT m.member_id, m.member_no, m.segment, mo.month_index
+FROM app.members AS m
+JOIN range(24) AS mo(month_index) ON mo.month_index >= m.signup_month
+WHERE mo.month_index = m.signup_month
+   OR {_u('m.member_no', 'mo.month_index', "'active'")} < CASE m.segment
+        WHEN 'habit' THEN 0.85
+        WHEN 'casual' THEN 0.12 + 0.5 * pow(0.8, mo.month_index - m.signup_month)
+        ELSE 0.04 END;
+
+CREATE OR REPLACE TABLE app.journal_events AS
+WITH sized AS (
+  SELECT *, 1 + CAST(floor(-ln(1 - {_u('member_no', 'month_index', "'depth'")})
+              * CASE segment WHEN 'habit' THEN 14 WHEN 'casual' THEN 4 ELSE 1.5 END)
+              AS INTEGER) AS n_events
+  FROM app.member_months
+), exploded AS (
+  SELECT member_id, member_no, month_index, unnest(range(n_events)) AS k FROM sized
+)
+SELECT
+  member_id,
+  CAST(DATE '2024-01-01' + to_months(month_index) AS TIMESTAMP)
+    + to_seconds(CAST(floor({_u('member_no', 'month_index', 'k', "'when'")}
+      * 86400 * day(last_day(DATE '2024-01-01' + to_months(month_index)))) AS BIGINT))
+    AS happened_at,
+  CASE WHEN {_u('member_no', 'month_index', 'k', "'what'")} < 0.2 THEN 'push_received'
+       WHEN {_u('member_no', 'month_index', 'k', "'what'")} < 0.6 THEN 'entry_written'
+       ELSE 'app_opened' END AS event_name
+FROM exploded;
+
+CREATE OR REPLACE TABLE {MARKER_TABLE} AS SELECT 'sqlgen demo database' AS note;
+"""
+
+COLUMNS = (
+    ("period_start", "period", "{}"),
+    ("active_users", "active", "{:,}"),
+    ("new_users", "new", "{:,}"),
+    ("retained_users", "retained", "{:,}"),
+    ("resurrected_users", "resurrected", "{:,}"),
+    ("churned_users", "churned", "{:,}"),
+    ("net_change", "net", "{:+,}"),
+    ("quick_ratio", "quick ratio", "{:.2f}"),
+    ("retention_rate", "retention", "{:.1%}"),
+    ("period_status", "status", "{}"),
+)
+
+
+def _open_database(path: Path) -> duckdb.DuckDBPyConnection:
+    if path.exists():
+        con = duckdb.connect(str(path))
+        found = con.execute("SELECT count(*) FROM information_schema.tables "
+                            "WHERE table_name = ?", [MARKER_TABLE]).fetchone()
+        if not found or not found[0]:
+            con.close()
+            raise OutputError(f"{path} exists and is not a sqlgen demo database; "
+                              "choose another folder with --folder")
+        return con
+    path.parent.mkdir(parents=True, exist_ok=True)
+    return duckdb.connect(str(path))
+
+
+def _write_spec(folder: Path, text: str) -> Path:
+    path = folder / "spec.yml"
+    if path.exists() and not path.read_text(encoding="utf-8").startswith("# Demo spec"):
+        raise OutputError(f"{path} exists and was not written by sqlgen demo")
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+def format_table(names: list[str], rows: list[tuple]) -> str:
+    """A plain-text table of growth-accounting rows."""
+    index = {name: i for i, name in enumerate(names)}
+    header = [title for _name, title, _fmt in COLUMNS]
+    body = [[("" if row[index[name]] is None else fmt.format(row[index[name]]))
+             for name, _title, fmt in COLUMNS] for row in rows]
+    widths = [max(len(cell) for cell in column) for column in zip(header, *body)]
+    lines = ["  ".join(cell.rjust(width) for cell, width in zip(line, widths))
+             for line in [header, *body]]
+    return "\n".join([lines[0], "  ".join("-" * w for w in widths), *lines[1:]])
+
+
+def run_demo(folder: Path, grain: str = "month") -> str:
+    """Create the demo data, build and run the views, return the printed report."""
+    folder.mkdir(parents=True, exist_ok=True)
+    con = _open_database(folder / DB_NAME)
+    con.execute(DATA_SQL)
+    spec_text = SPEC_TEMPLATE.format(grain=grain)
+    spec_path = _write_spec(folder, spec_text)
+    spec = parse_spec(spec_text, str(spec_path))
+    files = render_files(spec)
+    write_files(folder / spec.output.folder, files)
+    con.execute("CREATE SCHEMA IF NOT EXISTS growth")
+    con.execute(files["create_all.sql"])
+    cursor = con.execute("SELECT * FROM growth.growth_accounting ORDER BY period_start")
+    names = [d[0] for d in cursor.description]
+    rows = cursor.fetchall()
+    summary = con.execute("SELECT * FROM growth.activity_source_summary").fetchone()
+    con.close()
+    return "\n".join([
+        f"Quillfinch (an invented journaling app): {grain}ly growth accounting",
+        format_table(names, rows),
+        "",
+        f"Source rows: {summary[0]:,}; counted as activity: {summary[4]:,}; "
+        f"filtered out by `where`: {summary[3]:,}.",
+        f"Database: {folder / DB_NAME}   spec: {spec_path}   SQL: {folder / spec.output.folder}/",
+        "Management metrics, not audited financial statements. The user_activity and "
+        "user_states views hold per-user data.",
+    ])

@@ -1,0 +1,61 @@
+"""Shared test setup: engines started once per session, golden-file updates, hypothesis."""
+
+from __future__ import annotations
+
+import os
+
+import pytest
+from hypothesis import HealthCheck, settings
+
+from engines import ENGINE_NAMES, EngineUnavailable, start_engine
+
+settings.register_profile(
+    "sqlgen", deadline=None, derandomize=True, print_blob=True,
+    suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture])
+settings.load_profile("sqlgen")
+
+# Targets each engine executes; the others are generated and checked without an engine.
+ENGINE_TARGETS = {"duckdb": ("duckdb",), "postgres": ("postgres",), "sqlite": ("sqlite",),
+                  "mysql": ("mysql",), "clickhouse": ("clickhouse",),
+                  "spark": ("spark", "databricks")}
+
+
+def selected_engines() -> list[str]:
+    """Engines to run: SQLGEN_ENGINES=duckdb,postgres narrows the set; default all."""
+    wanted = os.environ.get("SQLGEN_ENGINES", "")
+    names = [n.strip() for n in wanted.split(",") if n.strip()] or list(ENGINE_NAMES)
+    return [n for n in ENGINE_NAMES if n in names]
+
+
+def engine_target_pairs() -> list[tuple[str, str]]:
+    return [(e, t) for e in selected_engines() for t in ENGINE_TARGETS[e]]
+
+
+def pytest_addoption(parser):
+    parser.addoption("--update-golden", action="store_true",
+                     help="rewrite the golden SQL files from the current generator")
+
+
+_STARTED: dict[str, object] = {}
+
+
+@pytest.fixture(scope="session")
+def engines():
+    """Start engines lazily, once per session; stop them all at the end."""
+    def get(name: str):
+        if name not in _STARTED:
+            try:
+                _STARTED[name] = start_engine(name)
+            except EngineUnavailable as err:
+                _STARTED[name] = err
+        found = _STARTED[name]
+        if isinstance(found, EngineUnavailable):
+            if os.environ.get("CI") == "true":
+                pytest.fail(f"engine {name} did not start in CI: {found}")
+            pytest.skip(f"engine {name} unavailable: {found}")
+        return found
+    yield get
+    for found in _STARTED.values():
+        if not isinstance(found, EngineUnavailable):
+            found.close()
+    _STARTED.clear()
