@@ -28,7 +28,7 @@ class SpecError(SqlgenError):
     """A spec that cannot be used; carries every problem found, not just the first."""
 
     def __init__(self, problems: list[Problem]):
-        self.problems = list(problems)
+        self.problems = sorted(problems, key=lambda p: (p.file, p.line, p.col))
         super().__init__(self.render())
 
     def render(self, limit: int = 20) -> str:

@@ -124,9 +124,21 @@ def parse_spec(text: str, filename: str = "spec.yml") -> Spec:
     root = parse_yaml(text, filename)
     checker = _Checker(filename)
     values = checker.section(root, "")
+    _cross_checks(checker, root, values)
     if checker.problems:
         raise SpecError(checker.problems)
     return _build(values, filename)
+
+
+def _cross_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
+    activity = root.value.get("activity") if isinstance(root.value, dict) else None
+    if not activity or not isinstance(activity.value, dict):
+        return
+    zone = activity.value.get("timezone")
+    if zone is not None and v.get("activity.timestamp_type") == "date":
+        checker.report((zone.line, zone.col), "activity.timezone",
+                       "a date column has no time of day to convert; remove timezone or "
+                       "set timestamp_type: timestamp")
 
 
 def _build(v: dict[str, Any], filename: str) -> Spec:
