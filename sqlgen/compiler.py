@@ -64,7 +64,7 @@ def ddl_statements(view: View, spec: Spec, target: Target) -> tuple[str, ...]:
     table = view_table(spec, view.name)
     key = f"view {view.name}"
     if target.view_ddl == "drop_create":
-        drop = exp.Drop(this=table.copy(), kind="VIEW", exists=True)
+        drop = exp.Drop(tables=[table.copy()], kind="VIEW", exists=True)
         create = exp.Create(this=table, kind="VIEW", expression=query)
         return (_generate(drop, target, key), _generate(create, target, key))
     create = exp.Create(this=table, kind="VIEW", expression=query,
@@ -126,7 +126,7 @@ def _create_all(spec: Spec, target: Target, compiled: list[CompiledView]) -> str
     parts = ["\n".join(lines)]
     if target.view_ddl == "replace" and target.ddl_note:
         for c in reversed(compiled):
-            drop = exp.Drop(this=view_table(spec, c.view.name), kind="VIEW", exists=True,
+            drop = exp.Drop(tables=[view_table(spec, c.view.name)], kind="VIEW", exists=True,
                             cascade=True)
             parts.append(_generate(drop, target, "view DDL") + ";")
     for c in compiled:

@@ -1,0 +1,69 @@
+"""Golden files pin the generated SQL of every view, grain and target, byte for byte.
+
+They prove stability, not correctness (test_views.py does that on real engines). After an
+intended change, run `pytest tests/test_golden.py --update-golden` and review the diff
+like code: it should touch exactly the files the change predicts.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+import sqlglot
+
+from sqlgen import parse_spec, render_files
+from sqlgen.dialects import TARGETS
+
+GOLDEN = Path(__file__).parent / "golden"
+GRAINS = {"day": ("day", "monday"), "week_monday": ("week", "monday"),
+          "week_sunday": ("week", "sunday"), "month": ("month", "monday"),
+          "quarter": ("quarter", "monday"), "year": ("year", "monday")}
+
+SPEC = """\
+version: 1
+activity:
+  table: raw.app_events
+  user: user_id
+  timestamp: occurred_at
+  where: "event_name <> 'push_received'"
+grain: {grain}
+week_start: {week_start}
+output:
+  dialect: duckdb
+  schema: growth
+"""
+
+
+def generated(target: str, label: str) -> dict[str, str]:
+    grain, week_start = GRAINS[label]
+    spec = parse_spec(SPEC.format(grain=grain, week_start=week_start), "golden.yml")
+    return render_files(spec, target)
+
+
+@pytest.mark.parametrize("label", GRAINS)
+@pytest.mark.parametrize("target", TARGETS)
+def test_golden(target, label, request):
+    folder = GOLDEN / target / label
+    files = generated(target, label)
+    if request.config.getoption("--update-golden"):
+        folder.mkdir(parents=True, exist_ok=True)
+        for old in folder.glob("*.sql"):
+            if old.name not in files:
+                old.unlink()
+        for name, text in files.items():
+            (folder / name).write_text(text, encoding="utf-8")
+    on_disk = sorted(p.name for p in folder.glob("*.sql"))
+    assert on_disk == sorted(files), "run pytest --update-golden and review the diff"
+    for name, text in files.items():
+        assert (folder / name).read_text(encoding="utf-8") == text, (
+            f"{folder / name} differs; run pytest --update-golden and review the diff")
+
+
+@pytest.mark.parametrize("target", TARGETS)
+def test_every_statement_reparses_in_its_dialect(target):
+    dialect = TARGETS[target].sqlglot_dialect
+    for label in GRAINS:
+        for name, text in generated(target, label).items():
+            for statement in sqlglot.parse(text, read=dialect):
+                assert statement is not None
