@@ -12,6 +12,7 @@ from .dialects import TARGETS, Target, rewrites
 from .errors import UnsupportedError
 from .render import bind, parse, render
 from .spec import Spec
+from .support import require_support
 from .views import View, planned_views
 
 CAUTION = ("Management metrics, not audited financial statements: check definitions before "
@@ -101,8 +102,10 @@ def header(spec: Spec, target: Target, view: View | None) -> list[str]:
 def compile_spec(spec: Spec, target_name: str | None = None) -> list[CompiledView]:
     """Every enabled view of a spec, compiled for a target, in dependency order."""
     target = TARGETS[target_name or spec.output.dialect]
+    views = planned_views(spec)
+    require_support(spec, target, [v.name for v in views])
     out = []
-    for view in planned_views(spec):
+    for view in views:
         statements = ddl_statements(view, spec, target)
         body = "\n\n".join(s + ";" for s in statements)
         text = "\n".join(header(spec, target, view)) + "\n\n" + body + "\n"

@@ -6,7 +6,7 @@ differently lives here, as a function from a sqlglot tree to a sqlglot tree.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Callable
 
 from sqlglot import exp
@@ -27,6 +27,7 @@ class Target:
     view_ddl: str  # 'replace' | 'drop_create' | 'create_or_alter'
     transforms: tuple[Transform, ...] = ()
     ddl_note: str = ""
+    unsupported: dict[str, str] = field(default_factory=dict)  # feature -> reason
 
     def dialect(self) -> Dialect:
         return Dialect.get_or_raise(self.sqlglot_dialect)

@@ -27,8 +27,11 @@ def selected_engines() -> list[str]:
     return [n for n in ENGINE_NAMES if n in names]
 
 
-def engine_target_pairs() -> list[tuple[str, str]]:
-    return [(e, t) for e in selected_engines() for t in ENGINE_TARGETS[e]]
+def engine_target_pairs(only: tuple[str, ...] | None = None) -> list:
+    """(engine, target) parameters; each engine's tests share one xdist worker."""
+    return [pytest.param(e, t, id=f"{e}-{t}", marks=pytest.mark.xdist_group(e))
+            for e in selected_engines() if only is None or e in only
+            for t in ENGINE_TARGETS[e]]
 
 
 def pytest_addoption(parser):

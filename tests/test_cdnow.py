@@ -35,8 +35,7 @@ def test_cdnow_monthly_growth_accounting(engines, engine_name, target, purchases
     ref.assert_identities(growth)
 
 
-@pytest.mark.parametrize("engine_name,target", [p for p in engine_target_pairs()
-                                                if p[0] == "duckdb"])
+@pytest.mark.parametrize("engine_name,target", engine_target_pairs(only=("duckdb",)))
 @pytest.mark.parametrize("grain,week_start", [("week", "sunday"), ("quarter", "monday")])
 def test_cdnow_other_grains(engines, engine_name, target, purchases, grain, week_start):
     results = run(engines(engine_name), target, purchases, kind="date", grain=grain,
