@@ -88,25 +88,45 @@ def parse(sql: str) -> exp.Expression:
     return sqlglot.parse_one(sql, read=SOURCE_DIALECT)
 
 
+@dataclass(frozen=True)
+class Markers:
+    """What each marker in a template stands for: columns, tables, conditions, literals."""
+
+    columns: dict[str, exp.Expression]
+    tables: dict[str, exp.Table]
+    literals: dict[str, exp.Expression]
+
+
+def markers(spec: Spec) -> Markers:
+    """Every marker a spec defines. A new source (say, revenue) adds its own entries here."""
+    columns: dict[str, exp.Expression] = {}
+    tables: dict[str, exp.Table] = {}
+    literals: dict[str, exp.Expression] = {}
+    source = spec.activity
+    if source is not None:
+        columns["__user__"] = names.column(source.user)
+        columns["__timestamp__"] = names.column(source.timestamp)
+        if source.where:
+            columns["__where__"] = filter_tree(source.where, spec)
+        tables["__activity_table__"] = names.table(source.table)
+        literals["__timezone__"] = exp.Literal.string(source.timezone or "UTC")
+    return Markers(columns, tables, literals)
+
+
 def bind(tree: exp.Expression, spec: Spec, view_table) -> exp.Expression:
     """Replace the markers with sqlglot nodes built from the spec."""
-    source = spec.activity
-    columns = {"__user__": source.user, "__timestamp__": source.timestamp}
-    where = _where_tree(spec) if source.where else None
+    found = markers(spec)
 
     def rewrite(node: exp.Expression) -> exp.Expression:
-        if isinstance(node, exp.Column) and not node.table:
-            if node.name in columns:
-                return names.column(columns[node.name])
-            if node.name == "__where__" and where is not None:
-                return where.copy()
+        if isinstance(node, exp.Column) and not node.table and node.name in found.columns:
+            return found.columns[node.name].copy()
         if isinstance(node, exp.Table) and not node.db:
-            if node.name == "__activity_table__":
-                return _with_alias(names.table(source.table), node)
+            if node.name in found.tables:
+                return _with_alias(found.tables[node.name].copy(), node)
             if node.name.startswith(VIEW_MARKER):
                 return _with_alias(view_table(node.name[len(VIEW_MARKER):]), node)
-        if isinstance(node, exp.Literal) and node.is_string and node.this == "__timezone__":
-            return exp.Literal.string(source.timezone or "UTC")
+        if isinstance(node, exp.Literal) and node.is_string and node.this in found.literals:
+            return found.literals[node.this].copy()
         return node
 
     return tree.transform(rewrite)
@@ -119,10 +139,11 @@ def _with_alias(table: exp.Table, marker: exp.Table) -> exp.Table:
     return table
 
 
-def _where_tree(spec: Spec) -> exp.Expression:
+def filter_tree(text: str, spec: Spec) -> exp.Expression:
+    """A spec's ``where`` text as a tree, its column names marked like other spec names."""
     from .dialects import TARGETS
 
-    tree = parse_filter(spec.activity.where or "", TARGETS[spec.output.dialect].sqlglot_dialect)
+    tree = parse_filter(text, TARGETS[spec.output.dialect].sqlglot_dialect)
 
     def mark(node: exp.Expression) -> exp.Expression:
         if isinstance(node, exp.Identifier) and isinstance(node.parent, exp.Column):
