@@ -10,11 +10,13 @@ if [ "$(id -u)" -ne 0 ]; then
     exit 0
 fi
 
-# MariaDB server (stand-in for MySQL 8) when mariadbd is missing.
-if ! command -v mariadbd >/dev/null 2>&1 && [ ! -x /usr/sbin/mariadbd ]; then
+# MariaDB server (stand-in for MySQL 8) when mariadbd is missing, and mariadb-client for
+# mariadb-tzinfo-to-sql (named time zones for CONVERT_TZ).
+if ! { command -v mariadbd >/dev/null 2>&1 || [ -x /usr/sbin/mariadbd ]; } \
+        || ! command -v mariadb-tzinfo-to-sql >/dev/null 2>&1; then
     apt-get update
     DEBIAN_FRONTEND=noninteractive apt-get install -y --no-install-recommends \
-        mariadb-server-core mariadb-client-core
+        mariadb-server-core mariadb-client-core mariadb-client tzdata
 fi
 
 # PostgreSQL 15 server binaries (normally present already).

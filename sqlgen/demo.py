@@ -151,14 +151,15 @@ def run_demo(folder: Path, grain: str = "month") -> str:
     cursor = con.execute("SELECT * FROM growth.growth_accounting ORDER BY period_start")
     names = [d[0] for d in cursor.description]
     rows = cursor.fetchall()
-    summary = con.execute("SELECT * FROM growth.activity_source_summary").fetchone()
+    cursor = con.execute("SELECT * FROM growth.activity_source_summary")
+    summary = dict(zip([d[0] for d in cursor.description], cursor.fetchone()))
     con.close()
     return "\n".join([
         f"Quillfinch (an invented journaling app): {grain}ly growth accounting",
         format_table(names, rows),
         "",
-        f"Source rows: {summary[0]:,}; counted as activity: {summary[4]:,}; "
-        f"filtered out by `where`: {summary[3]:,}.",
+        f"Source rows: {summary['source_rows']:,}; counted as activity: "
+        f"{summary['counted_rows']:,}; filtered out by `where`: {summary['filtered_out_rows']:,}.",
         f"Database: {folder / DB_NAME}   spec: {spec_path}   SQL: {folder / spec.output.folder}/",
         "Management metrics, not audited financial statements. The user_activity and "
         "user_states views hold per-user data.",

@@ -33,6 +33,162 @@ class Target:
         return Dialect.get_or_raise(self.sqlglot_dialect)
 
 
+def _fn(name: str, *args: exp.Expression) -> exp.Anonymous:
+    """A function call the target is known to have, spelled exactly."""
+    return exp.Anonymous(this=name, expressions=list(args))
+
+
+def _is_utc(zone: exp.Expression | None) -> bool:
+    return isinstance(zone, exp.Literal) and zone.this.upper() == "UTC"
+
+
+def lower_time_zones(tree: exp.Expression) -> exp.Expression:
+    """Turn the template's ``AT TIME ZONE`` chains into ConvertTimezone nodes.
+
+    ``(ts AT TIME ZONE 'UTC') AT TIME ZONE z`` (a zone-less timestamp read as UTC) becomes
+    ConvertTimezone(source_tz='UTC', target_tz=z); ``ts AT TIME ZONE z`` (an instant) becomes
+    ConvertTimezone(target_tz=z). Each target then spells the conversion its own way.
+    """
+    def rewrite(node: exp.Expression) -> exp.Expression:
+        if not isinstance(node, exp.AtTimeZone):
+            return node
+        inner = node.this.unnest() if isinstance(node.this, exp.Paren) else node.this
+        if isinstance(inner, exp.AtTimeZone) and _is_utc(inner.args.get("zone")):
+            return exp.ConvertTimezone(source_tz=inner.args["zone"], target_tz=node.args["zone"],
+                                       timestamp=inner.this)
+        if isinstance(inner, exp.ConvertTimezone) and _is_utc(inner.args.get("target_tz")) \
+                and inner.args.get("source_tz") is None:
+            return exp.ConvertTimezone(source_tz=inner.args["target_tz"],
+                                       target_tz=node.args["zone"], timestamp=inner.args["timestamp"])
+        return exp.ConvertTimezone(target_tz=node.args["zone"], timestamp=node.this)
+    return tree.transform(rewrite)
+
+
+def _zone_rewrite(spell: Callable[[exp.Expression, exp.Expression | None, exp.Expression],
+                                  exp.Expression]) -> Transform:
+    """A transform spelling every ConvertTimezone(ts, source or None, target) for one target."""
+    def rewrite(node: exp.Expression) -> exp.Expression:
+        if isinstance(node, exp.ConvertTimezone):
+            return spell(node.args["timestamp"], node.args.get("source_tz"), node.args["target_tz"])
+        return node
+    return lambda tree: tree.transform(rewrite)
+
+
+def _zones_at_time_zone(ts, source, target):
+    """Postgres, DuckDB: ``timestamp AT TIME ZONE 'UTC'`` is an instant; ``AT TIME ZONE z`` of
+    an instant is z's wall clock."""
+    if source is not None:
+        ts = exp.AtTimeZone(this=ts, zone=source)
+    return exp.AtTimeZone(this=ts, zone=target)
+
+
+def _zones_spark(ts, source, target):
+    """Spark: ``convert_timezone(z, ts)`` of an instant, ``convert_timezone('UTC', z, ts)`` of a
+    zone-less timestamp; neither depends on spark.sql.session.timeZone."""
+    return _fn("CONVERT_TIMEZONE", *([source] if source is not None else []), target, ts)
+
+
+_zones_snowflake = _zones_spark  # the same two forms; independent of the session zone
+
+
+def _zones_clickhouse(ts, source, target):
+    """ClickHouse: a DateTime is an instant; a zone-less value is re-read as UTC text first."""
+    if source is not None:
+        ts = _fn("toDateTime64", _fn("toString", ts), exp.Literal.number(6), source)
+    return _fn("toTimeZone", ts, target)
+
+
+def _zones_mysql(ts, source, target):
+    """MySQL/MariaDB have no instant type: zone-aware values are stored as UTC DATETIME, so
+    both cases convert from UTC. Named zones need the server's time zone tables loaded."""
+    if _is_utc(target):
+        return ts
+    return _fn("CONVERT_TZ", ts, exp.Literal.string("+00:00"), target)
+
+
+def _zones_bigquery(ts, source, target):
+    """BigQuery: ``DATETIME(TIMESTAMP(dt), z)``; TIMESTAMP(datetime) reads it as UTC."""
+    if source is not None:
+        ts = _fn("TIMESTAMP", ts)
+    return _fn("DATETIME", ts, target)
+
+
+def _zones_trino(ts, source, target):
+    """Trino: ``with_timezone(ts, 'UTC')`` attaches UTC to a zone-less timestamp."""
+    if source is not None:
+        ts = _fn("with_timezone", ts, source)
+    return exp.AtTimeZone(this=ts, zone=target)
+
+
+def _zones_utc_only(ts, source, target):
+    """SQLite converts only to UTC (see ``unsupported``): DATE() of ISO text with an offset
+    already gives the UTC date."""
+    if _is_utc(target) and source is None:
+        return ts
+    return exp.AtTimeZone(this=ts, zone=target)
+
+
+def _zones_tsql(ts, source, target):
+    """T-SQL: ``datetimeoffset AT TIME ZONE 'UTC'`` (only 'UTC': zone names are Windows')."""
+    return exp.AtTimeZone(this=ts, zone=target)
+
+
+def sqlite_date_parts(tree: exp.Expression) -> exp.Expression:
+    """SQLite has no EXTRACT: ``EXTRACT(YEAR FROM d)`` becomes ``CAST(STRFTIME('%Y', d) AS
+    INTEGER)`` (sqlglot passes EXTRACT through unchanged, which SQLite rejects)."""
+    formats = {"YEAR": "%Y", "MONTH": "%m", "DAY": "%d"}
+
+    def rewrite(node: exp.Expression) -> exp.Expression:
+        if isinstance(node, exp.Extract) and node.this.name.upper() in formats:
+            text = _fn("STRFTIME", exp.Literal.string(formats[node.this.name.upper()]),
+                       node.expression)
+            return exp.Cast(this=text, to=exp.DataType.build("INTEGER"))
+        return node
+    return tree.transform(rewrite)
+
+
+def int_date_offsets(tree: exp.Expression) -> exp.Expression:
+    """Spark: ``date_add(d, n)`` and ``add_months(d, n)`` take INT, and period keys are BIGINT
+    (``date_add(DATE '1970-01-05', period_key)`` fails with DATATYPE_MISMATCH)."""
+    def rewrite(node: exp.Expression) -> exp.Expression:
+        if isinstance(node, exp.DateAdd) and not isinstance(node.expression, exp.Literal):
+            node.set("expression", exp.Cast(this=node.expression,
+                                            to=exp.DataType.build("INT")))
+        return node
+    return tree.transform(rewrite)
+
+
+def constant_unions_as_values(tree: exp.Expression) -> exp.Expression:
+    """Spark: a UNION ALL of one-literal SELECTs (the digits of the period calendar) becomes
+    one VALUES list; Spark plans each branch as its own scan, ten per digit, which made the
+    calendar the slowest part of growth_accounting on small data."""
+    def leaves(node: exp.Expression) -> list[exp.Expression] | None:
+        if isinstance(node, exp.Union) and not node.args.get("distinct"):
+            left, right = leaves(node.this), leaves(node.expression)
+            return None if left is None or right is None else left + right
+        if isinstance(node, exp.Select) and not node.args.get("from_") \
+                and len(node.expressions) == 1:
+            value = node.expressions[0].unalias()
+            return [value] if isinstance(value, exp.Literal) else None
+        return None
+
+    def rewrite(node: exp.Expression) -> exp.Expression:
+        if not isinstance(node, exp.Union):
+            return node
+        found = leaves(node)
+        if not found or len(found) < 3 or not node.this.find(exp.Alias):
+            return node
+        name = node.find(exp.Alias).alias
+        rows = exp.values([(v.copy(),) for v in found], alias="sqlgen_values", columns=[name])
+        return exp.select(name).from_(rows)
+    return tree.transform(rewrite)
+
+
+_NO_IANA_SQLITE = "SQLite has no time zone database; convert to local time before loading"
+_NO_IANA_TSQL = ("T-SQL's AT TIME ZONE takes Windows zone names, not IANA names; store local "
+                 "time or a datetimeoffset already in the reporting zone")
+
+
 _PG_NOTE = ("CREATE OR REPLACE VIEW cannot change an existing view's columns on this engine: "
             "after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, "
             "which does so).")
@@ -40,18 +196,27 @@ _PG_NOTE = ("CREATE OR REPLACE VIEW cannot change an existing view's columns on 
 TARGETS: dict[str, Target] = {
     t.name: t
     for t in (
-        Target("duckdb", "duckdb", "duckdb", "replace"),
-        Target("postgres", "postgres", "postgres", "replace", ddl_note=_PG_NOTE),
-        Target("spark", "spark", "spark", "replace"),
-        Target("databricks", "databricks", "spark", "replace"),
-        Target("clickhouse", "clickhouse", "clickhouse", "replace"),
-        Target("mysql", "mysql", "mysql", "replace"),
-        Target("sqlite", "sqlite", "sqlite", "drop_create"),
-        Target("bigquery", "bigquery", None, "replace"),
-        Target("snowflake", "snowflake", None, "replace"),
-        Target("redshift", "redshift", None, "replace", ddl_note=_PG_NOTE),
-        Target("trino", "trino", None, "replace"),
-        Target("tsql", "tsql", None, "create_or_alter"),
+        Target("duckdb", "duckdb", "duckdb", "replace",
+               (_zone_rewrite(_zones_at_time_zone),)),
+        Target("postgres", "postgres", "postgres", "replace",
+               (_zone_rewrite(_zones_at_time_zone),), ddl_note=_PG_NOTE),
+        Target("spark", "spark", "spark", "replace",
+               (_zone_rewrite(_zones_spark), int_date_offsets, constant_unions_as_values)),
+        Target("databricks", "databricks", "spark", "replace",
+               (_zone_rewrite(_zones_spark), int_date_offsets, constant_unions_as_values)),
+        Target("clickhouse", "clickhouse", "clickhouse", "replace",
+               (_zone_rewrite(_zones_clickhouse),)),
+        Target("mysql", "mysql", "mysql", "replace", (_zone_rewrite(_zones_mysql),)),
+        Target("sqlite", "sqlite", "sqlite", "drop_create",
+               (_zone_rewrite(_zones_utc_only), sqlite_date_parts),
+               unsupported={"activity.timezone": _NO_IANA_SQLITE}),
+        Target("bigquery", "bigquery", None, "replace", (_zone_rewrite(_zones_bigquery),)),
+        Target("snowflake", "snowflake", None, "replace", (_zone_rewrite(_zones_snowflake),)),
+        Target("redshift", "redshift", None, "replace", (_zone_rewrite(_zones_snowflake),),
+               ddl_note=_PG_NOTE),
+        Target("trino", "trino", None, "replace", (_zone_rewrite(_zones_trino),)),
+        Target("tsql", "tsql", None, "create_or_alter", (_zone_rewrite(_zones_tsql),),
+               unsupported={"activity.timezone": _NO_IANA_TSQL}),
     )
 }
 
@@ -100,4 +265,5 @@ def spec_identifiers(target: Target) -> Transform:
 
 def rewrites(target: Target) -> list[Transform]:
     """Every rewrite for a target, in order: shared lowering first, then its own."""
-    return [interval_add_to_date_add, spec_identifiers(target), *target.transforms]
+    return [interval_add_to_date_add, lower_time_zones, spec_identifiers(target),
+            *target.transforms]

@@ -9,6 +9,7 @@ WITH sqlgen_source AS (
 ), keyed AS (
   SELECT user_id, activity_date, {{ p.period_key('activity_date') }} AS period_key
   FROM dated
+  WHERE activity_date IS NOT NULL
 )
 SELECT
   user_id,

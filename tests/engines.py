@@ -587,9 +587,21 @@ class MySQLEngine(_DbApiEngine):
               '--user=root', '--auth-root-authentication-method=normal', '--skip-test-db',
               '--skip-name-resolve'], cwd=self._tmp)
         self._conn = self._start_server()
+        self._load_time_zones()
         self._exec("SET time_zone = '+00:00'")
         self._exec(f"SET sql_mode = '{MYSQL8_SQL_MODE}'")
         self._use_default_db()
+
+    def _load_time_zones(self):
+        """Fill the server's time zone tables so CONVERT_TZ knows IANA names."""
+        tool = shutil.which('mariadb-tzinfo-to-sql')
+        client = shutil.which('mariadb')
+        if not tool or not client:
+            raise EngineUnavailable('mariadb-tzinfo-to-sql or mariadb missing: run '
+                                    '.ci/setup_engines.sh (package mariadb-client)')
+        sql = subprocess.run([tool, '/usr/share/zoneinfo'], capture_output=True, check=True)
+        subprocess.run([client, '--no-defaults', f'--socket={self._socket}', '-uroot', 'mysql'],
+                       input=sql.stdout, capture_output=True, check=True)
 
     def _server_cmd(self, port: int) -> list[str]:
         return [_which('mariadbd'), '--no-defaults', f'--datadir={self._data}',
@@ -699,7 +711,7 @@ def _spark_session():
                    .config('spark.driver.bindAddress', '127.0.0.1')
                    .config('spark.ui.enabled', 'false')
                    .config('spark.ui.showConsoleProgress', 'false')
-                   .config('spark.sql.shuffle.partitions', '2')
+                   .config('spark.sql.shuffle.partitions', '1')
                    .config('spark.driver.memory', '2g')
                    .getOrCreate())
         session.sparkContext.setLogLevel('ERROR')
