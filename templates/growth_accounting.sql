@@ -2,11 +2,11 @@
 WITH tallies AS (
   SELECT
     period_key AS tally_key,
-    COUNT(CASE WHEN state <> 'churned' THEN 1 END) AS active_count,
-    COUNT(CASE WHEN state = 'new' THEN 1 END) AS new_count,
-    COUNT(CASE WHEN state = 'retained' THEN 1 END) AS retained_count,
-    COUNT(CASE WHEN state = 'resurrected' THEN 1 END) AS resurrected_count,
-    COUNT(CASE WHEN state = 'churned' THEN 1 END) AS churned_count
+    COUNT(CASE WHEN state <> 'churned' THEN 1 END) AS active_tally,
+    COUNT(CASE WHEN state = 'new' THEN 1 END) AS new_tally,
+    COUNT(CASE WHEN state = 'retained' THEN 1 END) AS retained_tally,
+    COUNT(CASE WHEN state = 'resurrected' THEN 1 END) AS resurrected_tally,
+    COUNT(CASE WHEN state = 'churned' THEN 1 END) AS churned_tally
   FROM {{ ref('user_states') }}
   GROUP BY period_key
 ), data_range AS (
@@ -27,11 +27,11 @@ WITH tallies AS (
 ), filled AS (
   SELECT
     c.calendar_key,
-    COALESCE(t.active_count, 0) AS active_count,
-    COALESCE(t.new_count, 0) AS new_count,
-    COALESCE(t.retained_count, 0) AS retained_count,
-    COALESCE(t.resurrected_count, 0) AS resurrected_count,
-    COALESCE(t.churned_count, 0) AS churned_count,
+    COALESCE(t.active_tally, 0) AS active_count,
+    COALESCE(t.new_tally, 0) AS new_count,
+    COALESCE(t.retained_tally, 0) AS retained_count,
+    COALESCE(t.resurrected_tally, 0) AS resurrected_count,
+    COALESCE(t.churned_tally, 0) AS churned_count,
     CASE
       WHEN c.calendar_key = e.last_key AND e.after_data_key = e.last_key THEN 'in_progress'
       ELSE 'complete'
