@@ -143,3 +143,30 @@ def test_random_data_matches_reference(engines, engine_name, target):
         check_all(results, events, grain, week_start)
 
     check()
+
+
+# Quick-ratio check values for contrasting businesses (common practice): a strong
+# subscription business well above 1 (4.5), a consumer app just above 1 (1.6). The datasets
+# are the ones of tests/test_reference.py, here run through the generated SQL.
+def _monthly(month, users):
+    import datetime as dt
+
+    return [(u, dt.datetime(2023, month, 10, 12)) for u in users]
+
+
+QUICK_RATIO_CASES = {
+    4.5: _monthly(1, [f"o{i}" for i in range(10)])
+    + _monthly(2, [f"o{i}" for i in range(8)] + [f"n{i}" for i in range(9)]),
+    1.6: _monthly(1, ["r1", "r2", "r3"]) + _monthly(2, [f"u{i}" for i in range(10)])
+    + _monthly(3, [f"u{i}" for i in range(5)] + ["r1", "r2", "r3"] + [f"n{i}" for i in range(5)]),
+}
+
+
+@pytest.mark.parametrize("engine_name,target", engine_target_pairs(every_target=False))
+@pytest.mark.parametrize("ratio", sorted(QUICK_RATIO_CASES))
+def test_quick_ratio_check_values(engines, engine_name, target, ratio):
+    results = run(engines(engine_name), target, QUICK_RATIO_CASES[ratio],
+                  views=("growth_accounting",))
+    last = max(results["growth_accounting"], key=lambda r: r["period_start"])
+    assert last["quick_ratio"] == pytest.approx(ratio, rel=1e-12)
+    assert isinstance(last["quick_ratio"], float)
