@@ -34,9 +34,19 @@ def engine_target_pairs(only: tuple[str, ...] | None = None, every_target: bool 
     in the core matrix (every view and grain, time zones) but the longer data sets only as
     spark, which keeps the Spark share of CI within budget.
     """
-    return [pytest.param(e, t, id=f"{e}-{t}", marks=pytest.mark.xdist_group(e))
+    return [pytest.param(e, t, id=f"{e}-{t}")
             for e in selected_engines() if only is None or e in only
             for t in ENGINE_TARGETS[e][:None if every_target else 1]]
+
+
+def pytest_collection_modifyitems(items):
+    """With xdist's loadgroup, keep one engine's tests of one file on one worker: an engine
+    starts at most once per worker and file, and slow engines spread over both workers."""
+    for item in items:
+        params = getattr(item, "callspec", None)
+        engine = params.params.get("engine_name") if params else None
+        if engine:
+            item.add_marker(pytest.mark.xdist_group(f"{engine}-{item.module.__name__}"))
 
 
 def pytest_addoption(parser):
