@@ -79,6 +79,8 @@ def render(view: View, spec: Spec) -> str:
     return template.render(
         grain=grain_of(spec),
         source=spec.activity,
+        revenue=spec.revenue,
+        windows=spec.trailing_windows,
         ref=lambda name: f"{VIEW_MARKER}{name}",
     )
 
@@ -110,7 +112,23 @@ def markers(spec: Spec) -> Markers:
             columns["__where__"] = filter_tree(source.where, spec)
         tables["__activity_table__"] = names.table(source.table)
         literals["__timezone__"] = exp.Literal.string(source.timezone or "UTC")
+    _revenue_markers(spec, columns, tables, literals)
     return Markers(columns, tables, literals)
+
+
+def _revenue_markers(spec: Spec, columns: dict, tables: dict, literals: dict) -> None:
+    """Markers of the revenue source: ``__customer__``, ``__amount__``, ``__revenue_table__``..."""
+    revenue = spec.revenue
+    if revenue is None:
+        return
+    named = {"__customer__": revenue.customer, "__amount__": revenue.amount,
+             "__revenue_timestamp__": revenue.timestamp, "__revenue_start__": revenue.start,
+             "__revenue_end__": revenue.end, "__revenue_interval__": revenue.interval_column}
+    columns.update({marker: names.column(part) for marker, part in named.items() if part})
+    if revenue.where:
+        columns["__revenue_where__"] = filter_tree(revenue.where, spec)
+    tables["__revenue_table__"] = names.table(revenue.table)
+    literals["__revenue_timezone__"] = exp.Literal.string(revenue.timezone or "UTC")
 
 
 def bind(tree: exp.Expression, spec: Spec, view_table) -> exp.Expression:

@@ -11,13 +11,18 @@ from .errors import UnsupportedError
 from .spec import Spec
 from .views import VIEWS
 
-OPTIONS = ("grain: week", "activity.timezone", "timestamp_type: timestamptz", "activity.where")
+OPTIONS = ("grain: week", "activity.timezone", "timestamp_type: timestamptz", "activity.where",
+           "revenue.timezone", "revenue.where", "shape: subscriptions")
 FEATURES: tuple[str, ...] = tuple(v.name for v in VIEWS) + OPTIONS
+# A revenue option needs what the activity option of the same kind needs, unless a target
+# lists it separately.
+SAME_AS = {"revenue.timezone": "activity.timezone", "revenue.where": "activity.where"}
 
 
 def support(target: Target, feature: str) -> tuple[str, str]:
     """(status, reason): status is executed, checked or unsupported."""
-    reason = target.unsupported.get(feature, "")
+    reason = (target.unsupported.get(feature, "")
+              or target.unsupported.get(SAME_AS.get(feature, ""), ""))
     if reason:
         return "unsupported", reason
     return ("executed" if target.engine else "checked"), ""
@@ -28,12 +33,29 @@ def features_used(spec: Spec) -> list[tuple[str, str]]:
     used = []
     if spec.grain == "week":
         used.append(("grain: week", "grain"))
-    if spec.activity.timezone:
+    activity = spec.activity
+    if activity is not None and activity.timezone:
         used.append(("activity.timezone", "activity.timezone"))
-    if spec.activity.timestamp_type == "timestamptz":
+    if activity is not None and activity.timestamp_type == "timestamptz":
         used.append(("timestamp_type: timestamptz", "activity.timestamp_type"))
-    if spec.activity.where:
+    if activity is not None and activity.where:
         used.append(("activity.where", "activity.where"))
+    return used + _revenue_features(spec)
+
+
+def _revenue_features(spec: Spec) -> list[tuple[str, str]]:
+    revenue = spec.revenue
+    if revenue is None:
+        return []
+    used = []
+    if revenue.timezone:
+        used.append(("revenue.timezone", "revenue.timezone"))
+    if revenue.timestamp_type == "timestamptz":
+        used.append(("timestamp_type: timestamptz", "revenue.timestamp_type"))
+    if revenue.where:
+        used.append(("revenue.where", "revenue.where"))
+    if revenue.shape == "subscriptions":
+        used.append(("shape: subscriptions", "revenue.shape"))
     return used
 
 

@@ -35,12 +35,15 @@ VIEWS: tuple[View, ...] = (
     View(
         "activity_source_summary",
         "One row counting the source rows: all, left out for a NULL user or timestamp, "
-        "filtered out by `where`, and counted as activity.",
+        "filtered out by `where`, not convertible to a local date, and counted as activity.",
         (("source_rows", "rows in the activity table"),
          ("null_user_rows", "rows left out because the user key is NULL"),
          ("null_timestamp_rows", "rows with a user but a NULL timestamp, left out"),
          ("filtered_out_rows", "rows with user and timestamp that `where` does not keep"),
-         ("counted_rows", "rows counted as activity"))),
+         ("unconverted_rows", "kept rows whose local date came out NULL (on MySQL: a time "
+                              "zone missing from the server's time zone tables); left out"),
+         ("counted_rows", "rows counted as activity")),
+        enabled=lambda spec: spec.activity is not None),
     View(
         "user_activity",
         "One row per user and active period.",
@@ -51,7 +54,7 @@ VIEWS: tuple[View, ...] = (
          ("active_days", "distinct local dates with activity in the period"),
          ("first_active_date", "first local date with activity in the period"),
          ("last_active_date", "last local date with activity in the period")),
-        personal_data=True),
+        personal_data=True, enabled=lambda spec: spec.activity is not None),
     View(
         "user_states",
         "One row per user and period in which the user is new, retained, resurrected or churned.",
@@ -59,7 +62,8 @@ VIEWS: tuple[View, ...] = (
          ("period_key", "integer period index"),
          ("period_start", "first day of the period (DATE)"),
          ("state", "new, retained, resurrected or churned")),
-        depends=("user_activity",), personal_data=True),
+        depends=("user_activity",), personal_data=True,
+        enabled=lambda spec: spec.activity is not None),
     View(
         "growth_accounting",
         "One row per period from the first period with activity to the last, empty periods "
@@ -78,7 +82,160 @@ VIEWS: tuple[View, ...] = (
          ("period_status", "'in_progress' for a last period the data does not cover to its "
                            "end, else 'complete'"),
          ("period_key", "integer period index")),
-        depends=("user_states", "user_activity")),
+        depends=("user_states", "user_activity"), enabled=lambda spec: spec.activity is not None),
+    View(
+        "revenue_source_summary",
+        "One row counting the revenue table's rows: all, left out (NULL customer, date or "
+        "amount), filtered out by `where`, invalid, counted; and the dates they cover.",
+        (("source_rows", "rows in the revenue table"),
+         ("null_customer_rows", "rows left out because the customer key is NULL"),
+         ("null_date_rows", "rows with a customer but a NULL timestamp (charges) or start "
+                            "(subscriptions), left out"),
+         ("null_amount_rows", "rows with customer and date but a NULL amount, left out"),
+         ("filtered_out_rows", "rows with customer, date and amount that `where` does not keep"),
+         ("invalid_rows", "subscriptions kept by `where` but left out: an unknown interval or "
+                          "an end not after the start (always 0 for charges)"),
+         ("counted_rows", "rows counted"),
+         ("first_date", "earliest local date counted: a charge's date or a subscription's "
+                        "start (DATE)"),
+         ("last_date", "newest local date counted: a charge's date, or a subscription's start "
+                       "or end (DATE); periods run to the one holding it")),
+        enabled=lambda spec: spec.revenue is not None),
+    View(
+        "customer_revenue",
+        "One row per customer and period in which the customer has revenue, had revenue the "
+        "period before, or has a zero or negative total: the revenue, its state and the "
+        "amount each component contributes. Not revenue recognised under an accounting "
+        "standard.",
+        (("customer_id", "the customer key"),
+         ("period_key", "integer period index"),
+         ("period_start", "first day of the period (DATE)"),
+         ("revenue", "revenue counted in the period: the customer's period total when "
+                     "positive, else 0 (DECIMAL, the amount's scale)"),
+         ("previous_revenue", "revenue counted in the previous period"),
+         ("state", "new, expansion, contraction, retained-flat, resurrected or churned; "
+                   "no_revenue for a zero or negative total after a period without revenue"),
+         ("new_revenue", "revenue of a customer paying for the first time"),
+         ("expansion_revenue", "revenue - previous_revenue when both are positive and it grew"),
+         ("resurrected_revenue", "revenue of a customer paying again after a gap"),
+         ("contraction_revenue", "previous_revenue - revenue when both are positive and it "
+                                 "shrank"),
+         ("churned_revenue", "previous_revenue of a customer without revenue now"),
+         ("retained_revenue", "the part of previous_revenue kept: the smaller of the two"),
+         ("period_amount", "total of the customer's charges (or subscription shares) in the "
+                           "period before the zero/negative rule; NULL when it has none"),
+         ("counted_as_zero", "1 when period_amount is zero or negative and counts as no "
+                             "revenue, else 0")),
+        personal_data=True, enabled=lambda spec: spec.revenue is not None),
+    View(
+        "revenue_accounting",
+        "One row per period from the first period with revenue data to the last, empty "
+        "periods included: recurring revenue split into its components, with customer counts "
+        "and ratios. Not revenue recognised under an accounting standard: reconcile with "
+        "finance before reporting outside the company.",
+        (("period_start", "first day of the period (DATE)"),
+         ("revenue", "revenue counted in the period (DECIMAL, the amount's scale)"),
+         ("previous_revenue", "revenue counted in the previous period"),
+         ("new_revenue", "revenue of customers paying for the first time"),
+         ("expansion_revenue", "growth of customers paying more than in the previous period"),
+         ("resurrected_revenue", "revenue of customers paying again after a gap"),
+         ("contraction_revenue", "shrinkage of customers paying less than in the previous "
+                                 "period (still paying)"),
+         ("churned_revenue", "previous revenue of customers who stopped paying"),
+         ("retained_revenue", "the part of previous revenue kept: per customer the smaller of "
+                              "this and the previous period's revenue"),
+         ("customers", "customers with revenue in the period"),
+         ("previous_customers", "customers with revenue in the previous period"),
+         ("new_customers", "customers behind new_revenue"),
+         ("expansion_customers", "customers behind expansion_revenue"),
+         ("resurrected_customers", "customers behind resurrected_revenue"),
+         ("contraction_customers", "customers behind contraction_revenue"),
+         ("churned_customers", "customers behind churned_revenue"),
+         ("retained_customers", "customers with revenue in this and the previous period "
+                                "(expansion, contraction or flat)"),
+         ("flat_customers", "customers paying exactly what they paid in the previous period"),
+         ("quick_ratio", "(new + resurrected + expansion) / (churned + contraction); NULL "
+                         "when that is 0"),
+         ("gross_revenue_retention", "(previous - churned - contraction) / previous; NULL "
+                                     "without previous revenue"),
+         ("net_revenue_retention", "(previous - churned - contraction + expansion) / previous; "
+                                   "NULL without previous revenue"),
+         ("zeroed_customers", "customers whose period total is zero or negative, counted as "
+                              "no revenue"),
+         ("zeroed_amount", "the sum of those totals (zero or negative)"),
+         ("amount_total", "total of every customer's period total: revenue + zeroed_amount"),
+         ("period_status", "'in_progress' for a last period the data does not cover to its "
+                           "end, else 'complete'"),
+         ("period_key", "integer period index")),
+        depends=("customer_revenue", "revenue_source_summary"),
+        enabled=lambda spec: spec.revenue is not None),
+    View(
+        "cohort_retention",
+        "One row per cohort (users by first active period) and age, from age 0 to the last "
+        "period with data, zero rows included: a full triangle.",
+        (("cohort_start", "first day of the cohort's period (DATE): the users' first active "
+                          "period"),
+         ("age", "periods since the cohort period: 0, 1, 2, ..."),
+         ("period_start", "first day of the period the row counts (DATE)"),
+         ("cohort_users", "users whose first active period is the cohort period"),
+         ("active_users", "of those, users active in the period"),
+         ("retention_rate", "active_users / cohort_users (1.0 at age 0)"),
+         ("cohort_key", "integer period index of the cohort period"),
+         ("period_key", "integer period index of the period")),
+        depends=("user_activity",),
+        enabled=lambda spec: spec.cohorts and spec.activity is not None),
+    View(
+        "engagement_depth",
+        "One row per period and number of distinct active days a user can have in it (1 at "
+        "day grain, 1 to 7 weekly, up to 31 monthly, 92 quarterly, 366 yearly), zero rows and "
+        "empty periods included.",
+        (("period_start", "first day of the period (DATE)"),
+         ("active_days", "a number of distinct active days in the period"),
+         ("users", "users active on exactly that many days of the period"),
+         ("share_of_active_users", "users / period_active_users; NULL in an empty period"),
+         ("daily_to_period_ratio", "average daily active users over the observed days / "
+                                   "period_active_users; NULL in an empty period"),
+         ("period_active_users", "users active in the period"),
+         ("observed_days", "days of the period up to the newest activity date (the whole "
+                           "period except the last)"),
+         ("period_status", "'in_progress' for a last period the data does not cover to its "
+                           "end, else 'complete'"),
+         ("period_key", "integer period index")),
+        depends=("user_activity",),
+        enabled=lambda spec: spec.engagement and spec.activity is not None),
+    View(
+        "trailing_activity",
+        "One row per day, from the first to the last day with activity, and window length "
+        "from `trailing_windows`: users active in the window of N days ending that day, "
+        "accounted against the window of N days before it.",
+        (("day", "the window's last day (DATE)"),
+         ("window_days", "window length N in days"),
+         ("active_users", "users active on any of the N days ending on `day`"),
+         ("previous_active_users", "users active in the previous window (the N days before)"),
+         ("new_users", "active users whose first active day is in the window"),
+         ("retained_users", "users active in this window and the previous one"),
+         ("resurrected_users", "active users not active in the previous window but before it"),
+         ("churned_users", "users active in the previous window but not in this one"),
+         ("quick_ratio", "(new + resurrected) / churned; NULL when churned is 0"),
+         ("day_key", "integer day index (days since 1970-01-05)")),
+        enabled=lambda spec: bool(spec.trailing_windows) and spec.activity is not None),
+    View(
+        "revenue_cohorts",
+        "One row per cohort of customers (by first period with revenue) and age, from age 0 "
+        "to the last period of revenue data, zero rows included.",
+        (("cohort_start", "first day of the cohort's period (DATE): the customers' first "
+                          "period with revenue"),
+         ("age", "periods since the cohort period: 0, 1, 2, ..."),
+         ("period_start", "first day of the period the row counts (DATE)"),
+         ("cohort_customers", "customers whose first period with revenue is the cohort period"),
+         ("paying_customers", "of those, customers with revenue in the period"),
+         ("revenue", "the cohort's revenue in the period (DECIMAL, the amount's scale)"),
+         ("cumulative_revenue", "the cohort's revenue from age 0 to this age"),
+         ("net_revenue_retention", "revenue / the cohort's revenue at age 0 (1.0 at age 0)"),
+         ("cohort_key", "integer period index of the cohort period"),
+         ("period_key", "integer period index of the period")),
+        depends=("customer_revenue", "revenue_source_summary"),
+        enabled=lambda spec: spec.cohorts and spec.revenue is not None),
 )
 
 VIEWS_BY_NAME = {view.name: view for view in VIEWS}

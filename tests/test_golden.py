@@ -34,14 +34,40 @@ output:
   schema: growth
 """
 
+# Revenue: the subscriptions shape at every grain (revenue_<grain>), charges at month grain.
+REVENUE_SPEC = """\
+version: 1
+revenue:
+  shape: subscriptions
+  table: billing.subscriptions
+  customer: account_id
+  start: started_at
+  end: ended_at
+  amount: amount
+  interval_column: billing_interval
+  where: "currency = 'EUR'"
+grain: {grain}
+week_start: {week_start}
+output:
+  dialect: duckdb
+  schema: finance
+"""
+CHARGES_SPEC = REVENUE_SPEC.replace("  shape: subscriptions\n", "").replace(
+    "billing.subscriptions", "billing.invoice_lines").replace(
+    "  start: started_at\n  end: ended_at\n", "  timestamp: invoiced_at\n").replace(
+    "  interval_column: billing_interval\n", "")
+SPECS = {label: (SPEC, grain) for label, grain in GRAINS.items()}
+SPECS.update({f"revenue_{label}": (REVENUE_SPEC, grain) for label, grain in GRAINS.items()})
+SPECS["revenue_charges_month"] = (CHARGES_SPEC, GRAINS["month"])
+
 
 def generated(target: str, label: str) -> dict[str, str]:
-    grain, week_start = GRAINS[label]
-    spec = parse_spec(SPEC.format(grain=grain, week_start=week_start), "golden.yml")
+    text, (grain, week_start) = SPECS[label]
+    spec = parse_spec(text.format(grain=grain, week_start=week_start), "golden.yml")
     return render_files(spec, target)
 
 
-@pytest.mark.parametrize("label", GRAINS)
+@pytest.mark.parametrize("label", SPECS)
 @pytest.mark.parametrize("target", TARGETS)
 def test_golden(target, label, request):
     folder = GOLDEN / target / label
@@ -63,7 +89,7 @@ def test_golden(target, label, request):
 @pytest.mark.parametrize("target", TARGETS)
 def test_every_statement_reparses_in_its_dialect(target):
     dialect = TARGETS[target].sqlglot_dialect
-    for label in GRAINS:
+    for label in SPECS:
         for name, text in generated(target, label).items():
             for statement in sqlglot.parse(text, read=dialect):
                 assert statement is not None

@@ -20,7 +20,7 @@ from sqlgen import UnsupportedError
 from sqlgen.dialects import TARGETS
 from sqlgen.support import support
 
-PAIRS = engine_target_pairs()
+PAIRS = engine_target_pairs(every_target=True)
 GRAINS = [("day", "monday"), ("week", "monday"), ("week", "sunday"), ("month", "monday"),
           ("quarter", "monday"), ("year", "monday")]
 GROWTH_COLUMNS = ref.GROWTH_COLUMNS

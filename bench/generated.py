@@ -1,0 +1,92 @@
+"""sqlgen's own DuckDB views in the benchmark database, obtained through the library.
+
+Each grain gets its own schema (``bench_month``, ``bench_week``) so both can exist at once.
+Views that other work may not have added yet (cohorts, trailing windows, revenue) are looked
+up in ``sqlgen.views.VIEWS``; a missing one is reported, not guessed.
+"""
+
+from __future__ import annotations
+
+import textwrap
+
+from sqlgen import compile_spec, parse_spec
+from sqlgen.spec import KEYS_BY_PATH
+from sqlgen.views import VIEWS_BY_NAME
+
+OPTIONAL_VIEWS = ("cohort_retention", "trailing_activity", "revenue_accounting")
+TRAILING_DAYS = 28
+
+
+def available(name: str) -> bool:
+    """Whether sqlgen currently has a view of that name."""
+    return name in VIEWS_BY_NAME
+
+
+def spec_text(grain: str, schema: str | None = None) -> str:
+    """A spec over bench's ``events`` table, enabling every view this sqlgen knows."""
+    text = textwrap.dedent(f"""\
+        version: 1
+        activity:
+          table: events
+          user: user_id
+          timestamp: ts
+        grain: {grain}
+        """)
+    text += _optional_sections()
+    text += "output:\n  dialect: duckdb\n"
+    if schema:
+        text += f"  schema: {schema}\n"
+    return text
+
+
+def _optional_sections() -> str:
+    """Spec sections for optional views, written only when sqlgen knows their keys."""
+    parts = []
+    if "revenue.table" in KEYS_BY_PATH:
+        parts.append(textwrap.dedent("""\
+            revenue:
+              shape: charges
+              table: charges
+              customer: customer_id
+              timestamp: charged_at
+              amount: amount
+              scale: 2
+            """))
+    if "cohorts" in KEYS_BY_PATH:
+        parts.append("cohorts: true\n")
+    if "engagement" in KEYS_BY_PATH:
+        parts.append("engagement: true\n")
+    if "trailing_windows" in KEYS_BY_PATH:
+        parts.append(f"trailing_windows: [{TRAILING_DAYS}]\n")
+    return "".join(parts)
+
+
+def create_views(con, grain: str, schema: str) -> list[str]:
+    """Compile the spec for DuckDB and (re)create its views in ``schema``; return their names."""
+    spec = parse_spec(spec_text(grain, schema), f"bench_{grain}.yml")
+    con.execute(f"CREATE SCHEMA IF NOT EXISTS {schema}")
+    created = []
+    for compiled in compile_spec(spec, "duckdb"):
+        for statement in compiled.statements:
+            con.execute(statement)
+        created.append(compiled.view.name)
+    return created
+
+
+def growth_summary(schema: str) -> str:
+    """The summary columns of sqlgen's growth_accounting, as a query."""
+    return (f"SELECT period_start, active_users, new_users, retained_users, resurrected_users, "
+            f"churned_users FROM {schema}.growth_accounting")
+
+
+def full_scan(view: str) -> str:
+    """A query forcing every column of every row of a view, returning one small row."""
+    return f"SELECT count(*), sum(hash(COLUMNS(*))) FROM {view}"
+
+
+def trailing_query(source: str, qualified: bool = True) -> str:
+    """Trailing 28-day active users of a schema's trailing_activity (or of a subquery with
+    its columns, ``qualified=False``) as (day, trailing_users) rows."""
+    table = f"{source}.trailing_activity" if qualified else f"{source} AS t"
+    return (f"SELECT day, active_users AS trailing_users FROM {table} "
+            f"WHERE window_days = {TRAILING_DAYS}")

@@ -1,0 +1,139 @@
+-- trailing_activity (trailing_windows: [28]) with every column of sqlgen's view, from ONE
+-- grouping of the events by (user, block of B days) instead of by (user, day); B is the
+-- smallest window length (here 28). About as many groups as user-months instead of
+-- user-days, and the LAG/LEAD runs over those groups.
+-- Why it is exact: inside a block two consecutive active days of a user are less than
+-- B <= N days apart, so a user never lapses inside a block. For a block with first active
+-- day f, last active day l, and the user's next active day after it b (the next block's f,
+-- NULL when none), with window N:
+--   active   in windows ending [f, min(l+N, b))
+--   previous in windows ending [f+N, min(l+N, b)+N)        (active N days earlier)
+--   new      in windows ending [f, f+N) for the user's first block
+--   churned  in windows ending [l+N, min(l+2N, b)) when b > l+N or b is NULL
+-- the same boundaries as the template's per-day spans, with l and b in place of a day and
+-- the next day. retained = previous - churned; resurrected = active - new - retained.
+-- Portable as the templates are: integer day keys, (key + 700000) % B, LAG/LEAD, SUM OVER.
+WITH sqlgen_source AS (
+  SELECT "user_id" AS sqlgen_user, "ts" AS sqlgen_ts
+  FROM "events"
+  WHERE NOT "user_id" IS NULL AND NOT "ts" IS NULL
+), numbered AS (
+  SELECT sqlgen_user AS day_user,
+    DATE_DIFF('day', DATE '1970-01-05', CAST(sqlgen_ts AS DATE)) AS day_number
+  FROM sqlgen_source
+), blocked AS (
+  SELECT day_user, day_number, day_number - (day_number + 700000) % 28 AS block_number
+  FROM numbered
+), user_blocks AS (
+  SELECT day_user AS block_user, block_number, MIN(day_number) AS first_day,
+    MAX(day_number) AS last_day
+  FROM blocked
+  GROUP BY day_user, block_number
+), visits AS (
+  SELECT
+    first_day,
+    last_day,
+    LAG(block_number) OVER (PARTITION BY block_user ORDER BY block_number) AS prior_block,
+    LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number) AS next_day
+  FROM user_blocks
+), window_lengths AS (
+  SELECT 28 AS window_length
+), spans AS (
+  SELECT
+    w.window_length AS span_window,
+    v.first_day AS start_day,
+    v.last_day + w.window_length AS lapse_day,
+    CASE
+      WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length
+        THEN v.last_day + w.window_length
+      ELSE v.next_day
+    END AS end_day,
+    CASE
+      WHEN v.next_day IS NULL OR v.next_day > v.last_day + 2 * w.window_length
+        THEN v.last_day + 2 * w.window_length
+      ELSE v.next_day
+    END AS churn_end_day,
+    CASE WHEN v.prior_block IS NULL THEN 1 ELSE 0 END AS first_visit,
+    CASE WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length THEN 1 ELSE 0 END AS lapse
+  FROM visits AS v
+  CROSS JOIN window_lengths AS w
+), boundaries AS (
+  SELECT span_window AS change_window, start_day AS change_day, 1 AS active_delta,
+    0 AS previous_delta, first_visit AS new_delta, 0 AS churn_delta
+  FROM spans
+  UNION ALL
+  SELECT span_window, start_day + span_window, 0, 1, 0 - first_visit, 0
+  FROM spans
+  UNION ALL
+  SELECT span_window, end_day, -1, 0, 0, 0
+  FROM spans
+  UNION ALL
+  SELECT span_window, end_day + span_window, 0, -1, 0, 0
+  FROM spans
+  UNION ALL
+  SELECT span_window, lapse_day, 0, 0, 0, 1
+  FROM spans
+  WHERE lapse = 1
+  UNION ALL
+  SELECT span_window, churn_end_day, 0, 0, 0, -1
+  FROM spans
+  WHERE lapse = 1
+), changes AS (
+  SELECT
+    change_window,
+    change_day,
+    SUM(active_delta) AS active_change,
+    SUM(previous_delta) AS previous_change,
+    SUM(new_delta) AS new_change,
+    SUM(churn_delta) AS churn_change
+  FROM boundaries
+  GROUP BY change_window, change_day
+), data_range AS (
+  SELECT MIN(first_day) AS first_day, MAX(last_day) AS last_day
+  FROM user_blocks
+), digits AS (
+  SELECT 0 AS n UNION ALL SELECT 1 UNION ALL SELECT 2 UNION ALL SELECT 3 UNION ALL SELECT 4
+  UNION ALL SELECT 5 UNION ALL SELECT 6 UNION ALL SELECT 7 UNION ALL SELECT 8 UNION ALL SELECT 9
+), calendar AS (
+  SELECT r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
+    + digit_4.n * 10000 AS calendar_day
+  FROM data_range AS r
+  CROSS JOIN digits AS digit_0 CROSS JOIN digits AS digit_1 CROSS JOIN digits AS digit_2
+  CROSS JOIN digits AS digit_3 CROSS JOIN digits AS digit_4
+  WHERE r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
+    + digit_4.n * 10000 <= r.last_day
+), running AS (
+  SELECT
+    c.calendar_day AS grid_day,
+    w.window_length AS grid_window,
+    SUM(COALESCE(ch.active_change, 0)) OVER (PARTITION BY w.window_length ORDER BY c.calendar_day ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW) AS active_count,
+    SUM(COALESCE(ch.previous_change, 0)) OVER (PARTITION BY w.window_length ORDER BY c.calendar_day ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW) AS previous_count,
+    SUM(COALESCE(ch.new_change, 0)) OVER (PARTITION BY w.window_length ORDER BY c.calendar_day ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW) AS new_count,
+    SUM(COALESCE(ch.churn_change, 0)) OVER (PARTITION BY w.window_length ORDER BY c.calendar_day ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW) AS churned_count
+  FROM calendar AS c
+  CROSS JOIN window_lengths AS w
+  LEFT JOIN changes AS ch
+    ON ch.change_window = w.window_length AND ch.change_day = c.calendar_day
+), tallied AS (
+  SELECT
+    grid_day,
+    grid_window,
+    CAST(active_count AS BIGINT) AS active_tally,
+    CAST(previous_count AS BIGINT) AS previous_tally,
+    CAST(new_count AS BIGINT) AS new_tally,
+    CAST(previous_count - churned_count AS BIGINT) AS retained_tally,
+    CAST(churned_count AS BIGINT) AS churned_tally
+  FROM running
+)
+SELECT
+  CAST(DATE '1970-01-05' + INTERVAL (grid_day) DAY AS DATE) AS day,
+  grid_window AS window_days,
+  active_tally AS active_users,
+  previous_tally AS previous_active_users,
+  new_tally AS new_users,
+  retained_tally AS retained_users,
+  active_tally - new_tally - retained_tally AS resurrected_users,
+  churned_tally AS churned_users,
+  CAST(active_tally - retained_tally AS DOUBLE) / NULLIF(churned_tally, 0) AS quick_ratio,
+  grid_day AS day_key
+FROM tallied

@@ -1,0 +1,235 @@
+{#- Revenue helpers shared by revenue_source_summary, customer_revenue and revenue_accounting,
+written once in the source dialect (DuckDB). The context holds `revenue` (the spec's revenue
+source) besides `grain`.
+
+Money stays DECIMAL: sums and differences keep the amount's scale, money columns are written
+through money() (ROUND to the spec's scale, a no-op on a DECIMAL of that scale), and the one
+division money needs (a subscription's share of a month) is done on whole units of the scale
+with integer arithmetic, so every engine rounds it the same way.
+-#}
+
+{#- The local calendar date of a revenue timestamp (the same rule as for activity). -#}
+{%- macro local_date(ts) -%}
+{%- if revenue.timestamp_type == 'date' -%}
+CAST({{ ts }} AS DATE)
+{%- elif revenue.timestamp_type == 'timestamptz' -%}
+CAST({{ ts }} AT TIME ZONE {{ "'__revenue_timezone__'" if revenue.timezone else "'UTC'" }} AS DATE)
+{%- elif revenue.timezone -%}
+CAST(({{ ts }} AT TIME ZONE 'UTC') AT TIME ZONE '__revenue_timezone__' AS DATE)
+{%- else -%}
+CAST({{ ts }} AS DATE)
+{%- endif -%}
+{%- endmacro -%}
+
+{#- The first day of calendar month k (k = year * 12 + month - 1), whatever the grain. -#}
+{%- macro month_start(k) -%}
+CAST(DATE '1970-01-01' + INTERVAL ({{ k }} - 23640) MONTH AS DATE)
+{%- endmacro -%}
+
+{#- A money value at the amount's scale. -#}
+{%- macro money(x) -%}
+ROUND({{ x }}, {{ revenue.scale }})
+{%- endmacro -%}
+
+{#- One unit of the scale (0.01 for scale 2) as an exact DECIMAL. -#}
+{%- macro unit() -%}
+{%- if revenue.scale == 0 -%}
+CAST('1' AS DECIMAL(18, 0))
+{%- else -%}
+CAST('0.{{ '0' * (revenue.scale - 1) }}1' AS DECIMAL(18, {{ revenue.scale }}))
+{%- endif -%}
+{%- endmacro -%}
+
+{#- A floating-point ratio of two money or count values, NULL on a zero denominator. -#}
+{%- macro ratio(numerator, denominator) -%}
+CAST({{ numerator }} AS DOUBLE) / NULLIF(CAST({{ denominator }} AS DOUBLE), 0)
+{%- endmacro -%}
+
+{#- Months in a subscription's billing interval: fixed, or read from the interval column
+    (an unknown value gives NULL and the row is counted as invalid). -#}
+{%- macro interval_months() -%}
+{%- if revenue.interval_column -%}
+CASE LOWER(__revenue_interval__)
+  WHEN 'month' THEN 1 WHEN 'monthly' THEN 1
+  WHEN 'quarter' THEN 3 WHEN 'quarterly' THEN 3
+  WHEN 'year' THEN 12 WHEN 'yearly' THEN 12
+END
+{%- else -%}
+{{ {'month': 1, 'quarter': 3, 'year': 12}[revenue.interval] }}
+{%- endif -%}
+{%- endmacro -%}
+
+{#- CTEs sqlgen_source, sqlgen_dated and sqlgen_rows: every row of the revenue table with
+    its local date(s) and a row_status (null_customer, null_date, null_amount, filtered_out,
+    invalid or counted). The summary counts them; customer_revenue keeps the counted rows. -#}
+{%- macro source_rows() -%}
+sqlgen_source AS (
+  SELECT
+    __customer__ AS sqlgen_customer,
+    {{ '__revenue_timestamp__' if revenue.shape == 'charges' else '__revenue_start__' }} AS sqlgen_date_value,
+    __amount__ AS sqlgen_amount,
+    {% if revenue.where %}CASE WHEN (__revenue_where__) THEN 1 ELSE 0 END{% else %}1{% endif %} AS sqlgen_kept
+    {%- if revenue.shape == 'subscriptions' %},
+    {% if revenue.end %}__revenue_end__{% else %}CAST(NULL AS DATE){% endif %} AS sqlgen_end_value,
+    {{ interval_months() }} AS sqlgen_months
+    {%- endif %}
+  FROM __revenue_table__
+), sqlgen_dated AS (
+  SELECT
+    sqlgen_customer,
+    sqlgen_amount,
+    sqlgen_kept,
+    {{ local_date('sqlgen_date_value') }} AS row_date
+    {%- if revenue.shape == 'subscriptions' %},
+    {% if revenue.end %}{{ local_date('sqlgen_end_value') }}{% else %}sqlgen_end_value{% endif %} AS row_end,
+    sqlgen_months AS row_months
+    {%- endif %}
+  FROM sqlgen_source
+), sqlgen_rows AS (
+  SELECT
+    sqlgen_customer,
+    sqlgen_amount,
+    row_date,
+    {%- if revenue.shape == 'subscriptions' %}
+    row_end,
+    row_months,
+    {%- endif %}
+    CASE
+      WHEN sqlgen_customer IS NULL THEN 'null_customer'
+      WHEN row_date IS NULL THEN 'null_date'
+      WHEN sqlgen_amount IS NULL THEN 'null_amount'
+      WHEN sqlgen_kept = 0 THEN 'filtered_out'
+      {%- if revenue.shape == 'subscriptions' %}
+      WHEN row_months IS NULL THEN 'invalid'
+      WHEN row_end IS NOT NULL AND row_end <= row_date THEN 'invalid'
+      {%- endif %}
+      ELSE 'counted'
+    END AS row_status
+  FROM sqlgen_dated
+)
+{%- endmacro -%}
+
+{#- The newest date a counted row holds: a charge's date, a subscription's start or end. -#}
+{%- macro row_last_date() -%}
+{%- if revenue.shape == 'subscriptions' -%}
+CASE WHEN row_end IS NULL THEN row_date ELSE row_end END
+{%- else -%}
+row_date
+{%- endif -%}
+{%- endmacro -%}
+
+{#- CTEs ending in data_range(first_key, last_key) and totals(total_customer, total_key,
+    total_amount): each customer's total in each period, before the zero/negative rule.
+    `counted` must hold the counted rows (counted_customer, counted_date, counted_amount,
+    and for subscriptions counted_end, counted_months). -#}
+{%- macro period_totals(p) -%}
+bounds AS (
+  SELECT
+    MIN(counted_date) AS first_date,
+    MAX({{ 'CASE WHEN counted_end IS NULL THEN counted_date ELSE counted_end END' if revenue.shape == 'subscriptions' else 'counted_date' }}) AS last_date
+  FROM counted
+), data_range AS (
+  SELECT {{ p.period_key('first_date') }} AS first_key, {{ p.period_key('last_date') }} AS last_key
+  FROM bounds
+), {% if revenue.shape == 'charges' -%}
+keyed AS (
+  SELECT counted_customer AS keyed_customer, {{ p.period_key('counted_date') }} AS keyed_key, counted_amount AS keyed_amount
+  FROM counted
+), totals AS (
+  SELECT keyed_customer AS total_customer, keyed_key AS total_key, {{ money('SUM(keyed_amount)') }} AS total_amount
+  FROM keyed
+  GROUP BY keyed_customer, keyed_key
+)
+{%- else -%}
+{{ subscription_totals(p) }}
+{%- endif -%}
+{%- endmacro -%}
+
+{#- Subscriptions, month, quarter and year grains: a subscription earns amount / (months in
+    its interval) in each calendar month it covers in full, and covered days / days in the
+    month of that in a month it covers in part. Day and week grains: it earns
+    amount * 12 / (months in its interval) / 365 for each day it covers (a constant daily
+    rate, so a flat plan stays flat). A share is one subscription's days in one segment (a
+    calendar month, or a day or week); it is computed in whole units of the scale with
+    integer arithmetic, rounded half away from zero, and the shares are summed. -#}
+{%- macro subscription_totals(p) -%}
+spans AS (
+  SELECT
+    counted_customer AS span_customer,
+    counted_date AS span_start,
+    counted_end AS span_end,
+    CAST(ROUND(counted_amount * {{ 10 ** revenue.scale }}, 0) AS BIGINT) AS span_units,
+    counted_months AS span_months
+  FROM counted
+), {{ p.digits_cte() }}, {{ segments(p) }}, pieces AS (
+  SELECT
+    s.span_customer AS piece_customer,
+    g.segment_key AS piece_key,
+    s.span_units AS piece_units,
+    ABS(s.span_units){% if grain.family == 'day' %} * 12{% endif %} * DATE_DIFF('day',
+      CASE WHEN s.span_start > g.segment_start THEN s.span_start ELSE g.segment_start END,
+      CASE WHEN s.span_end IS NOT NULL AND s.span_end < g.segment_end THEN s.span_end ELSE g.segment_end END
+    ) AS piece_numerator,
+    s.span_months * g.segment_days AS piece_denominator
+  FROM spans AS s
+  CROSS JOIN segments AS g
+  WHERE s.span_start < g.segment_end
+    AND (s.span_end IS NULL OR s.span_end > g.segment_start)
+), shares AS (
+  SELECT
+    piece_customer AS share_customer,
+    piece_key AS share_key,
+    CASE WHEN piece_units < 0 THEN -1 ELSE 1 END * CAST(
+      ((2 * piece_numerator + piece_denominator) - (2 * piece_numerator + piece_denominator) % (2 * piece_denominator))
+      / (2 * piece_denominator) AS BIGINT) AS share_units
+  FROM pieces
+), totals AS (
+  SELECT
+    share_customer AS total_customer,
+    share_key AS total_key,
+    {{ money('CAST(SUM(share_units) AS BIGINT) * ' ~ unit()) }} AS total_amount
+  FROM shares
+  GROUP BY share_customer, share_key
+)
+{%- endmacro -%}
+
+{#- segments(segment_key, segment_start, segment_end, segment_days): what a share is taken
+    of, end exclusive, from the first period to the last. Month-family grains: each calendar
+    month, with its number of days. Day and week grains: each period, against a 365-day year. -#}
+{%- macro segments(p) -%}
+{%- if grain.family == 'month' -%}
+months AS (
+  SELECT d.first_key + {{ p.counting_value(4) }} AS segment_month
+  FROM data_range AS d
+  CROSS JOIN {{ p.counting(4) }}
+  WHERE d.first_key + {{ p.counting_value(4) }} <= d.last_key{% if grain.step > 1 %} + {{ grain.step - 1 }}{% endif %}
+), month_edges AS (
+  SELECT
+    {% if grain.step == 1 %}segment_month{% else %}segment_month - (segment_month % 12) % {{ grain.step }}{% endif %} AS edge_key,
+    {{ month_start('segment_month') }} AS edge_start,
+    {{ month_start('segment_month + 1') }} AS edge_end
+  FROM months
+), segments AS (
+  SELECT
+    edge_key AS segment_key,
+    edge_start AS segment_start,
+    edge_end AS segment_end,
+    DATE_DIFF('day', edge_start, edge_end) AS segment_days
+  FROM month_edges
+)
+{%- else -%}
+periods AS (
+  SELECT d.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) AS calendar_key
+  FROM data_range AS d
+  CROSS JOIN {{ p.counting(grain.calendar_digits) }}
+  WHERE d.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) <= d.last_key
+), segments AS (
+  SELECT
+    calendar_key AS segment_key,
+    {{ p.period_start('calendar_key') }} AS segment_start,
+    {{ p.period_start('calendar_key + ' ~ grain.step) }} AS segment_end,
+    365 AS segment_days
+  FROM periods
+)
+{%- endif -%}
+{%- endmacro -%}

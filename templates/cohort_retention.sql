@@ -1,0 +1,47 @@
+{%- import '_periods.sql' as p with context -%}
+{#- Cohort = a user's first active period; one row per cohort and age (periods since the
+    cohort period) up to the last period with data, zero rows included: a full triangle. -#}
+WITH marked AS (
+  SELECT
+    period_key AS marked_key,
+    MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
+  FROM {{ ref('user_activity') }}
+), cohort_actives AS (
+  SELECT marked_cohort_key AS active_cohort_key, marked_key AS active_key, COUNT(*) AS active_count
+  FROM marked
+  GROUP BY marked_cohort_key, marked_key
+), cohort_sizes AS (
+  SELECT active_cohort_key AS size_key, active_count AS size_count
+  FROM cohort_actives
+  WHERE active_key = active_cohort_key
+), data_range AS (
+  SELECT MIN(period_key) AS first_data_key, MAX(period_key) AS last_data_key
+  FROM {{ ref('user_activity') }}
+), {{ p.digits_cte() }}, ages AS (
+  SELECT {{ p.counting_value(grain.calendar_digits) }} AS age_number
+  FROM data_range AS r
+  CROSS JOIN {{ p.counting(grain.calendar_digits) }}
+  WHERE r.first_data_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) <= r.last_data_key
+), triangle AS (
+  SELECT
+    s.size_key AS cell_cohort_key,
+    g.age_number AS cell_age,
+    s.size_key + {{ grain.step }} * g.age_number AS cell_key,
+    s.size_count AS cell_size
+  FROM cohort_sizes AS s
+  CROSS JOIN ages AS g
+  CROSS JOIN data_range AS r
+  WHERE s.size_key + {{ grain.step }} * g.age_number <= r.last_data_key
+)
+SELECT
+  {{ p.period_start('t.cell_cohort_key') }} AS cohort_start,
+  t.cell_age AS age,
+  {{ p.period_start('t.cell_key') }} AS period_start,
+  t.cell_size AS cohort_users,
+  COALESCE(c.active_count, 0) AS active_users,
+  CAST(COALESCE(c.active_count, 0) AS DOUBLE) / NULLIF(t.cell_size, 0) AS retention_rate,
+  t.cell_cohort_key AS cohort_key,
+  t.cell_key AS period_key
+FROM triangle AS t
+LEFT JOIN cohort_actives AS c
+  ON c.active_cohort_key = t.cell_cohort_key AND c.active_key = t.cell_key

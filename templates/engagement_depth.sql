@@ -1,0 +1,68 @@
+{%- import '_periods.sql' as p with context -%}
+{#- Per period, how many users were active on exactly 1, 2, ... distinct days of it: one
+    row for every day count the period can hold (1 at day grain, 1..7 weekly, 28..31
+    monthly, up to 92 quarterly and 366 yearly), zero rows and empty periods included. -#}
+{%- set longest = {'day': 1, 'week': 7, 'month': 31, 'quarter': 92, 'year': 366}[grain.name] -%}
+WITH depth_counts AS (
+  SELECT period_key AS depth_key, active_days AS depth_days, COUNT(*) AS depth_users
+  FROM {{ ref('user_activity') }}
+  GROUP BY period_key, active_days
+), period_totals AS (
+  SELECT period_key AS total_key, COUNT(*) AS total_users, SUM(active_days) AS total_user_days
+  FROM {{ ref('user_activity') }}
+  GROUP BY period_key
+), data_range AS (
+  SELECT MIN(period_key) AS first_key, MAX(period_key) AS last_key,
+    MAX(last_active_date) AS data_through
+  FROM {{ ref('user_activity') }}
+), {{ p.digits_cte() }}, calendar AS (
+  SELECT
+    r.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) AS calendar_key,
+    r.last_key AS final_key,
+    r.data_through AS through_date
+  FROM data_range AS r
+  CROSS JOIN {{ p.counting(grain.calendar_digits) }}
+  WHERE r.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) <= r.last_key
+), spans AS (
+  SELECT
+    calendar_key AS span_key,
+{%- if grain.family == 'day' %}
+    {{ grain.step }} AS span_days,
+{%- else %}
+    DATE_DIFF('day', {{ p.period_start('calendar_key') }}, {{ p.period_start('calendar_key + ' ~ grain.step) }}) AS span_days,
+{%- endif %}
+    CASE
+      WHEN calendar_key = final_key THEN DATE_DIFF('day', {{ p.period_start('calendar_key') }}, through_date) + 1
+{%- if grain.family == 'day' %}
+      ELSE {{ grain.step }}
+{%- else %}
+      ELSE DATE_DIFF('day', {{ p.period_start('calendar_key') }}, {{ p.period_start('calendar_key + ' ~ grain.step) }})
+{%- endif %}
+    END AS seen_days
+  FROM calendar
+), day_counts AS (
+  SELECT {{ p.counting_value(3) }} + 1 AS day_count
+  FROM {{ p.counting(3) }}
+  WHERE {{ p.counting_value(3) }} < {{ longest }}
+), cells AS (
+  SELECT s.span_key AS cell_key, d.day_count AS cell_days, s.span_days AS cell_span,
+    s.seen_days AS cell_seen
+  FROM spans AS s
+  CROSS JOIN day_counts AS d
+  WHERE d.day_count <= s.span_days
+)
+SELECT
+  {{ p.period_start('c.cell_key') }} AS period_start,
+  c.cell_days AS active_days,
+  COALESCE(d.depth_users, 0) AS users,
+  CAST(COALESCE(d.depth_users, 0) AS DOUBLE) / NULLIF(COALESCE(t.total_users, 0), 0) AS share_of_active_users,
+  CAST(COALESCE(t.total_user_days, 0) AS DOUBLE) / NULLIF(c.cell_seen * COALESCE(t.total_users, 0), 0) AS daily_to_period_ratio,
+  COALESCE(t.total_users, 0) AS period_active_users,
+  c.cell_seen AS observed_days,
+  CASE WHEN c.cell_seen < c.cell_span THEN 'in_progress' ELSE 'complete' END AS period_status,
+  c.cell_key AS period_key
+FROM cells AS c
+LEFT JOIN depth_counts AS d
+  ON d.depth_key = c.cell_key AND d.depth_days = c.cell_days
+LEFT JOIN period_totals AS t
+  ON t.total_key = c.cell_key

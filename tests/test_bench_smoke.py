@@ -1,0 +1,68 @@
+"""The benchmark at its smoke size: it runs, and every implementation agrees.
+
+Never a timing assertion: the machine is shared and noisy; bench/README.md has the figures.
+Deselect with ``-m "not slow"``.
+"""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+BENCH = Path(__file__).resolve().parent.parent / "bench"
+
+pytestmark = pytest.mark.slow
+
+
+@pytest.fixture(scope="module")
+def smoke(tmp_path_factory):
+    """One smoke run: seeded data, agreement check, one timed round, the report."""
+    work = tmp_path_factory.mktemp("bench")
+    done = subprocess.run(
+        [sys.executable, str(BENCH / "run.py"), "--size", "smoke", "--reps", "1",
+         "--warmup", "0", "--no-tool", "--no-memory", "--data-dir", str(work / "data"),
+         "--results", str(work / "results")],
+        capture_output=True, text=True, timeout=300, check=False)
+    assert done.returncode == 0, done.stdout[-2000:] + done.stderr[-4000:]
+    results = json.loads((work / "results" / "smoke.json").read_text())
+    return work, done.stdout, results
+
+
+def test_every_implementation_agrees(smoke):
+    _work, log, results = smoke
+    # 24 months, 105 ISO weeks and 730 days of invented activity (2023-2024).
+    assert results["agreement"]["month"] == 24
+    assert results["agreement"]["week"] == 105
+    assert results["agreement"]["trailing28"] == 730
+    names = [case["name"] for case in results["cases"]]
+    for expected in ("floor: distinct (user, month)", "sqlgen growth_accounting, month",
+                     "hand-written self-join SQL, month", "hand-written LAG/LEAD SQL, month",
+                     "pandas, month", "polars, month", "sqlgen growth_accounting, week",
+                     "naive per-day window join, 28 days"):
+        assert expected in names
+    assert "identical: every column of bench_month.growth_accounting" in log
+    assert "identical: every column of bench_week.growth_accounting" in log
+
+
+def test_report_lists_every_case(smoke):
+    work, _log, results = smoke
+    page = (work / "results" / "smoke.md").read_text()
+    assert f"{results['dataset']['events']:,} events" in page
+    for case in results["cases"]:
+        assert len(case["times"]) == 1
+        assert f"| {case['name']} |" in page
+
+
+def test_memory_probes_report_a_peak(smoke):
+    work, _log, _results = smoke
+    db = work / "data" / "activity_smoke.duckdb"
+    floor = "SELECT count(*) FROM (SELECT DISTINCT user_id, date_trunc('month', ts) FROM events)"
+    for args in (["duckdb", floor], ["polars"]):
+        done = subprocess.run([sys.executable, str(BENCH / "probe.py"), str(db), *args],
+                              capture_output=True, text=True, timeout=120, check=True)
+        found = json.loads(done.stdout)
+        assert found["peak_rss_mb"] >= found["baseline_rss_mb"] > 0
