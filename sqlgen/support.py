@@ -12,7 +12,7 @@ from .spec import Spec
 from .views import VIEWS
 
 OPTIONS = ("grain: week", "activity.timezone", "timestamp_type: timestamptz", "activity.where",
-           "revenue.timezone", "revenue.where", "shape: subscriptions")
+           "revenue.timezone", "revenue.where", "shape: subscriptions", "qualified names")
 FEATURES: tuple[str, ...] = tuple(v.name for v in VIEWS) + OPTIONS
 # A revenue option needs what the activity option of the same kind needs, unless a target
 # lists it separately.
@@ -25,7 +25,8 @@ def support(target: Target, feature: str) -> tuple[str, str]:
               or target.unsupported.get(SAME_AS.get(feature, ""), ""))
     if reason:
         return "unsupported", reason
-    return ("executed" if target.engine else "checked"), ""
+    executed = target.engine and (target.executed is None or feature in target.executed)
+    return ("executed" if executed else "checked"), ""
 
 
 def features_used(spec: Spec) -> list[tuple[str, str]]:
@@ -40,6 +41,11 @@ def features_used(spec: Spec) -> list[tuple[str, str]]:
         used.append(("timestamp_type: timestamptz", "activity.timestamp_type"))
     if activity is not None and activity.where:
         used.append(("activity.where", "activity.where"))
+    if spec.output.schema:
+        used.append(("qualified names", "output.schema"))
+    for key, source in (("activity.table", activity), ("revenue.table", spec.revenue)):
+        if source is not None and len(source.table) > 1:
+            used.append(("qualified names", key))
     return used + _revenue_features(spec)
 
 

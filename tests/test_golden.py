@@ -61,8 +61,17 @@ SPECS.update({f"revenue_{label}": (REVENUE_SPEC, grain) for label, grain in GRAI
 SPECS["revenue_charges_month"] = (CHARGES_SPEC, GRAINS["month"])
 
 
+def flatten(text: str) -> str:
+    """SQLite views cannot read other attached databases: one database, no schema."""
+    for qualified in ("raw.", "billing."):
+        text = text.replace(f"  table: {qualified}", "  table: ")
+    return "\n".join(line for line in text.splitlines() if not line.startswith("  schema:"))
+
+
 def generated(target: str, label: str) -> dict[str, str]:
     text, (grain, week_start) = SPECS[label]
+    if target == "sqlite":
+        text = flatten(text)
     spec = parse_spec(text.format(grain=grain, week_start=week_start), "golden.yml")
     return render_files(spec, target)
 
