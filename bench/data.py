@@ -146,6 +146,7 @@ def generate(size: Size, data_dir: Path, log=print) -> Path:
         if leftover.exists():
             leftover.unlink()
     con = duckdb.connect(str(partial))
+    con.execute("SET enable_progress_bar = false")
     for label, sql in (("users", users_sql(size)), ("user_months", USER_MONTHS_SQL),
                        ("events", EVENTS_SQL), ("charges", CHARGES_SQL)):
         log(f"generating {label} ...")

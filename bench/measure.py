@@ -79,7 +79,7 @@ def check_identical(con, query: str, view: str, key: str = "period_key") -> None
 
 
 def time_cases(cases: list[Case], con, frames: dict, reps: int, warmup: int,
-               log=print) -> None:
+               log=print, after_round=None) -> None:
     """Warm up each case, then run rounds over all cases, rotating the order each round."""
     for _ in range(warmup):
         for case in cases:
@@ -91,6 +91,8 @@ def time_cases(cases: list[Case], con, frames: dict, reps: int, warmup: int,
             _run(case, con, frames)
             case.times.append(time.perf_counter() - start)
         log(f"  round {rep + 1}/{reps} done")
+        if after_round is not None:
+            after_round()
 
 
 def probe_memory(case: Case, db: Path) -> None:

@@ -86,7 +86,8 @@ def markdown(size, stats, cases, agreed, identical, notes, tool_result, args) ->
              f"{stats['user_months']:,} user-months, {stats['user_weeks']:,} user-weeks, "
              f"{stats['user_days']:,} user-days; {stats['charges']:,} charges.", "",
              "Versions: " + ", ".join(f"{k} {val}" for k, val in v.items()) + ".", "",
-             f"Median of {args.reps} interleaved rounds after {args.warmup} warm-up round(s); "
+             f"Median of {len(floor.times)} interleaved rounds after {args.warmup} warm-up "
+             "round(s) (and the agreement pass, which ran every case once); "
              "ratio = median / median of the monthly floor in the same run. Peak RSS: "
              "high-water mark of a fresh process per implementation while it answers, "
              "data already loaded (see bench/README.md).", "",

@@ -38,6 +38,8 @@ def _parser() -> argparse.ArgumentParser:
     parser.add_argument("--results", type=Path, default=HERE / "results")
     parser.add_argument("--no-tool", action="store_true", help="skip timing the sqlgen CLI")
     parser.add_argument("--no-memory", action="store_true", help="skip the memory probes")
+    parser.add_argument("--skip", action="append", default=[], metavar="TEXT",
+                        help="leave out the cases whose name contains TEXT (repeatable)")
     parser.add_argument("--only-tool", action="store_true",
                         help="time only the sqlgen CLI; write results/tool.md")
     return parser
@@ -175,6 +177,31 @@ def _only_tool(args: argparse.Namespace) -> int:
     return 0
 
 
+def _check_prototypes(con, created: dict) -> list[str]:
+    """Each prototype must equal its view in every column of every row; return the pairs."""
+    identical = []
+    checks = [("month", "growth_accounting", "growth_accounting_month", "period_key"),
+              ("week", "growth_accounting", "growth_accounting_week", "period_key"),
+              ("month", "trailing_activity", "trailing_activity_blocks", "day_key"),
+              ("month", "cohort_retention", "cohort_retention_month", "cohort_key, period_key")]
+    for grain, view, name, key in checks:
+        if view in created.get(grain, []):
+            measure.check_identical(con, prototype(name), f"bench_{grain}.{view}", key)
+            identical.append(f"bench_{grain}.{view} = prototypes/{name}.sql")
+            _log(f"  identical: every column of bench_{grain}.{view} and {name}.sql")
+    return identical
+
+
+def _skip(cases: list, created: dict, patterns: list[str], notes: list[str]) -> list:
+    kept = [c for c in cases if not any(p in c.name for p in patterns)]
+    for case in cases:
+        if case not in kept:
+            notes.append(f"{case.name}: left out of this run (--skip)")
+    if not any("week" in c.name for c in kept):
+        created.pop("week", None)  # no weekly case left: no weekly identity check either
+    return kept
+
+
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     if args.only_tool:
@@ -188,42 +215,44 @@ def main(argv: list[str] | None = None) -> int:
     stats = data.describe(con)
     _log(f"dataset: {json.dumps(stats)}")
     cases, skipped = build_cases(created, stats)
+    cases = _skip(cases, created, args.skip, skipped)
     notes += skipped
     frames = load_frames(db, cases)
     _log("checking that implementations agree")
     agreed = measure.check_agreement(cases, con, frames, log=_log)
-    identical = []
-    for grain, view in (("month", "bench_month.growth_accounting"),
-                        ("week", "bench_week.growth_accounting")):
-        if "growth_accounting" in created.get(grain, []):
-            measure.check_identical(con, prototype(f"growth_accounting_{grain}"), view)
-            _log(f"  identical: every column of {view} and its one-pass prototype")
-            identical.append(f"{view} = prototypes/growth_accounting_{grain}.sql")
-    for view, name, key in (("trailing_activity", "trailing_activity_blocks", "day_key"),
-                            ("cohort_retention", "cohort_retention_month",
-                             "cohort_key, period_key")):
-        if view in created.get("month", []):
-            measure.check_identical(con, prototype(name), f"bench_month.{view}", key)
-            _log(f"  identical: every column of bench_month.{view} and its prototype")
-            identical.append(f"bench_month.{view} = prototypes/{name}.sql")
+    identical = _check_prototypes(con, created)
+
+    def write(tool_result=None, final=False) -> Path:
+        return _write(args, size.name, stats, cases, agreed, identical, notes, tool_result,
+                      final)
+
     _log(f"timing {len(cases)} cases, {args.warmup} warm-up + {args.reps} rounds")
-    measure.time_cases(cases, con, frames, args.reps, args.warmup, log=_log)
+    measure.time_cases(cases, con, frames, args.reps, args.warmup, log=_log,
+                       after_round=write)
     con.close()
     del frames
     if not args.no_memory:
         for case in cases:
             _log(f"memory: {case.name}")
             measure.probe_memory(case, db)
-    tool_result = None if args.no_tool else tool.measure_tool(max(args.reps, 5))
-    args.results.mkdir(parents=True, exist_ok=True)
-    out = args.results / f"{size.name}.md"
-    out.write_text(report.markdown(size.name, stats, cases, agreed, identical, notes,
-                                   tool_result, args))
-    (args.results / f"{size.name}.json").write_text(
-        report.as_json(size.name, stats, cases, agreed, identical, notes, tool_result))
+    out = write(None if args.no_tool else tool.measure_tool(max(args.reps, 5)), final=True)
     _log(f"wrote {out}")
     print(out.read_text())
     return 0
+
+
+def _write(args, size, stats, cases, agreed, identical, notes, tool_result, final) -> Path:
+    """Write the page and the JSON; before the end, marked as partial (after each round)."""
+    args.results.mkdir(parents=True, exist_ok=True)
+    out = args.results / f"{size}.md"
+    page = report.markdown(size, stats, cases, agreed, identical, notes, tool_result, args)
+    if not final:
+        page = ("**Partial: the run is still going (or was stopped); memory and CLI not yet "
+                "measured.**\n\n" + page)
+    out.write_text(page)
+    (args.results / f"{size}.json").write_text(
+        report.as_json(size, stats, cases, agreed, identical, notes, tool_result))
+    return out
 
 
 if __name__ == "__main__":

@@ -3,6 +3,7 @@
     row for every day count the period can hold (1 at day grain, 1..7 weekly, 28..31
     monthly, up to 92 quarterly and 366 yearly), zero rows and empty periods included. -#}
 {%- set longest = {'day': 1, 'week': 7, 'month': 31, 'quarter': 92, 'year': 366}[grain.name] -%}
+{%- set places = longest | string | length -%}
 WITH depth_counts AS (
   SELECT period_key AS depth_key, active_days AS depth_days, COUNT(*) AS depth_users
   FROM {{ ref('user_activity') }}
@@ -40,16 +41,23 @@ WITH depth_counts AS (
 {%- endif %}
     END AS seen_days
   FROM calendar
+{%- if longest > 1 %}
 ), day_counts AS (
-  SELECT {{ p.counting_value(3) }} + 1 AS day_count
-  FROM {{ p.counting(3) }}
-  WHERE {{ p.counting_value(3) }} < {{ longest }}
+  SELECT {{ p.counting_value(places) }} + 1 AS day_count
+  FROM {{ p.counting(places) }}
+  WHERE {{ p.counting_value(places) }} < {{ longest }}
+{%- endif %}
 ), cells AS (
+{%- if longest == 1 %}
+  SELECT span_key AS cell_key, 1 AS cell_days, span_days AS cell_span, seen_days AS cell_seen
+  FROM spans
+{%- else %}
   SELECT s.span_key AS cell_key, d.day_count AS cell_days, s.span_days AS cell_span,
     s.seen_days AS cell_seen
   FROM spans AS s
   CROSS JOIN day_counts AS d
   WHERE d.day_count <= s.span_days
+{%- endif %}
 )
 SELECT
   {{ p.period_start('c.cell_key') }} AS period_start,

@@ -20,6 +20,12 @@ ENGINE_TARGETS = {"duckdb": ("duckdb",), "postgres": ("postgres",), "sqlite": ("
                   "spark": ("spark", "databricks")}
 
 
+# Hypothesis examples per engine for the property tests: each example loads a table and
+# creates views, so the slow engines get fewer (every example is still compared row by row).
+HYPOTHESIS_EXAMPLES = {"duckdb": 30, "sqlite": 15, "postgres": 15, "clickhouse": 10,
+                       "mysql": 8, "spark": 3}
+
+
 def selected_engines() -> list[str]:
     """Engines to run: SQLGEN_ENGINES=duckdb,postgres narrows the set; default all."""
     wanted = os.environ.get("SQLGEN_ENGINES", "")

@@ -33,8 +33,15 @@ from datetime import date, datetime, timedelta
 from decimal import ROUND_HALF_UP, Decimal
 from pathlib import Path
 
-from reference import (GRAIN_LABELS, csv_text, local_date, next_period_start, period_end,
-                       period_start, previous_period_start)
+from reference import (
+    GRAIN_LABELS,
+    csv_text,
+    local_date,
+    next_period_start,
+    period_end,
+    period_start,
+    previous_period_start,
+)
 
 MONEY = ("revenue", "previous_revenue", "new_revenue", "expansion_revenue",
          "resurrected_revenue", "contraction_revenue", "churned_revenue", "retained_revenue")

@@ -1,5 +1,6 @@
-"""cohort_retention on every engine against tests/reference_cohorts.py, its consistency with
-growth accounting, and two external checks (the CDNOW log and a published worked example)."""
+"""cohort_retention and revenue_cohorts on every engine against tests/reference_cohorts.py,
+their consistency with growth accounting, and external checks (the CDNOW log and a published
+worked example)."""
 
 from __future__ import annotations
 
@@ -8,16 +9,15 @@ from collections import Counter, defaultdict
 from decimal import Decimal
 
 import pytest
-from hypothesis import given, settings
-from hypothesis import strategies as st
-
 import reference as ref
 import reference_cohorts as rc
 import reference_revenue as rr
 import strategies
 from cdnow import load_cdnow
-from conftest import engine_target_pairs
+from conftest import HYPOTHESIS_EXAMPLES, engine_target_pairs
 from harness import assert_rows_match, run, run_revenue, sorted_rows, view_options
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 PAIRS = engine_target_pairs()
 D = Decimal
@@ -25,8 +25,7 @@ GRAINS = [("day", "monday"), ("week", "monday"), ("week", "sunday"), ("month", "
           ("quarter", "monday"), ("year", "monday")]
 VIEWS = ("cohort_retention", "growth_accounting", "user_states", "user_activity")
 KEYS = ("cohort_start", "age")
-EXAMPLES = {"duckdb": 30, "sqlite": 20, "postgres": 20, "clickhouse": 15, "mysql": 15,
-            "spark": 5}
+EXAMPLES = HYPOTHESIS_EXAMPLES
 
 
 def run_cohorts(engine, target, events, **spec_args) -> dict[str, list[dict]]:
@@ -213,10 +212,12 @@ def assert_revenue_cohorts_consistent(cells: list[dict]) -> None:
 
 # Hand example (docs/cohorts.md): acme pays 10, 12, 8 in January to March 2024; bolt pays
 # 5 in February and April; cato is refunded 3 in January (no revenue) and pays 7 in March.
-SEAT_CHARGES = [("acme", dt.date(2024, 1, 3), D("10.00")), ("acme", dt.date(2024, 2, 3), D("12.00")),
-                ("acme", dt.date(2024, 3, 3), D("8.00")), ("bolt", dt.date(2024, 2, 9), D("5.00")),
-                ("bolt", dt.date(2024, 4, 9), D("5.00")), ("cato", dt.date(2024, 1, 20), D("-3.00")),
-                ("cato", dt.date(2024, 3, 20), D("7.00"))]
+SEAT_CHARGES = [
+    ("acme", dt.date(2024, 1, 3), D("10.00")), ("acme", dt.date(2024, 2, 3), D("12.00")),
+    ("acme", dt.date(2024, 3, 3), D("8.00")), ("bolt", dt.date(2024, 2, 9), D("5.00")),
+    ("bolt", dt.date(2024, 4, 9), D("5.00")), ("cato", dt.date(2024, 1, 20), D("-3.00")),
+    ("cato", dt.date(2024, 3, 20), D("7.00")),
+]
 SEAT_TABLE = {  # (cohort month, age): (customers, paying, revenue, cumulative, retention)
     (1, 0): (1, 1, "10.00", "10.00", 1.0), (1, 1): (1, 1, "12.00", "22.00", 1.2),
     (1, 2): (1, 1, "8.00", "30.00", 0.8), (1, 3): (1, 0, "0.00", "30.00", 0.0),

@@ -8,22 +8,20 @@ import math
 from collections import defaultdict
 
 import pytest
-from hypothesis import given, settings
-
 import reference as ref
 import reference_cohorts as rc
 import strategies
 from cdnow import load_cdnow
-from conftest import engine_target_pairs
+from conftest import HYPOTHESIS_EXAMPLES, engine_target_pairs
 from harness import assert_rows_match, run, sorted_rows, view_options
+from hypothesis import given, settings
 
 PAIRS = engine_target_pairs()
 GRAINS = [("day", "monday"), ("week", "monday"), ("week", "sunday"), ("month", "monday"),
           ("quarter", "monday"), ("year", "monday")]
 VIEWS = ("engagement_depth", "growth_accounting")
 KEYS = ("period_start", "active_days")
-EXAMPLES = {"duckdb": 30, "sqlite": 20, "postgres": 20, "clickhouse": 15, "mysql": 15,
-            "spark": 5}
+EXAMPLES = HYPOTHESIS_EXAMPLES
 
 
 def run_engagement(engine, target, events, **spec_args) -> dict[str, list[dict]]:

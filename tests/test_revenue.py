@@ -14,18 +14,18 @@ import math
 from decimal import Decimal
 
 import pytest
-from hypothesis import given, settings
-from hypothesis import strategies as st
-
 import reference_revenue as rr
 from cdnow import load_cdnow
-from conftest import engine_target_pairs
+from conftest import HYPOTHESIS_EXAMPLES, engine_target_pairs
 from harness import REVENUE_VIEWS, revenue_spec_text, run_revenue
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from reference import GRAIN_LABELS
+from strategies import EDGE_DATES, WINDOW_DAYS
+
 from sqlgen import UnsupportedError, compile_spec, parse_spec
 from sqlgen.dialects import TARGETS
 from sqlgen.support import support
-from strategies import EDGE_DATES, WINDOW_DAYS
 
 PAIRS = engine_target_pairs()
 GRAINS = [("day", "monday"), ("week", "monday"), ("week", "sunday"), ("month", "monday"),
@@ -70,7 +70,7 @@ def assert_rows(actual, expected, keys, columns):
     want = sorted(expected, key=lambda r: tuple(str(r[k]) for k in keys))
     assert [tuple(str(r[k]) for k in keys) for r in got] == \
         [tuple(str(r[k]) for k in keys) for r in want]
-    for row, wanted in zip(got, want):
+    for row, wanted in zip(got, want, strict=True):
         for column in columns:
             assert _same(row[column], wanted[column]), (
                 tuple(row[k] for k in keys), column, row[column], wanted[column])
@@ -89,7 +89,8 @@ def check_views(results, expected, engine_name, scale=2):
     assert rr.identity_failures(accounting) == []
     assert rr.identity_failures(customers) == []
     keys = sorted(r["period_key"] for r in accounting)
-    assert len(set(b - a for a, b in zip(keys, keys[1:]))) <= 1  # no gaps: empty periods too
+    steps = {b - a for a, b in zip(keys, keys[1:], strict=False)}
+    assert len(steps) <= 1  # no gaps: empty periods are rows too
     return accounting, customers
 
 
@@ -261,8 +262,7 @@ def test_cdnow_monthly_revenue(engines, engine_name, target, cdnow_charges, cdno
 
 # --------------------------------------------------------------------------- properties
 
-EXAMPLES = {"duckdb": 30, "sqlite": 20, "postgres": 20, "clickhouse": 15, "mysql": 15,
-            "spark": 5}
+EXAMPLES = HYPOTHESIS_EXAMPLES
 CUSTOMERS = ("acct-1", "acct-2", "acct-3", "acct-4", "acct-5", "acct-6")
 PRICES = tuple(D(v) for v in ("10.00", "12.00", "8.00", "5.00", "7.50", "0.01", "99.99",
                               "0.00", "-5.00", "-20.00"))

@@ -6,15 +6,15 @@ from __future__ import annotations
 import datetime as dt
 
 import pytest
-from hypothesis import given, settings
-from hypothesis import strategies as st
-
 import reference as ref
 import reference_cohorts as rc
 import strategies
 from cdnow import load_cdnow
-from conftest import engine_target_pairs
+from conftest import HYPOTHESIS_EXAMPLES, engine_target_pairs
 from harness import assert_rows_match, run, sorted_rows, spec_text, view_options
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
 from sqlgen import SpecError, UnsupportedError, parse_spec
 from sqlgen.dialects import TARGETS
 from sqlgen.support import support
@@ -25,8 +25,7 @@ KEYS = ("window_days", "day")
 WINDOWS = (1, 7, 28)
 ACCOUNTING = ("active_users", "previous_active_users", "new_users", "retained_users",
               "resurrected_users", "churned_users", "quick_ratio")
-EXAMPLES = {"duckdb": 30, "sqlite": 20, "postgres": 20, "clickhouse": 15, "mysql": 15,
-            "spark": 5}
+EXAMPLES = HYPOTHESIS_EXAMPLES
 
 
 def run_trailing(engine, target, events, windows=WINDOWS, **spec_args):

@@ -10,12 +10,12 @@ from __future__ import annotations
 import math
 
 import pytest
-from hypothesis import given, settings
-
 import reference as ref
 import strategies
-from conftest import ENGINE_TARGETS, engine_target_pairs
+from conftest import ENGINE_TARGETS, HYPOTHESIS_EXAMPLES, engine_target_pairs
 from harness import run
+from hypothesis import given, settings
+
 from sqlgen import UnsupportedError
 from sqlgen.dialects import TARGETS
 from sqlgen.support import support
@@ -127,8 +127,7 @@ def test_time_zone_fixture(engines, engine_name, target, kind, events_file, grai
     check_all(results, events, grain, week_start, timezone)
 
 
-EXAMPLES = {"duckdb": 40, "sqlite": 25, "postgres": 25, "clickhouse": 20, "mysql": 20,
-            "spark": 5}
+EXAMPLES = HYPOTHESIS_EXAMPLES
 
 
 @pytest.mark.parametrize("engine_name,target", engine_target_pairs(every_target=False))
