@@ -185,6 +185,18 @@ def constant_unions_as_values(tree: exp.Expression) -> exp.Expression:
     return tree.transform(rewrite)
 
 
+def window_keys_nulls_default(tree: exp.Expression) -> exp.Expression:
+    """MySQL, T-SQL, BigQuery: a window's ascending ORDER BY written in DuckDB carries DuckDB's
+    NULLS LAST, which sqlglot cannot spell there ('NULLS LAST' translation not supported in
+    window function SUM). Window keys in sqlgen's views are never NULL, so the target's own
+    NULL order (NULLS FIRST for ascending) gives the same rows."""
+    for window in tree.find_all(exp.Window):
+        for ordered in window.find_all(exp.Ordered):
+            if not ordered.args.get("desc"):
+                ordered.set("nulls_first", True)
+    return tree
+
+
 _NO_IANA_SQLITE = "SQLite has no time zone database; convert to local time before loading"
 _NO_QUALIFIED_SQLITE = ("a SQLite view cannot read a table of another attached database; keep "
                         "the source table and the views in the main database (no schema)")
@@ -215,17 +227,20 @@ TARGETS: dict[str, Target] = {
                executed=_DATABRICKS_EXECUTED),
         Target("clickhouse", "clickhouse", "clickhouse", "replace",
                (_zone_rewrite(_zones_clickhouse),)),
-        Target("mysql", "mysql", "mysql", "replace", (_zone_rewrite(_zones_mysql),)),
+        Target("mysql", "mysql", "mysql", "replace",
+               (_zone_rewrite(_zones_mysql), window_keys_nulls_default)),
         Target("sqlite", "sqlite", "sqlite", "drop_create",
                (_zone_rewrite(_zones_utc_only), sqlite_date_parts),
                unsupported={"activity.timezone": _NO_IANA_SQLITE,
                             "qualified names": _NO_QUALIFIED_SQLITE}),
-        Target("bigquery", "bigquery", None, "replace", (_zone_rewrite(_zones_bigquery),)),
+        Target("bigquery", "bigquery", None, "replace",
+               (_zone_rewrite(_zones_bigquery), window_keys_nulls_default)),
         Target("snowflake", "snowflake", None, "replace", (_zone_rewrite(_zones_snowflake),)),
         Target("redshift", "redshift", None, "replace", (_zone_rewrite(_zones_snowflake),),
                ddl_note=_PG_NOTE),
         Target("trino", "trino", None, "replace", (_zone_rewrite(_zones_trino),)),
-        Target("tsql", "tsql", None, "create_or_alter", (_zone_rewrite(_zones_tsql),),
+        Target("tsql", "tsql", None, "create_or_alter",
+               (_zone_rewrite(_zones_tsql), window_keys_nulls_default),
                unsupported={"activity.timezone": _NO_IANA_TSQL}),
     )
 }

@@ -28,6 +28,9 @@ activity:
   timestamp: occurred_at
   where: "event_name <> 'push_received'"
 grain: {grain}
+cohorts: true
+engagement: true
+trailing_windows: [7, 28]
 week_start: {week_start}
 output:
   dialect: duckdb
@@ -47,6 +50,7 @@ revenue:
   interval_column: billing_interval
   where: "currency = 'EUR'"
 grain: {grain}
+cohorts: true
 week_start: {week_start}
 output:
   dialect: duckdb
