@@ -204,7 +204,8 @@ def test_time_zone_and_fixed_interval(engines, engine_name, target):
                           timezone=zone)
     expected = rr.revenue_views(charges, "charges", "month", timezone=zone)
     accounting, _ = check_views(results, expected, engine_name)
-    assert [r["period_start"] for r in accounting] == [dt.date(2024, 1, 1),
+    # A view has no row order: sort before comparing.
+    assert sorted(r["period_start"] for r in accounting) == [dt.date(2024, 1, 1),
                                                        dt.date(2024, 2, 1),
                                                        dt.date(2024, 3, 1)]
     plans = [("a", dt.date(2024, 1, 1), None, D("120.00"), "ignored")]
