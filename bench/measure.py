@@ -75,7 +75,7 @@ def check_identical(con, query: str, view: str, key: str = "period_key") -> None
     theirs = con.execute(f"SELECT * FROM {view} ORDER BY {key}").fetchall()
     if ours != theirs:
         diff = [(a, b) for a, b in zip(theirs, ours, strict=False) if a != b][:2]
-        raise AssertionError(f"prototype differs from {view}: {diff}")
+        raise AssertionError(f"{query} differs from {view}: {diff}")
 
 
 def time_cases(cases: list[Case], con, frames: dict, reps: int, warmup: int,

@@ -62,7 +62,7 @@ VIEWS: tuple[View, ...] = (
          ("period_key", "integer period index"),
          ("period_start", "first day of the period (DATE)"),
          ("state", "new, retained, resurrected or churned")),
-        depends=("user_activity",), personal_data=True,
+        personal_data=True,
         enabled=lambda spec: spec.activity is not None),
     View(
         "growth_accounting",
@@ -82,7 +82,7 @@ VIEWS: tuple[View, ...] = (
          ("period_status", "'in_progress' for a last period the data does not cover to its "
                            "end, else 'complete'"),
          ("period_key", "integer period index")),
-        depends=("user_states", "user_activity"), enabled=lambda spec: spec.activity is not None),
+        enabled=lambda spec: spec.activity is not None),
     View(
         "revenue_source_summary",
         "One row counting the revenue table's rows: all, left out (NULL customer, date or "
@@ -182,7 +182,6 @@ VIEWS: tuple[View, ...] = (
          ("retention_rate", "active_users / cohort_users (1.0 at age 0)"),
          ("cohort_key", "integer period index of the cohort period"),
          ("period_key", "integer period index of the period")),
-        depends=("user_activity",),
         enabled=lambda spec: spec.cohorts and spec.activity is not None),
     View(
         "engagement_depth",
@@ -201,7 +200,6 @@ VIEWS: tuple[View, ...] = (
          ("period_status", "'in_progress' for a last period the data does not cover to its "
                            "end, else 'complete'"),
          ("period_key", "integer period index")),
-        depends=("user_activity",),
         enabled=lambda spec: spec.engagement and spec.activity is not None),
     View(
         "trailing_activity",

@@ -1,11 +1,12 @@
 {%- import '_periods.sql' as p with context -%}
+{%- import '_activity.sql' as a with context -%}
 {#- Cohort = a user's first active period; one row per cohort and age (periods since the
     cohort period) up to the last period with data, zero rows included: a full triangle. -#}
-WITH marked AS (
+WITH {{ a.active_periods() }}, marked AS (
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
-  FROM {{ ref('user_activity') }}
+  FROM active_periods
 ), cohort_actives AS (
   SELECT marked_cohort_key AS active_cohort_key, marked_key AS active_key, COUNT(*) AS active_count
   FROM marked
@@ -16,7 +17,7 @@ WITH marked AS (
   WHERE active_key = active_cohort_key
 ), data_range AS (
   SELECT MIN(period_key) AS first_data_key, MAX(period_key) AS last_data_key
-  FROM {{ ref('user_activity') }}
+  FROM active_periods
 ), {{ p.digits_cte() }}, ages AS (
   SELECT {{ p.counting_value(grain.calendar_digits) }} AS age_number
   FROM data_range AS r

@@ -1,21 +1,22 @@
 {%- import '_periods.sql' as p with context -%}
+{%- import '_activity.sql' as a with context -%}
 {#- Per period, how many users were active on exactly 1, 2, ... distinct days of it: one
     row for every day count the period can hold (1 at day grain, 1..7 weekly, 28..31
     monthly, up to 92 quarterly and 366 yearly), zero rows and empty periods included. -#}
 {%- set longest = {'day': 1, 'week': 7, 'month': 31, 'quarter': 92, 'year': 366}[grain.name] -%}
 {%- set places = longest | string | length -%}
-WITH depth_counts AS (
+WITH {{ a.user_periods() }}, depth_counts AS (
   SELECT period_key AS depth_key, active_days AS depth_days, COUNT(*) AS depth_users
-  FROM {{ ref('user_activity') }}
+  FROM user_periods
   GROUP BY period_key, active_days
 ), period_totals AS (
   SELECT period_key AS total_key, COUNT(*) AS total_users, SUM(active_days) AS total_user_days
-  FROM {{ ref('user_activity') }}
+  FROM user_periods
   GROUP BY period_key
 ), data_range AS (
   SELECT MIN(period_key) AS first_key, MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
-  FROM {{ ref('user_activity') }}
+  FROM user_periods
 ), {{ p.digits_cte() }}, calendar AS (
   SELECT
     r.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) AS calendar_key,

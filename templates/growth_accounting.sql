@@ -1,20 +1,29 @@
 {%- import '_periods.sql' as p with context -%}
-WITH tallies AS (
+{%- import '_activity.sql' as a with context -%}
+{#- One grouping of the events into active (user, period) pairs, then one LAG per user:
+    each pair is new (no earlier period), retained (the previous period) or resurrected
+    (an earlier one). Churn needs no second pass: of last period's actives, those not
+    retained now are churned, so churned = previous actives - retained. -#}
+WITH {{ a.active_periods() }}, sequenced AS (
+  SELECT
+    period_key,
+    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
+  FROM active_periods
+), tallies AS (
   SELECT
     period_key AS tally_key,
-    COUNT(CASE WHEN state <> 'churned' THEN 1 END) AS active_tally,
-    COUNT(CASE WHEN state = 'new' THEN 1 END) AS new_tally,
-    COUNT(CASE WHEN state = 'retained' THEN 1 END) AS retained_tally,
-    COUNT(CASE WHEN state = 'resurrected' THEN 1 END) AS resurrected_tally,
-    COUNT(CASE WHEN state = 'churned' THEN 1 END) AS churned_tally
-  FROM {{ ref('user_states') }}
+    COUNT(*) AS active_tally,
+    COUNT(CASE WHEN prior_key IS NULL THEN 1 END) AS new_tally,
+    COUNT(CASE WHEN prior_key = period_key - {{ grain.step }} THEN 1 END) AS retained_tally,
+    COUNT(CASE WHEN prior_key < period_key - {{ grain.step }} THEN 1 END) AS resurrected_tally
+  FROM sequenced
   GROUP BY period_key
 ), data_range AS (
   SELECT
     MIN(period_key) AS first_key,
     MAX(period_key) AS last_key,
-    MAX(last_active_date) AS data_through
-  FROM {{ ref('user_activity') }}
+    MAX(last_date) AS data_through
+  FROM active_periods
 ), data_edge AS (
   SELECT first_key, last_key, data_through,
     {{ p.period_key("data_through + INTERVAL 1 DAY") }} AS after_data_key
@@ -31,7 +40,6 @@ WITH tallies AS (
     COALESCE(t.new_tally, 0) AS new_count,
     COALESCE(t.retained_tally, 0) AS retained_count,
     COALESCE(t.resurrected_tally, 0) AS resurrected_count,
-    COALESCE(t.churned_tally, 0) AS churned_count,
     CASE
       WHEN c.calendar_key = e.last_key AND e.after_data_key = e.last_key THEN 'in_progress'
       ELSE 'complete'
@@ -40,7 +48,7 @@ WITH tallies AS (
   CROSS JOIN data_edge AS e
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
-), sequenced AS (
+), sequenced_totals AS (
   SELECT
     calendar_key,
     active_count,
@@ -48,9 +56,19 @@ WITH tallies AS (
     new_count,
     retained_count,
     resurrected_count,
-    churned_count,
     status
   FROM filled
+), balanced AS (
+  SELECT
+    calendar_key,
+    active_count,
+    previous_count,
+    new_count,
+    retained_count,
+    resurrected_count,
+    previous_count - retained_count AS churned_count,
+    status
+  FROM sequenced_totals
 )
 SELECT
   {{ p.period_start('calendar_key') }} AS period_start,
@@ -66,4 +84,4 @@ SELECT
   CAST(churned_count AS DOUBLE) / NULLIF(previous_count, 0) AS churn_rate,
   status AS period_status,
   calendar_key AS period_key
-FROM sequenced
+FROM balanced

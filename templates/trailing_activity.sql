@@ -1,36 +1,38 @@
 {%- import '_periods.sql' as p with context -%}
+{%- import '_activity.sql' as a with context -%}
 {#- Trailing windows of N days, accounted against the previous window (the N days before).
-    Work is proportional to user-days of activity: each active day of a user opens a span of
-    days in which the user counts as active in the window ending that day, closed by the
-    user's next active day or N days later. Spans become +1/-1 changes per day, and a running
-    sum over the calendar turns them into counts; no day is joined to N days of events.
-    For an active day a with next active day b (NULL when none) and window N:
-      active   in windows ending [a, min(a+N, b))
-      previous in windows ending [a+N, min(a+N, b)+N)       (active N days earlier)
-      new      in windows ending [a, a+N) for the user's first active day
-      churned  in windows ending [a+N, min(a+2N, b)) when b > a+N or b is NULL
-    retained = previous - churned and resurrected = active - new - retained. -#}
-WITH sqlgen_source AS (
-  SELECT __user__ AS sqlgen_user, __timestamp__ AS sqlgen_ts
-  FROM __activity_table__
-  WHERE __user__ IS NOT NULL AND __timestamp__ IS NOT NULL{% if source.where %} AND (__where__){% endif %}
-), dated AS (
-  SELECT sqlgen_user AS day_user, {{ p.local_date('sqlgen_ts') }} AS activity_date
-  FROM sqlgen_source
-), numbered AS (
-  SELECT day_user, DATE_DIFF('day', DATE '1970-01-05', activity_date) AS day_number
+    Work is proportional to user-blocks of activity, not to days x window: the days are cut
+    into blocks of B days, B the shortest window, and the events grouped once by (user,
+    block). Inside a block two active days of a user are less than B <= N days apart, so
+    the user never lapses inside a block: each block with first active day f and last
+    active day l, followed by the user's next active day b (NULL when none), opens spans of
+    days in which the user counts in the window ending that day:
+      active   in windows ending [f, min(l+N, b))
+      previous in windows ending [f+N, min(l+N, b)+N)        (active N days earlier)
+      new      in windows ending [f, f+N) for the user's first block
+      churned  in windows ending [l+N, min(l+2N, b)) when b > l+N or b is NULL
+    Spans become +1/-1 changes per day and a running sum over the calendar turns them into
+    counts. retained = previous - churned and resurrected = active - new - retained. -#}
+{%- set block = windows | min -%}
+WITH {{ a.source_ctes() }}, numbered AS (
+  SELECT user_id AS day_user, DATE_DIFF('day', DATE '1970-01-05', activity_date) AS day_number
   FROM dated
-), user_days AS (
-  SELECT day_user AS visit_user, day_number AS visit_day
+  WHERE activity_date IS NOT NULL
+), blocked AS (
+  SELECT day_user, day_number, day_number - (day_number + {{ 700000 - 700000 % block }}) % {{ block }} AS block_number
   FROM numbered
-  GROUP BY day_user, day_number
+), user_blocks AS (
+  SELECT day_user AS block_user, block_number, MIN(day_number) AS first_day,
+    MAX(day_number) AS last_day
+  FROM blocked
+  GROUP BY day_user, block_number
 ), visits AS (
   SELECT
-    visit_user,
-    visit_day,
-    LAG(visit_day) OVER (PARTITION BY visit_user ORDER BY visit_day) AS prior_day,
-    LEAD(visit_day) OVER (PARTITION BY visit_user ORDER BY visit_day) AS next_day
-  FROM user_days
+    first_day,
+    last_day,
+    LAG(block_number) OVER (PARTITION BY block_user ORDER BY block_number) AS prior_block,
+    LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number) AS next_day
+  FROM user_blocks
 ), window_lengths AS (
 {%- for n in windows %}
   {% if not loop.first %}UNION ALL {% endif %}SELECT {{ n }} AS window_length
@@ -38,19 +40,20 @@ WITH sqlgen_source AS (
 ), spans AS (
   SELECT
     w.window_length AS span_window,
-    v.visit_day AS start_day,
+    v.first_day AS start_day,
+    v.last_day + w.window_length AS lapse_day,
     CASE
-      WHEN v.next_day IS NULL OR v.next_day > v.visit_day + w.window_length
-        THEN v.visit_day + w.window_length
+      WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length
+        THEN v.last_day + w.window_length
       ELSE v.next_day
     END AS end_day,
     CASE
-      WHEN v.next_day IS NULL OR v.next_day > v.visit_day + 2 * w.window_length
-        THEN v.visit_day + 2 * w.window_length
+      WHEN v.next_day IS NULL OR v.next_day > v.last_day + 2 * w.window_length
+        THEN v.last_day + 2 * w.window_length
       ELSE v.next_day
     END AS churn_end_day,
-    CASE WHEN v.prior_day IS NULL THEN 1 ELSE 0 END AS first_visit,
-    CASE WHEN v.next_day IS NULL OR v.next_day > v.visit_day + w.window_length THEN 1 ELSE 0 END AS lapse
+    CASE WHEN v.prior_block IS NULL THEN 1 ELSE 0 END AS first_visit,
+    CASE WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length THEN 1 ELSE 0 END AS lapse
   FROM visits AS v
   CROSS JOIN window_lengths AS w
 ), boundaries AS (
@@ -58,7 +61,7 @@ WITH sqlgen_source AS (
     0 AS previous_delta, first_visit AS new_delta, 0 AS churn_delta
   FROM spans
   UNION ALL
-  SELECT span_window, start_day + span_window, 0, 1, 0 - first_visit, lapse
+  SELECT span_window, start_day + span_window, 0, 1, 0 - first_visit, 0
   FROM spans
   UNION ALL
   SELECT span_window, end_day, -1, 0, 0, 0
@@ -66,6 +69,10 @@ WITH sqlgen_source AS (
   UNION ALL
   SELECT span_window, end_day + span_window, 0, -1, 0, 0
   FROM spans
+  UNION ALL
+  SELECT span_window, lapse_day, 0, 0, 0, 1
+  FROM spans
+  WHERE lapse = 1
   UNION ALL
   SELECT span_window, churn_end_day, 0, 0, 0, -1
   FROM spans
@@ -81,8 +88,8 @@ WITH sqlgen_source AS (
   FROM boundaries
   GROUP BY change_window, change_day
 ), data_range AS (
-  SELECT MIN(visit_day) AS first_day, MAX(visit_day) AS last_day
-  FROM user_days
+  SELECT MIN(first_day) AS first_day, MAX(last_day) AS last_day
+  FROM user_blocks
 ), {{ p.digits_cte() }}, calendar AS (
   SELECT r.first_day + {{ p.counting_value(5) }} AS calendar_day
   FROM data_range AS r

@@ -1,13 +1,14 @@
 {%- import '_periods.sql' as p with context -%}
-WITH sequenced AS (
+{%- import '_activity.sql' as a with context -%}
+WITH {{ a.active_periods() }}, sequenced AS (
   SELECT
     user_id,
     period_key,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key,
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS later_key
-  FROM {{ ref('user_activity') }}
+  FROM active_periods
 ), data_range AS (
-  SELECT MAX(period_key) AS last_key FROM {{ ref('user_activity') }}
+  SELECT MAX(period_key) AS last_key FROM active_periods
 ), lapsed AS (
   SELECT s.user_id, s.period_key + {{ grain.step }} AS lapse_key
   FROM sequenced AS s

@@ -4,23 +4,62 @@
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
 CREATE OR REPLACE VIEW `growth`.growth_accounting AS
-WITH tallies AS (
+WITH sqlgen_source AS (
+  SELECT
+    `user_id` AS sqlgen_user,
+    `occurred_at` AS sqlgen_ts
+  FROM `raw`.`app_events`
+  WHERE
+    NOT `user_id` IS NULL
+    AND NOT `occurred_at` IS NULL
+    AND (
+      `event_name` <> 'push_received'
+    )
+), dated AS (
+  SELECT
+    sqlgen_user AS user_id,
+    CAST(sqlgen_ts AS DATE) AS activity_date
+  FROM sqlgen_source
+), keyed AS (
+  SELECT
+    user_id,
+    activity_date,
+    (
+      DATE_DIFF(activity_date, CAST('1970-01-05' AS DATE), DAY) - MOD(DATE_DIFF(activity_date, CAST('1970-01-05' AS DATE), DAY) + 700000, 7)
+    ) AS period_key
+  FROM dated
+  WHERE
+    NOT activity_date IS NULL
+), active_periods AS (
+  SELECT
+    user_id,
+    period_key,
+    MAX(activity_date) AS last_date
+  FROM keyed
+  GROUP BY
+    user_id,
+    period_key
+), sequenced AS (
+  SELECT
+    period_key,
+    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
+  FROM active_periods
+), tallies AS (
   SELECT
     period_key AS tally_key,
-    COUNT(CASE WHEN state <> 'churned' THEN 1 END) AS active_tally,
-    COUNT(CASE WHEN state = 'new' THEN 1 END) AS new_tally,
-    COUNT(CASE WHEN state = 'retained' THEN 1 END) AS retained_tally,
-    COUNT(CASE WHEN state = 'resurrected' THEN 1 END) AS resurrected_tally,
-    COUNT(CASE WHEN state = 'churned' THEN 1 END) AS churned_tally
-  FROM `growth`.user_states
+    COUNT(*) AS active_tally,
+    COUNT(CASE WHEN prior_key IS NULL THEN 1 END) AS new_tally,
+    COUNT(CASE WHEN prior_key = period_key - 7 THEN 1 END) AS retained_tally,
+    COUNT(CASE WHEN prior_key < period_key - 7 THEN 1 END) AS resurrected_tally
+  FROM sequenced
   GROUP BY
     period_key
 ), data_range AS (
   SELECT
     MIN(period_key) AS first_key,
     MAX(period_key) AS last_key,
-    MAX(last_active_date) AS data_through
-  FROM `growth`.user_activity
+    MAX(last_date) AS data_through
+  FROM active_periods
 ), data_edge AS (
   SELECT
     first_key,
@@ -84,7 +123,6 @@ WITH tallies AS (
     COALESCE(t.new_tally, 0) AS new_count,
     COALESCE(t.retained_tally, 0) AS retained_count,
     COALESCE(t.resurrected_tally, 0) AS resurrected_count,
-    COALESCE(t.churned_tally, 0) AS churned_count,
     CASE
       WHEN c.calendar_key = e.last_key AND e.after_data_key = e.last_key
       THEN 'in_progress'
@@ -94,7 +132,7 @@ WITH tallies AS (
   CROSS JOIN data_edge AS e
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
-), sequenced AS (
+), sequenced_totals AS (
   SELECT
     calendar_key,
     active_count,
@@ -102,9 +140,19 @@ WITH tallies AS (
     new_count,
     retained_count,
     resurrected_count,
-    churned_count,
     status
   FROM filled
+), balanced AS (
+  SELECT
+    calendar_key,
+    active_count,
+    previous_count,
+    new_count,
+    retained_count,
+    resurrected_count,
+    previous_count - retained_count AS churned_count,
+    status
+  FROM sequenced_totals
 )
 SELECT
   CAST(DATE_ADD(CAST('1970-01-05' AS DATE), INTERVAL calendar_key DAY) AS DATE) AS period_start,
@@ -120,4 +168,4 @@ SELECT
   CAST(churned_count AS FLOAT64) / NULLIF(previous_count, 0) AS churn_rate,
   status AS period_status,
   calendar_key AS period_key
-FROM sequenced;
+FROM balanced;

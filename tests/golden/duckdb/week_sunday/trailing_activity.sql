@@ -17,29 +17,41 @@ WITH sqlgen_source AS (
     )
 ), dated AS (
   SELECT
-    sqlgen_user AS day_user,
+    sqlgen_user AS user_id,
     CAST(sqlgen_ts AS DATE) AS activity_date
   FROM sqlgen_source
 ), numbered AS (
   SELECT
-    day_user,
+    user_id AS day_user,
     DATE_DIFF('DAY', CAST('1970-01-05' AS DATE), activity_date) AS day_number
   FROM dated
-), user_days AS (
+  WHERE
+    NOT activity_date IS NULL
+), blocked AS (
   SELECT
-    day_user AS visit_user,
-    day_number AS visit_day
+    day_user,
+    day_number,
+    day_number - (
+      day_number + 700000
+    ) % 7 AS block_number
   FROM numbered
+), user_blocks AS (
+  SELECT
+    day_user AS block_user,
+    block_number,
+    MIN(day_number) AS first_day,
+    MAX(day_number) AS last_day
+  FROM blocked
   GROUP BY
     day_user,
-    day_number
+    block_number
 ), visits AS (
   SELECT
-    visit_user,
-    visit_day,
-    LAG(visit_day) OVER (PARTITION BY visit_user ORDER BY visit_day) AS prior_day,
-    LEAD(visit_day) OVER (PARTITION BY visit_user ORDER BY visit_day) AS next_day
-  FROM user_days
+    first_day,
+    last_day,
+    LAG(block_number) OVER (PARTITION BY block_user ORDER BY block_number) AS prior_block,
+    LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number) AS next_day
+  FROM user_blocks
 ), window_lengths AS (
   SELECT
     7 AS window_length
@@ -49,20 +61,21 @@ WITH sqlgen_source AS (
 ), spans AS (
   SELECT
     w.window_length AS span_window,
-    v.visit_day AS start_day,
+    v.first_day AS start_day,
+    v.last_day + w.window_length AS lapse_day,
     CASE
-      WHEN v.next_day IS NULL OR v.next_day > v.visit_day + w.window_length
-      THEN v.visit_day + w.window_length
+      WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length
+      THEN v.last_day + w.window_length
       ELSE v.next_day
     END AS end_day,
     CASE
-      WHEN v.next_day IS NULL OR v.next_day > v.visit_day + 2 * w.window_length
-      THEN v.visit_day + 2 * w.window_length
+      WHEN v.next_day IS NULL OR v.next_day > v.last_day + 2 * w.window_length
+      THEN v.last_day + 2 * w.window_length
       ELSE v.next_day
     END AS churn_end_day,
-    CASE WHEN v.prior_day IS NULL THEN 1 ELSE 0 END AS first_visit,
+    CASE WHEN v.prior_block IS NULL THEN 1 ELSE 0 END AS first_visit,
     CASE
-      WHEN v.next_day IS NULL OR v.next_day > v.visit_day + w.window_length
+      WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length
       THEN 1
       ELSE 0
     END AS lapse
@@ -84,7 +97,7 @@ WITH sqlgen_source AS (
     0,
     1,
     0 - first_visit,
-    lapse
+    0
   FROM spans
   UNION ALL
   SELECT
@@ -104,6 +117,17 @@ WITH sqlgen_source AS (
     0,
     0
   FROM spans
+  UNION ALL
+  SELECT
+    span_window,
+    lapse_day,
+    0,
+    0,
+    0,
+    1
+  FROM spans
+  WHERE
+    lapse = 1
   UNION ALL
   SELECT
     span_window,
@@ -129,9 +153,9 @@ WITH sqlgen_source AS (
     change_day
 ), data_range AS (
   SELECT
-    MIN(visit_day) AS first_day,
-    MAX(visit_day) AS last_day
-  FROM user_days
+    MIN(first_day) AS first_day,
+    MAX(last_day) AS last_day
+  FROM user_blocks
 ), digits AS (
   SELECT
     0 AS n

@@ -5,11 +5,46 @@
 -- CREATE OR REPLACE VIEW cannot change an existing view's columns on this engine: after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, which does so).
 
 CREATE OR REPLACE VIEW "growth".cohort_retention AS
-WITH marked AS (
+WITH sqlgen_source AS (
+  SELECT
+    "user_id" AS sqlgen_user,
+    "occurred_at" AS sqlgen_ts
+  FROM "raw"."app_events"
+  WHERE
+    NOT "user_id" IS NULL
+    AND NOT "occurred_at" IS NULL
+    AND (
+      "event_name" <> 'push_received'
+    )
+), dated AS (
+  SELECT
+    sqlgen_user AS user_id,
+    CAST(sqlgen_ts AS DATE) AS activity_date
+  FROM sqlgen_source
+), keyed AS (
+  SELECT
+    user_id,
+    activity_date,
+    (
+      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+    ) AS period_key
+  FROM dated
+  WHERE
+    NOT activity_date IS NULL
+), active_periods AS (
+  SELECT
+    user_id,
+    period_key,
+    MAX(activity_date) AS last_date
+  FROM keyed
+  GROUP BY
+    user_id,
+    period_key
+), marked AS (
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
-  FROM "growth".user_activity
+  FROM active_periods
 ), cohort_actives AS (
   SELECT
     marked_cohort_key AS active_cohort_key,
@@ -30,7 +65,7 @@ WITH marked AS (
   SELECT
     MIN(period_key) AS first_data_key,
     MAX(period_key) AS last_data_key
-  FROM "growth".user_activity
+  FROM active_periods
 ), digits AS (
   SELECT
     0 AS n

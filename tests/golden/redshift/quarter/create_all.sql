@@ -96,33 +96,79 @@ WITH sqlgen_source AS (
   FROM dated
   WHERE
     NOT activity_date IS NULL
+), user_periods AS (
+  SELECT
+    user_id,
+    period_key,
+    COUNT(*) AS events,
+    COUNT(DISTINCT activity_date) AS active_days,
+    MIN(activity_date) AS first_active_date,
+    MAX(activity_date) AS last_active_date
+  FROM keyed
+  GROUP BY
+    user_id,
+    period_key
 )
 SELECT
   user_id,
   period_key,
   CAST(DATEADD(MONTH, period_key - 23640, CAST('1970-01-01' AS DATE)) AS DATE) AS period_start,
-  COUNT(*) AS events,
-  COUNT(DISTINCT activity_date) AS active_days,
-  MIN(activity_date) AS first_active_date,
-  MAX(activity_date) AS last_active_date
-FROM keyed
-GROUP BY
-  user_id,
-  period_key;
+  events,
+  active_days,
+  first_active_date,
+  last_active_date
+FROM user_periods;
 
 -- user_states
 CREATE OR REPLACE VIEW "growth".user_states AS
-WITH sequenced AS (
+WITH sqlgen_source AS (
+  SELECT
+    "user_id" AS sqlgen_user,
+    "occurred_at" AS sqlgen_ts
+  FROM "raw"."app_events"
+  WHERE
+    NOT "user_id" IS NULL
+    AND NOT "occurred_at" IS NULL
+    AND (
+      "event_name" <> 'push_received'
+    )
+), dated AS (
+  SELECT
+    sqlgen_user AS user_id,
+    CAST(sqlgen_ts AS DATE) AS activity_date
+  FROM sqlgen_source
+), keyed AS (
+  SELECT
+    user_id,
+    activity_date,
+    (
+      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1 - (
+        EXTRACT(MONTH FROM activity_date) - 1
+      ) % 3
+    ) AS period_key
+  FROM dated
+  WHERE
+    NOT activity_date IS NULL
+), active_periods AS (
+  SELECT
+    user_id,
+    period_key,
+    MAX(activity_date) AS last_date
+  FROM keyed
+  GROUP BY
+    user_id,
+    period_key
+), sequenced AS (
   SELECT
     user_id,
     period_key,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key,
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS later_key
-  FROM "growth".user_activity
+  FROM active_periods
 ), data_range AS (
   SELECT
     MAX(period_key) AS last_key
-  FROM "growth".user_activity
+  FROM active_periods
 ), lapsed AS (
   SELECT
     s.user_id,
@@ -157,23 +203,64 @@ FROM lapsed;
 
 -- growth_accounting
 CREATE OR REPLACE VIEW "growth".growth_accounting AS
-WITH tallies AS (
+WITH sqlgen_source AS (
+  SELECT
+    "user_id" AS sqlgen_user,
+    "occurred_at" AS sqlgen_ts
+  FROM "raw"."app_events"
+  WHERE
+    NOT "user_id" IS NULL
+    AND NOT "occurred_at" IS NULL
+    AND (
+      "event_name" <> 'push_received'
+    )
+), dated AS (
+  SELECT
+    sqlgen_user AS user_id,
+    CAST(sqlgen_ts AS DATE) AS activity_date
+  FROM sqlgen_source
+), keyed AS (
+  SELECT
+    user_id,
+    activity_date,
+    (
+      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1 - (
+        EXTRACT(MONTH FROM activity_date) - 1
+      ) % 3
+    ) AS period_key
+  FROM dated
+  WHERE
+    NOT activity_date IS NULL
+), active_periods AS (
+  SELECT
+    user_id,
+    period_key,
+    MAX(activity_date) AS last_date
+  FROM keyed
+  GROUP BY
+    user_id,
+    period_key
+), sequenced AS (
+  SELECT
+    period_key,
+    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
+  FROM active_periods
+), tallies AS (
   SELECT
     period_key AS tally_key,
-    COUNT(CASE WHEN state <> 'churned' THEN 1 END) AS active_tally,
-    COUNT(CASE WHEN state = 'new' THEN 1 END) AS new_tally,
-    COUNT(CASE WHEN state = 'retained' THEN 1 END) AS retained_tally,
-    COUNT(CASE WHEN state = 'resurrected' THEN 1 END) AS resurrected_tally,
-    COUNT(CASE WHEN state = 'churned' THEN 1 END) AS churned_tally
-  FROM "growth".user_states
+    COUNT(*) AS active_tally,
+    COUNT(CASE WHEN prior_key IS NULL THEN 1 END) AS new_tally,
+    COUNT(CASE WHEN prior_key = period_key - 3 THEN 1 END) AS retained_tally,
+    COUNT(CASE WHEN prior_key < period_key - 3 THEN 1 END) AS resurrected_tally
+  FROM sequenced
   GROUP BY
     period_key
 ), data_range AS (
   SELECT
     MIN(period_key) AS first_key,
     MAX(period_key) AS last_key,
-    MAX(last_active_date) AS data_through
-  FROM "growth".user_activity
+    MAX(last_date) AS data_through
+  FROM active_periods
 ), data_edge AS (
   SELECT
     first_key,
@@ -235,7 +322,6 @@ WITH tallies AS (
     COALESCE(t.new_tally, 0) AS new_count,
     COALESCE(t.retained_tally, 0) AS retained_count,
     COALESCE(t.resurrected_tally, 0) AS resurrected_count,
-    COALESCE(t.churned_tally, 0) AS churned_count,
     CASE
       WHEN c.calendar_key = e.last_key AND e.after_data_key = e.last_key
       THEN 'in_progress'
@@ -245,7 +331,7 @@ WITH tallies AS (
   CROSS JOIN data_edge AS e
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
-), sequenced AS (
+), sequenced_totals AS (
   SELECT
     calendar_key,
     active_count,
@@ -253,9 +339,19 @@ WITH tallies AS (
     new_count,
     retained_count,
     resurrected_count,
-    churned_count,
     status
   FROM filled
+), balanced AS (
+  SELECT
+    calendar_key,
+    active_count,
+    previous_count,
+    new_count,
+    retained_count,
+    resurrected_count,
+    previous_count - retained_count AS churned_count,
+    status
+  FROM sequenced_totals
 )
 SELECT
   CAST(DATEADD(MONTH, calendar_key - 23640, CAST('1970-01-01' AS DATE)) AS DATE) AS period_start,
@@ -271,15 +367,52 @@ SELECT
   CAST(churned_count AS DOUBLE PRECISION) / NULLIF(previous_count, 0) AS churn_rate,
   status AS period_status,
   calendar_key AS period_key
-FROM sequenced;
+FROM balanced;
 
 -- cohort_retention
 CREATE OR REPLACE VIEW "growth".cohort_retention AS
-WITH marked AS (
+WITH sqlgen_source AS (
+  SELECT
+    "user_id" AS sqlgen_user,
+    "occurred_at" AS sqlgen_ts
+  FROM "raw"."app_events"
+  WHERE
+    NOT "user_id" IS NULL
+    AND NOT "occurred_at" IS NULL
+    AND (
+      "event_name" <> 'push_received'
+    )
+), dated AS (
+  SELECT
+    sqlgen_user AS user_id,
+    CAST(sqlgen_ts AS DATE) AS activity_date
+  FROM sqlgen_source
+), keyed AS (
+  SELECT
+    user_id,
+    activity_date,
+    (
+      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1 - (
+        EXTRACT(MONTH FROM activity_date) - 1
+      ) % 3
+    ) AS period_key
+  FROM dated
+  WHERE
+    NOT activity_date IS NULL
+), active_periods AS (
+  SELECT
+    user_id,
+    period_key,
+    MAX(activity_date) AS last_date
+  FROM keyed
+  GROUP BY
+    user_id,
+    period_key
+), marked AS (
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
-  FROM "growth".user_activity
+  FROM active_periods
 ), cohort_actives AS (
   SELECT
     marked_cohort_key AS active_cohort_key,
@@ -300,7 +433,7 @@ WITH marked AS (
   SELECT
     MIN(period_key) AS first_data_key,
     MAX(period_key) AS last_data_key
-  FROM "growth".user_activity
+  FROM active_periods
 ), digits AS (
   SELECT
     0 AS n
@@ -369,12 +502,52 @@ LEFT JOIN cohort_actives AS c
 
 -- engagement_depth
 CREATE OR REPLACE VIEW "growth".engagement_depth AS
-WITH depth_counts AS (
+WITH sqlgen_source AS (
+  SELECT
+    "user_id" AS sqlgen_user,
+    "occurred_at" AS sqlgen_ts
+  FROM "raw"."app_events"
+  WHERE
+    NOT "user_id" IS NULL
+    AND NOT "occurred_at" IS NULL
+    AND (
+      "event_name" <> 'push_received'
+    )
+), dated AS (
+  SELECT
+    sqlgen_user AS user_id,
+    CAST(sqlgen_ts AS DATE) AS activity_date
+  FROM sqlgen_source
+), keyed AS (
+  SELECT
+    user_id,
+    activity_date,
+    (
+      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1 - (
+        EXTRACT(MONTH FROM activity_date) - 1
+      ) % 3
+    ) AS period_key
+  FROM dated
+  WHERE
+    NOT activity_date IS NULL
+), user_periods AS (
+  SELECT
+    user_id,
+    period_key,
+    COUNT(*) AS events,
+    COUNT(DISTINCT activity_date) AS active_days,
+    MIN(activity_date) AS first_active_date,
+    MAX(activity_date) AS last_active_date
+  FROM keyed
+  GROUP BY
+    user_id,
+    period_key
+), depth_counts AS (
   SELECT
     period_key AS depth_key,
     active_days AS depth_days,
     COUNT(*) AS depth_users
-  FROM "growth".user_activity
+  FROM user_periods
   GROUP BY
     period_key,
     active_days
@@ -383,7 +556,7 @@ WITH depth_counts AS (
     period_key AS total_key,
     COUNT(*) AS total_users,
     SUM(active_days) AS total_user_days
-  FROM "growth".user_activity
+  FROM user_periods
   GROUP BY
     period_key
 ), data_range AS (
@@ -391,7 +564,7 @@ WITH depth_counts AS (
     MIN(period_key) AS first_key,
     MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
-  FROM "growth".user_activity
+  FROM user_periods
 ), digits AS (
   SELECT
     0 AS n
@@ -508,29 +681,41 @@ WITH sqlgen_source AS (
     )
 ), dated AS (
   SELECT
-    sqlgen_user AS day_user,
+    sqlgen_user AS user_id,
     CAST(sqlgen_ts AS DATE) AS activity_date
   FROM sqlgen_source
 ), numbered AS (
   SELECT
-    day_user,
+    user_id AS day_user,
     DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) AS day_number
   FROM dated
-), user_days AS (
+  WHERE
+    NOT activity_date IS NULL
+), blocked AS (
   SELECT
-    day_user AS visit_user,
-    day_number AS visit_day
+    day_user,
+    day_number,
+    day_number - (
+      day_number + 700000
+    ) % 7 AS block_number
   FROM numbered
+), user_blocks AS (
+  SELECT
+    day_user AS block_user,
+    block_number,
+    MIN(day_number) AS first_day,
+    MAX(day_number) AS last_day
+  FROM blocked
   GROUP BY
     day_user,
-    day_number
+    block_number
 ), visits AS (
   SELECT
-    visit_user,
-    visit_day,
-    LAG(visit_day) OVER (PARTITION BY visit_user ORDER BY visit_day) AS prior_day,
-    LEAD(visit_day) OVER (PARTITION BY visit_user ORDER BY visit_day) AS next_day
-  FROM user_days
+    first_day,
+    last_day,
+    LAG(block_number) OVER (PARTITION BY block_user ORDER BY block_number) AS prior_block,
+    LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number) AS next_day
+  FROM user_blocks
 ), window_lengths AS (
   SELECT
     7 AS window_length
@@ -540,20 +725,21 @@ WITH sqlgen_source AS (
 ), spans AS (
   SELECT
     w.window_length AS span_window,
-    v.visit_day AS start_day,
+    v.first_day AS start_day,
+    v.last_day + w.window_length AS lapse_day,
     CASE
-      WHEN v.next_day IS NULL OR v.next_day > v.visit_day + w.window_length
-      THEN v.visit_day + w.window_length
+      WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length
+      THEN v.last_day + w.window_length
       ELSE v.next_day
     END AS end_day,
     CASE
-      WHEN v.next_day IS NULL OR v.next_day > v.visit_day + 2 * w.window_length
-      THEN v.visit_day + 2 * w.window_length
+      WHEN v.next_day IS NULL OR v.next_day > v.last_day + 2 * w.window_length
+      THEN v.last_day + 2 * w.window_length
       ELSE v.next_day
     END AS churn_end_day,
-    CASE WHEN v.prior_day IS NULL THEN 1 ELSE 0 END AS first_visit,
+    CASE WHEN v.prior_block IS NULL THEN 1 ELSE 0 END AS first_visit,
     CASE
-      WHEN v.next_day IS NULL OR v.next_day > v.visit_day + w.window_length
+      WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length
       THEN 1
       ELSE 0
     END AS lapse
@@ -575,7 +761,7 @@ WITH sqlgen_source AS (
     0,
     1,
     0 - first_visit,
-    lapse
+    0
   FROM spans
   UNION ALL
   SELECT
@@ -595,6 +781,17 @@ WITH sqlgen_source AS (
     0,
     0
   FROM spans
+  UNION ALL
+  SELECT
+    span_window,
+    lapse_day,
+    0,
+    0,
+    0,
+    1
+  FROM spans
+  WHERE
+    lapse = 1
   UNION ALL
   SELECT
     span_window,
@@ -620,9 +817,9 @@ WITH sqlgen_source AS (
     change_day
 ), data_range AS (
   SELECT
-    MIN(visit_day) AS first_day,
-    MAX(visit_day) AS last_day
-  FROM user_days
+    MIN(first_day) AS first_day,
+    MAX(last_day) AS last_day
+  FROM user_blocks
 ), digits AS (
   SELECT
     0 AS n

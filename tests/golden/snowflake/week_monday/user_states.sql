@@ -5,17 +5,54 @@
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
 CREATE OR REPLACE VIEW "growth".user_states AS
-WITH sequenced AS (
+WITH sqlgen_source AS (
+  SELECT
+    "USER_ID" AS sqlgen_user,
+    "OCCURRED_AT" AS sqlgen_ts
+  FROM "RAW"."APP_EVENTS"
+  WHERE
+    NOT "USER_ID" IS NULL
+    AND NOT "OCCURRED_AT" IS NULL
+    AND (
+      "EVENT_NAME" <> 'push_received'
+    )
+), dated AS (
+  SELECT
+    sqlgen_user AS user_id,
+    CAST(sqlgen_ts AS DATE) AS activity_date
+  FROM sqlgen_source
+), keyed AS (
+  SELECT
+    user_id,
+    activity_date,
+    (
+      DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) - (
+        DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) + 700000
+      ) % 7
+    ) AS period_key
+  FROM dated
+  WHERE
+    NOT activity_date IS NULL
+), active_periods AS (
+  SELECT
+    user_id,
+    period_key,
+    MAX(activity_date) AS last_date
+  FROM keyed
+  GROUP BY
+    user_id,
+    period_key
+), sequenced AS (
   SELECT
     user_id,
     period_key,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key,
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS later_key
-  FROM "GROWTH".user_activity
+  FROM active_periods
 ), data_range AS (
   SELECT
     MAX(period_key) AS last_key
-  FROM "GROWTH".user_activity
+  FROM active_periods
 ), lapsed AS (
   SELECT
     s.user_id,

@@ -5,17 +5,52 @@
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
 CREATE OR REPLACE VIEW `growth`.user_states AS
-WITH sequenced AS (
+WITH sqlgen_source AS (
+  SELECT
+    `user_id` AS sqlgen_user,
+    `occurred_at` AS sqlgen_ts
+  FROM `raw`.`app_events`
+  WHERE
+    NOT `user_id` IS NULL
+    AND NOT `occurred_at` IS NULL
+    AND (
+      `event_name` <> 'push_received'
+    )
+), dated AS (
+  SELECT
+    sqlgen_user AS user_id,
+    CAST(sqlgen_ts AS DATE) AS activity_date
+  FROM sqlgen_source
+), keyed AS (
+  SELECT
+    user_id,
+    activity_date,
+    (
+      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+    ) AS period_key
+  FROM dated
+  WHERE
+    NOT activity_date IS NULL
+), active_periods AS (
+  SELECT
+    user_id,
+    period_key,
+    MAX(activity_date) AS last_date
+  FROM keyed
+  GROUP BY
+    user_id,
+    period_key
+), sequenced AS (
   SELECT
     user_id,
     period_key,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key NULLS LAST) AS prior_key,
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key NULLS LAST) AS later_key
-  FROM `growth`.user_activity
+  FROM active_periods
 ), data_range AS (
   SELECT
     MAX(period_key) AS last_key
-  FROM `growth`.user_activity
+  FROM active_periods
 ), lapsed AS (
   SELECT
     s.user_id,

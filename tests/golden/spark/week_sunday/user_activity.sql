@@ -33,16 +33,25 @@ WITH sqlgen_source AS (
   FROM dated
   WHERE
     NOT activity_date IS NULL
+), user_periods AS (
+  SELECT
+    user_id,
+    period_key,
+    COUNT(*) AS events,
+    COUNT(DISTINCT activity_date) AS active_days,
+    MIN(activity_date) AS first_active_date,
+    MAX(activity_date) AS last_active_date
+  FROM keyed
+  GROUP BY
+    user_id,
+    period_key
 )
 SELECT
   user_id,
   period_key,
   CAST(DATE_ADD(CAST('1970-01-05' AS DATE), CAST(period_key AS INT)) AS DATE) AS period_start,
-  COUNT(*) AS events,
-  COUNT(DISTINCT activity_date) AS active_days,
-  MIN(activity_date) AS first_active_date,
-  MAX(activity_date) AS last_active_date
-FROM keyed
-GROUP BY
-  user_id,
-  period_key;
+  events,
+  active_days,
+  first_active_date,
+  last_active_date
+FROM user_periods;

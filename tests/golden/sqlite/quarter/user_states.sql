@@ -7,17 +7,54 @@
 DROP VIEW IF EXISTS user_states;
 
 CREATE VIEW user_states AS
-WITH sequenced AS (
+WITH sqlgen_source AS (
+  SELECT
+    "user_id" AS sqlgen_user,
+    "occurred_at" AS sqlgen_ts
+  FROM "app_events"
+  WHERE
+    NOT "user_id" IS NULL
+    AND NOT "occurred_at" IS NULL
+    AND (
+      "event_name" <> 'push_received'
+    )
+), dated AS (
+  SELECT
+    sqlgen_user AS user_id,
+    DATE(sqlgen_ts) AS activity_date
+  FROM sqlgen_source
+), keyed AS (
+  SELECT
+    user_id,
+    activity_date,
+    (
+      CAST(STRFTIME('%Y', activity_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', activity_date) AS INTEGER) - 1 - (
+        CAST(STRFTIME('%m', activity_date) AS INTEGER) - 1
+      ) % 3
+    ) AS period_key
+  FROM dated
+  WHERE
+    NOT activity_date IS NULL
+), active_periods AS (
+  SELECT
+    user_id,
+    period_key,
+    MAX(activity_date) AS last_date
+  FROM keyed
+  GROUP BY
+    user_id,
+    period_key
+), sequenced AS (
   SELECT
     user_id,
     period_key,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key NULLS LAST) AS prior_key,
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key NULLS LAST) AS later_key
-  FROM user_activity
+  FROM active_periods
 ), data_range AS (
   SELECT
     MAX(period_key) AS last_key
-  FROM user_activity
+  FROM active_periods
 ), lapsed AS (
   SELECT
     s.user_id,

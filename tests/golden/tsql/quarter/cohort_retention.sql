@@ -4,11 +4,48 @@
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
 CREATE OR ALTER VIEW [growth].cohort_retention AS
-WITH marked AS (
+WITH sqlgen_source AS (
+  SELECT
+    [user_id] AS sqlgen_user,
+    [occurred_at] AS sqlgen_ts
+  FROM [raw].[app_events]
+  WHERE
+    NOT [user_id] IS NULL
+    AND NOT [occurred_at] IS NULL
+    AND (
+      [event_name] <> 'push_received'
+    )
+), dated AS (
+  SELECT
+    sqlgen_user AS user_id,
+    CAST(sqlgen_ts AS DATE) AS activity_date
+  FROM sqlgen_source
+), keyed AS (
+  SELECT
+    user_id AS user_id,
+    activity_date AS activity_date,
+    (
+      DATEPART(YEAR, activity_date) * 12 + DATEPART(MONTH, activity_date) - 1 - (
+        DATEPART(MONTH, activity_date) - 1
+      ) % 3
+    ) AS period_key
+  FROM dated
+  WHERE
+    NOT activity_date IS NULL
+), active_periods AS (
+  SELECT
+    user_id AS user_id,
+    period_key AS period_key,
+    MAX(activity_date) AS last_date
+  FROM keyed
+  GROUP BY
+    user_id,
+    period_key
+), marked AS (
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
-  FROM [growth].user_activity
+  FROM active_periods
 ), cohort_actives AS (
   SELECT
     marked_cohort_key AS active_cohort_key,
@@ -29,7 +66,7 @@ WITH marked AS (
   SELECT
     MIN(period_key) AS first_data_key,
     MAX(period_key) AS last_data_key
-  FROM [growth].user_activity
+  FROM active_periods
 ), digits AS (
   SELECT
     0 AS n

@@ -4,12 +4,52 @@
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
 CREATE OR ALTER VIEW [growth].engagement_depth AS
-WITH depth_counts AS (
+WITH sqlgen_source AS (
+  SELECT
+    [user_id] AS sqlgen_user,
+    [occurred_at] AS sqlgen_ts
+  FROM [raw].[app_events]
+  WHERE
+    NOT [user_id] IS NULL
+    AND NOT [occurred_at] IS NULL
+    AND (
+      [event_name] <> 'push_received'
+    )
+), dated AS (
+  SELECT
+    sqlgen_user AS user_id,
+    CAST(sqlgen_ts AS DATE) AS activity_date
+  FROM sqlgen_source
+), keyed AS (
+  SELECT
+    user_id AS user_id,
+    activity_date AS activity_date,
+    (
+      DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) - (
+        DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) + 700000
+      ) % 7
+    ) AS period_key
+  FROM dated
+  WHERE
+    NOT activity_date IS NULL
+), user_periods AS (
+  SELECT
+    user_id AS user_id,
+    period_key AS period_key,
+    COUNT_BIG(*) AS events,
+    COUNT_BIG(DISTINCT activity_date) AS active_days,
+    MIN(activity_date) AS first_active_date,
+    MAX(activity_date) AS last_active_date
+  FROM keyed
+  GROUP BY
+    user_id,
+    period_key
+), depth_counts AS (
   SELECT
     period_key AS depth_key,
     active_days AS depth_days,
     COUNT_BIG(*) AS depth_users
-  FROM [growth].user_activity
+  FROM user_periods
   GROUP BY
     period_key,
     active_days
@@ -18,7 +58,7 @@ WITH depth_counts AS (
     period_key AS total_key,
     COUNT_BIG(*) AS total_users,
     SUM(active_days) AS total_user_days
-  FROM [growth].user_activity
+  FROM user_periods
   GROUP BY
     period_key
 ), data_range AS (
@@ -26,7 +66,7 @@ WITH depth_counts AS (
     MIN(period_key) AS first_key,
     MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
-  FROM [growth].user_activity
+  FROM user_periods
 ), digits AS (
   SELECT
     0 AS n

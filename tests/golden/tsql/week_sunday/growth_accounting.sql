@@ -4,23 +4,64 @@
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
 CREATE OR ALTER VIEW [growth].growth_accounting AS
-WITH tallies AS (
+WITH sqlgen_source AS (
+  SELECT
+    [user_id] AS sqlgen_user,
+    [occurred_at] AS sqlgen_ts
+  FROM [raw].[app_events]
+  WHERE
+    NOT [user_id] IS NULL
+    AND NOT [occurred_at] IS NULL
+    AND (
+      [event_name] <> 'push_received'
+    )
+), dated AS (
+  SELECT
+    sqlgen_user AS user_id,
+    CAST(sqlgen_ts AS DATE) AS activity_date
+  FROM sqlgen_source
+), keyed AS (
+  SELECT
+    user_id AS user_id,
+    activity_date AS activity_date,
+    (
+      DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) - (
+        DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) + 699994
+      ) % 7
+    ) AS period_key
+  FROM dated
+  WHERE
+    NOT activity_date IS NULL
+), active_periods AS (
+  SELECT
+    user_id AS user_id,
+    period_key AS period_key,
+    MAX(activity_date) AS last_date
+  FROM keyed
+  GROUP BY
+    user_id,
+    period_key
+), sequenced AS (
+  SELECT
+    period_key AS period_key,
+    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
+  FROM active_periods
+), tallies AS (
   SELECT
     period_key AS tally_key,
-    COUNT_BIG(CASE WHEN state <> 'churned' THEN 1 END) AS active_tally,
-    COUNT_BIG(CASE WHEN state = 'new' THEN 1 END) AS new_tally,
-    COUNT_BIG(CASE WHEN state = 'retained' THEN 1 END) AS retained_tally,
-    COUNT_BIG(CASE WHEN state = 'resurrected' THEN 1 END) AS resurrected_tally,
-    COUNT_BIG(CASE WHEN state = 'churned' THEN 1 END) AS churned_tally
-  FROM [growth].user_states
+    COUNT_BIG(*) AS active_tally,
+    COUNT_BIG(CASE WHEN prior_key IS NULL THEN 1 END) AS new_tally,
+    COUNT_BIG(CASE WHEN prior_key = period_key - 7 THEN 1 END) AS retained_tally,
+    COUNT_BIG(CASE WHEN prior_key < period_key - 7 THEN 1 END) AS resurrected_tally
+  FROM sequenced
   GROUP BY
     period_key
 ), data_range AS (
   SELECT
     MIN(period_key) AS first_key,
     MAX(period_key) AS last_key,
-    MAX(last_active_date) AS data_through
-  FROM [growth].user_activity
+    MAX(last_date) AS data_through
+  FROM active_periods
 ), data_edge AS (
   SELECT
     first_key AS first_key,
@@ -83,7 +124,6 @@ WITH tallies AS (
     COALESCE(t.new_tally, 0) AS new_count,
     COALESCE(t.retained_tally, 0) AS retained_count,
     COALESCE(t.resurrected_tally, 0) AS resurrected_count,
-    COALESCE(t.churned_tally, 0) AS churned_count,
     CASE
       WHEN c.calendar_key = e.last_key AND e.after_data_key = e.last_key
       THEN 'in_progress'
@@ -93,7 +133,7 @@ WITH tallies AS (
   CROSS JOIN data_edge AS e
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
-), sequenced AS (
+), sequenced_totals AS (
   SELECT
     calendar_key AS calendar_key,
     active_count AS active_count,
@@ -101,9 +141,19 @@ WITH tallies AS (
     new_count AS new_count,
     retained_count AS retained_count,
     resurrected_count AS resurrected_count,
-    churned_count AS churned_count,
     status AS status
   FROM filled
+), balanced AS (
+  SELECT
+    calendar_key AS calendar_key,
+    active_count AS active_count,
+    previous_count AS previous_count,
+    new_count AS new_count,
+    retained_count AS retained_count,
+    resurrected_count AS resurrected_count,
+    previous_count - retained_count AS churned_count,
+    status AS status
+  FROM sequenced_totals
 )
 SELECT
   CAST(DATEADD(DAY, calendar_key, CAST('1970-01-05' AS DATE)) AS DATE) AS period_start,
@@ -119,4 +169,4 @@ SELECT
   CAST(churned_count AS FLOAT) / NULLIF(previous_count, 0) AS churn_rate,
   status AS period_status,
   calendar_key AS period_key
-FROM sequenced;
+FROM balanced;

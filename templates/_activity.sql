@@ -1,0 +1,59 @@
+{#- Reading the activity table, written once for every view that reads it.
+
+  source_ctes()     the CTEs sqlgen_source and dated: one row per kept activity row, as
+                    (user_id, activity_date) with the local date of the spec's time zone rule;
+                    rows with a NULL user or timestamp are left out
+                    (activity_source_summary counts them).
+  keyed()           source_ctes() and the CTE keyed: (user_id, activity_date, period_key),
+                    rows whose local date came out NULL left out.
+  active_periods()  the CTE active_periods: the distinct (user_id, period_key) pairs, with
+                    the last active date of each (the only other column any period view
+                    needs, for period_status). This one grouping is the unavoidable pass over
+                    the events; everything after it reads a table many times smaller.
+  user_periods()    keyed() and the CTE user_periods: one row per user and active period
+                    with its events, distinct active days and first and last active dates.
+A view reads these CTEs rather than another view, so that each is computed once per query
+however often the view refers to it.
+-#}
+{%- import '_periods.sql' as p with context -%}
+
+{%- macro source_ctes() -%}
+sqlgen_source AS (
+  SELECT __user__ AS sqlgen_user, __timestamp__ AS sqlgen_ts
+  FROM __activity_table__
+  WHERE __user__ IS NOT NULL AND __timestamp__ IS NOT NULL{% if source.where %} AND (__where__){% endif %}
+), dated AS (
+  SELECT sqlgen_user AS user_id, {{ p.local_date('sqlgen_ts') }} AS activity_date
+  FROM sqlgen_source
+)
+{%- endmacro -%}
+
+{%- macro keyed() -%}
+{{ source_ctes() }}, keyed AS (
+  SELECT user_id, activity_date, {{ p.period_key('activity_date') }} AS period_key
+  FROM dated
+  WHERE activity_date IS NOT NULL
+)
+{%- endmacro -%}
+
+{%- macro active_periods() -%}
+{{ keyed() }}, active_periods AS (
+  SELECT user_id, period_key, MAX(activity_date) AS last_date
+  FROM keyed
+  GROUP BY user_id, period_key
+)
+{%- endmacro -%}
+
+{%- macro user_periods() -%}
+{{ keyed() }}, user_periods AS (
+  SELECT
+    user_id,
+    period_key,
+    COUNT(*) AS events,
+    COUNT(DISTINCT activity_date) AS active_days,
+    MIN(activity_date) AS first_active_date,
+    MAX(activity_date) AS last_active_date
+  FROM keyed
+  GROUP BY user_id, period_key
+)
+{%- endmacro -%}
