@@ -16,8 +16,8 @@ WITH {{ a.active_periods() }}, marked AS (
   FROM cohort_actives
   WHERE active_key = active_cohort_key
 ), data_range AS (
-  SELECT MIN(period_key) AS first_data_key, MAX(period_key) AS last_data_key
-  FROM active_periods
+  SELECT MIN(active_key) AS first_data_key, MAX(active_key) AS last_data_key
+  FROM cohort_actives
 ), {{ p.digits_cte() }}, ages AS (
   SELECT {{ p.counting_value(grain.calendar_digits) }} AS age_number
   FROM data_range AS r

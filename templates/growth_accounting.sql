@@ -3,15 +3,19 @@
 {#- One grouping of the events into active (user, period) pairs, then one LAG per user:
     each pair is new (no earlier period), retained (the previous period) or resurrected
     (an earlier one). Churn needs no second pass: of last period's actives, those not
-    retained now are churned, so churned = previous actives - retained. -#}
+    retained now are churned, so churned = previous actives - retained. The events are
+    read once: the data range comes from the per-period tallies, not from a second read
+    (engines that inline CTEs would group the events twice). -#}
 WITH {{ a.active_periods() }}, sequenced AS (
   SELECT
     period_key,
+    last_date,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
   FROM active_periods
 ), tallies AS (
   SELECT
     period_key AS tally_key,
+    MAX(last_date) AS through_tally,
     COUNT(*) AS active_tally,
     COUNT(CASE WHEN prior_key IS NULL THEN 1 END) AS new_tally,
     COUNT(CASE WHEN prior_key = period_key - {{ grain.step }} THEN 1 END) AS retained_tally,
@@ -20,10 +24,10 @@ WITH {{ a.active_periods() }}, sequenced AS (
   GROUP BY period_key
 ), data_range AS (
   SELECT
-    MIN(period_key) AS first_key,
-    MAX(period_key) AS last_key,
-    MAX(last_date) AS data_through
-  FROM active_periods
+    MIN(tally_key) AS first_key,
+    MAX(tally_key) AS last_key,
+    MAX(through_tally) AS data_through
+  FROM tallies
 ), data_edge AS (
   SELECT first_key, last_key, data_through,
     {{ p.period_key("data_through + INTERVAL 1 DAY") }} AS after_data_key

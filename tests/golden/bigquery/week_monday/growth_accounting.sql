@@ -42,11 +42,13 @@ WITH sqlgen_source AS (
 ), sequenced AS (
   SELECT
     period_key,
+    last_date,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
   FROM active_periods
 ), tallies AS (
   SELECT
     period_key AS tally_key,
+    MAX(last_date) AS through_tally,
     COUNT(*) AS active_tally,
     COUNT(CASE WHEN prior_key IS NULL THEN 1 END) AS new_tally,
     COUNT(CASE WHEN prior_key = period_key - 7 THEN 1 END) AS retained_tally,
@@ -56,10 +58,10 @@ WITH sqlgen_source AS (
     period_key
 ), data_range AS (
   SELECT
-    MIN(period_key) AS first_key,
-    MAX(period_key) AS last_key,
-    MAX(last_date) AS data_through
-  FROM active_periods
+    MIN(tally_key) AS first_key,
+    MAX(tally_key) AS last_key,
+    MAX(through_tally) AS data_through
+  FROM tallies
 ), data_edge AS (
   SELECT
     first_key,
