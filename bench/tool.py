@@ -4,12 +4,23 @@ Timed with hyperfine when it is installed (``apt-get install -y hyperfine``), el
 subprocess timing here; both start a new process per run, so interpreter start-up and
 imports are included. When a target is missed, the CLI is profiled with cProfile and
 ``python -X importtime``.
+
+Before/after comparison of two versions of sqlgen, interleaved in one run:
+
+    .venv/bin/python bench/tool.py --before REV [--after REV] [--runs 5]
+
+Each version is exported from git (``git archive``; without ``--after``, the working tree
+as installed is the "after") and run by the same ``.venv/bin/sqlgen`` with ``PYTHONPATH``
+pointing at the export. Every round times a build into an empty folder and a ``--check``
+of that folder for each version, the order rotated by one each round; one warm-up round.
 """
 
 from __future__ import annotations
 
+import argparse
 import io
 import json
+import os
 import pstats
 import shutil
 import statistics
@@ -107,3 +118,120 @@ def _import_rows(text: str, top: int = 8) -> list[tuple[float, str]]:
             rows.append((int(parts[1]) / 1e6, parts[2].rstrip()))
     rows.sort(reverse=True)
     return [(round(s, 3), name) for s, name in rows[:top]]
+
+
+REPO = Path(__file__).resolve().parent.parent
+
+
+def _export(rev: str, into: Path) -> Path:
+    """sqlgen and its templates at ``rev``, laid out as an importable package."""
+    into.mkdir(parents=True)
+    archive = subprocess.run(["git", "archive", rev, "sqlgen", "templates"], cwd=REPO,
+                             check=True, capture_output=True).stdout
+    subprocess.run(["tar", "-x", "-C", str(into)], input=archive, check=True)
+    (into / "templates").rename(into / "sqlgen" / "templates")
+    return into
+
+
+def _sql_files(folder: Path) -> dict[str, bytes]:
+    return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*.sql"))}
+
+
+def _templates(folder: Path) -> dict[str, bytes]:
+    return {p.name: p.read_bytes() for p in folder.glob("*.sql")}
+
+
+def compare(before: str, after: str | None, runs: int) -> dict:
+    """Median whole-process seconds of build and --check for each version, interleaved."""
+    with tempfile.TemporaryDirectory(prefix="sqlgen-compare-") as tmp:
+        work = Path(tmp)
+        (work / "spec.yml").write_text(generated.spec_text("month"))
+        paths = {"before": _export(before, work / "before")}
+        if after:
+            paths["after"] = _export(after, work / "after")
+        variants = [("before", before, [], paths["before"]),
+                    ("after", after or "working tree", [], paths.get("after"))]
+        help_text = _run(["--help"], variants[1][3], work, ["build"]).stdout
+        if "--jobs" in help_text:
+            variants.append(("after, --jobs 1", after or "working tree", ["--jobs", "1"],
+                             paths.get("after")))
+        times = {name: {"build": [], "check": []} for name, *_ in variants}
+        load = [os.getloadavg()[0]]
+        for index in range(runs + 1):
+            shift = index % len(variants)
+            for name, _rev, extra, path in variants[shift:] + variants[:shift]:
+                out = work / f"out-{name.replace(' ', '').replace(',', '')}"
+                shutil.rmtree(out, ignore_errors=True)
+                args = ["build", "spec.yml", "--dialect", "all", "--out", str(out), *extra]
+                for kind, more in (("build", []), ("check", ["--check"])):
+                    start = time.perf_counter()
+                    done = _run(args + more, path, work)
+                    elapsed = time.perf_counter() - start
+                    if done.returncode != 0:
+                        raise RuntimeError(f"{name}: sqlgen {' '.join(args + more)} failed:\n"
+                                           f"{done.stderr}")
+                    if index:  # round 0 is the warm-up
+                        times[name][kind].append(elapsed)
+            load.append(os.getloadavg()[0])
+        outputs = {name: _sql_files(work / f"out-{name.replace(' ', '').replace(',', '')}")
+                   for name, *_ in variants}
+        after_templates = (paths["after"] / "sqlgen" if after else REPO) / "templates"
+        templates_same = (_templates(paths["before"] / "sqlgen" / "templates")
+                          == _templates(after_templates))
+    return {
+        "runs": runs, "revisions": {name: rev for name, rev, *_ in variants},
+        "files": len(outputs["before"]),
+        "identical": all(o == outputs["before"] for o in outputs.values()),
+        "templates_same": templates_same,
+        "load_average": [round(x, 1) for x in load],
+        "median": {name: {k: statistics.median(v) for k, v in t.items()}
+                   for name, t in times.items()},
+        "times": times,
+    }
+
+
+def _run(args: list[str], path: Path | None, cwd: Path,
+         first: list[str] | None = None) -> subprocess.CompletedProcess:
+    env = dict(os.environ)
+    env.pop("PYTHONPATH", None)
+    if path is not None:
+        env["PYTHONPATH"] = str(path)
+    return subprocess.run([_sqlgen(), *(first or []), *args], cwd=cwd, env=env,
+                          capture_output=True, text=True, check=False)
+
+
+def compare_lines(result: dict) -> list[str]:
+    """The comparison as a Markdown table with its conditions."""
+    med = result["median"]
+    base = med["before"]
+    lines = [f"Median of {result['runs']} interleaved rounds after one warm-up, whole "
+             f"processes (`.venv/bin/sqlgen`), {result['files']} SQL files; load average "
+             f"during the run {min(result['load_average'])}–{max(result['load_average'])}. "
+             f"Files byte-identical between the versions: "
+             f"{'yes' if result['identical'] else 'no'}"
+             + ("" if result["templates_same"] else " (the templates differ between them)")
+             + ".", "",
+             "| version | build s | vs before | `--check` s | vs before |",
+             "| --- | --- | --- | --- | --- |"]
+    for name, m in med.items():
+        rev = result["revisions"][name]
+        lines.append(f"| {name} (`{rev}`) | {m['build']:.3f} | "
+                     f"{base['build'] / m['build']:.1f}× | {m['check']:.3f} | "
+                     f"{base['check'] / m['check']:.1f}× |")
+    return lines
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description="Compare the CLI of two sqlgen versions.")
+    parser.add_argument("--before", required=True, metavar="REV", help="git revision")
+    parser.add_argument("--after", metavar="REV",
+                        help="git revision (default: the working tree as installed)")
+    parser.add_argument("--runs", type=int, default=5)
+    args = parser.parse_args(argv)
+    result = compare(args.before, args.after, args.runs)
+    print("\n".join(compare_lines(result)))
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,7 +1,9 @@
 """Every target dialect in one table, and the AST rewrites that make SQL right for each.
 
 Templates are written once in the source dialect (DuckDB). Everything a target spells
-differently lives here, as a function from a sqlglot tree to a sqlglot tree.
+differently lives here, as a function from a sqlglot tree to a sqlglot tree. A rewrite
+changes the tree it is given in place (``transform(..., copy=False)``) and returns the new
+root: pass it a tree of your own (the compiler copies each view's parsed tree per target).
 """
 
 from __future__ import annotations
@@ -62,7 +64,7 @@ def lower_time_zones(tree: exp.Expression) -> exp.Expression:
             return exp.ConvertTimezone(source_tz=inner.args["target_tz"],
                                        target_tz=node.args["zone"], timestamp=inner.args["timestamp"])
         return exp.ConvertTimezone(target_tz=node.args["zone"], timestamp=node.this)
-    return tree.transform(rewrite)
+    return tree.transform(rewrite, copy=False)
 
 
 def _zone_rewrite(spell: Callable[[exp.Expression, exp.Expression | None, exp.Expression],
@@ -72,7 +74,7 @@ def _zone_rewrite(spell: Callable[[exp.Expression, exp.Expression | None, exp.Ex
         if isinstance(node, exp.ConvertTimezone):
             return spell(node.args["timestamp"], node.args.get("source_tz"), node.args["target_tz"])
         return node
-    return lambda tree: tree.transform(rewrite)
+    return lambda tree: tree.transform(rewrite, copy=False)
 
 
 def _zones_at_time_zone(ts, source, target):
@@ -145,7 +147,7 @@ def sqlite_date_parts(tree: exp.Expression) -> exp.Expression:
                        node.expression)
             return exp.Cast(this=text, to=exp.DataType.build("INTEGER"))
         return node
-    return tree.transform(rewrite)
+    return tree.transform(rewrite, copy=False)
 
 
 def int_date_offsets(tree: exp.Expression) -> exp.Expression:
@@ -156,7 +158,7 @@ def int_date_offsets(tree: exp.Expression) -> exp.Expression:
             node.set("expression", exp.Cast(this=node.expression,
                                             to=exp.DataType.build("INT")))
         return node
-    return tree.transform(rewrite)
+    return tree.transform(rewrite, copy=False)
 
 
 def constant_unions_as_values(tree: exp.Expression) -> exp.Expression:
@@ -182,7 +184,7 @@ def constant_unions_as_values(tree: exp.Expression) -> exp.Expression:
         name = node.find(exp.Alias).alias
         rows = exp.values([(v.copy(),) for v in found], alias="sqlgen_values", columns=[name])
         return exp.select(name).from_(rows)
-    return tree.transform(rewrite)
+    return tree.transform(rewrite, copy=False)
 
 
 def window_keys_nulls_default(tree: exp.Expression) -> exp.Expression:
@@ -265,7 +267,7 @@ def interval_add_to_date_add(tree: exp.Expression) -> exp.Expression:
             unit = exp.var(interval.unit.name.upper())
             return exp.DateAdd(this=node.this, expression=amount, unit=unit)
         return node
-    return tree.transform(rewrite)
+    return tree.transform(rewrite, copy=False)
 
 
 def spec_identifiers(target: Target) -> Transform:
@@ -285,7 +287,7 @@ def spec_identifiers(target: Target) -> Transform:
                 text = text.upper()
             return exp.Identifier(this=text, quoted=True)
         return node
-    return lambda tree: tree.transform(rewrite)
+    return lambda tree: tree.transform(rewrite, copy=False)
 
 
 def rewrites(target: Target) -> list[Transform]:

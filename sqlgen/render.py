@@ -12,7 +12,6 @@ from dataclasses import dataclass
 from importlib import resources
 from pathlib import Path
 
-import jinja2
 import sqlglot
 from sqlglot import exp
 
@@ -64,7 +63,9 @@ def templates_dir() -> Path:
 
 
 @functools.lru_cache(maxsize=1)
-def _environment() -> jinja2.Environment:
+def _environment():
+    import jinja2  # only a compile needs it; `sqlgen build --check` of a fresh folder does not
+
     return jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(templates_dir())),
         undefined=jinja2.StrictUndefined,
@@ -132,7 +133,8 @@ def _revenue_markers(spec: Spec, columns: dict, tables: dict, literals: dict) ->
 
 
 def bind(tree: exp.Expression, spec: Spec, view_table) -> exp.Expression:
-    """Replace the markers with sqlglot nodes built from the spec."""
+    """Replace the markers with sqlglot nodes built from the spec, in place (the tree is the
+    caller's own fresh parse); returns the root."""
     found = markers(spec)
 
     def rewrite(node: exp.Expression) -> exp.Expression:
@@ -147,7 +149,7 @@ def bind(tree: exp.Expression, spec: Spec, view_table) -> exp.Expression:
             return found.literals[node.this].copy()
         return node
 
-    return tree.transform(rewrite)
+    return tree.transform(rewrite, copy=False)
 
 
 def _with_alias(table: exp.Table, marker: exp.Table) -> exp.Table:
@@ -170,4 +172,4 @@ def filter_tree(text: str, spec: Spec) -> exp.Expression:
             return ident
         return node
 
-    return tree.transform(mark)
+    return tree.transform(mark, copy=False)
