@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import argparse
 import difflib
+import os
 import sys
 from pathlib import Path
 
@@ -31,6 +32,18 @@ def _dialects(value: str) -> list[str]:
     return names
 
 
+def _jobs(value: str) -> int:
+    if not value.isdigit() or int(value) < 1:
+        raise argparse.ArgumentTypeError(f"{value!r} is not a whole number of at least 1")
+    return int(value)
+
+
+def _usable_cpus() -> int:
+    if hasattr(os, "sched_getaffinity"):  # Linux: the CPUs this process may run on
+        return len(os.sched_getaffinity(0))
+    return os.cpu_count() or 1
+
+
 def _parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="sqlgen", description="Generate growth-accounting SQL views from a YAML spec.")
@@ -46,6 +59,9 @@ def _parser() -> argparse.ArgumentParser:
                        "relative to the spec; with several dialects one subfolder each)")
     build.add_argument("--check", action="store_true",
                        help="write nothing; exit 1 with a diff if the files are not up to date")
+    build.add_argument("--jobs", type=_jobs, default=None, metavar="N",
+                       help="with several dialects, compile in up to N processes "
+                            "(default: the number of CPUs this process may use)")
 
     validate = sub.add_parser("validate", help="check a spec and report every problem")
     validate.add_argument("spec", help="the YAML spec file")
@@ -75,7 +91,8 @@ def _build(args: argparse.Namespace) -> int:
     # hashes holds what a build would write: no need to compile its target.
     fresh = [is_up_to_date(folder, inputs, names) for folder, _, inputs in plans]
     todo = [plan for plan, ok in zip(plans, fresh) if not ok]
-    rendered = render_targets(spec, [target for _, target, _ in todo]) if todo else {}
+    rendered = (render_targets(spec, [target for _, target, _ in todo],
+                               args.jobs or _usable_cpus()) if todo else {})
     if args.check:
         return _check([(folder, rendered[target]) for folder, target, _ in todo])
     results = iter(write_folders([(folder, rendered[target], inputs)

@@ -3,9 +3,13 @@
 from __future__ import annotations
 
 import functools
+import gc
 import hashlib
 import json
+import os
+import pickle
 import sys
+import threading
 from dataclasses import asdict, dataclass
 from importlib import metadata
 from pathlib import Path
@@ -16,7 +20,7 @@ from sqlglot.errors import ErrorLevel, UnsupportedError as SqlglotUnsupported
 
 from . import __version__, names
 from .dialects import TARGETS, Target, rewrites
-from .errors import UnsupportedError
+from .errors import SqlgenError, UnsupportedError
 from .render import bind, parse, render, templates_dir
 from .spec import Spec
 from .support import require_support
@@ -75,6 +79,12 @@ class Queries:
         self._rest = {name: chain[shared:] for name, chain in chains.items()}
         self._uses = len(targets)
         self._trees: dict[str, tuple[exp.Expression, int]] = {}  # view -> (tree, uses left)
+
+    def prepare(self, views: list[View]) -> None:
+        """Parse every view now (before the targets are compiled in several processes)."""
+        for view in views:
+            if view.name not in self._trees:
+                self._trees[view.name] = (self._prepared(view), self._uses)
 
     def query(self, view: View, target: Target) -> exp.Expression:
         """The view's SELECT rewritten for ``target`` (one of this build's targets)."""
@@ -213,10 +223,76 @@ def render_files(spec: Spec, target_name: str | None = None,
     return files
 
 
-def render_targets(spec: Spec, target_names: list[str]) -> dict[str, dict[str, str]]:
-    """``render_files`` for several targets, each view parsed once for all of them."""
+def render_targets(spec: Spec, target_names: list[str],
+                   jobs: int = 1) -> dict[str, dict[str, str]]:
+    """``render_files`` for several targets, each view parsed once for all of them.
+
+    With ``jobs`` > 1 (on Linux, where forking is the usual way to start a process, and
+    while no other thread runs) the targets are compiled in up to that many processes,
+    forked once every view is parsed. The files are
+    the same bytes either way, and so is the error: that of the first target, in order,
+    that cannot be compiled.
+    """
     queries = Queries(spec, [TARGETS[name] for name in target_names])
-    return {name: render_files(spec, name, queries) for name in target_names}
+    distinct = list(dict.fromkeys(target_names))
+    jobs = min(jobs, len(distinct))
+    if jobs < 2 or not sys.platform.startswith("linux") or threading.active_count() > 1:
+        return {name: render_files(spec, name, queries) for name in target_names}
+    queries.prepare(planned_views(spec))
+    # Objects made so far are shared with the workers; keeping the collector off them
+    # spares every process a pass over (and copies of) the whole inherited heap.
+    gc.freeze()
+    groups = [distinct[i::jobs] for i in range(jobs)]
+    workers = [_Worker(lambda group=group: _render_until_error(spec, group, queries))
+               for group in groups[1:]]
+    done: dict[str, dict[str, str]] = {}
+    try:
+        done.update(_render_until_error(spec, groups[0], queries))
+    finally:  # even when this process failed: wait for every worker
+        for worker in workers:
+            done.update(worker.result())
+        gc.unfreeze()
+    # A target not done (it failed, or its worker died) is compiled here, in order: the
+    # first one that cannot be compiled raises its own error, as without workers.
+    return {name: done[name] if name in done else render_files(spec, name, queries)
+            for name in target_names}
+
+
+def _render_until_error(spec: Spec, names: list[str], queries: Queries) -> dict:
+    done = {}
+    for name in names:
+        try:
+            done[name] = render_files(spec, name, queries)
+        except SqlgenError:
+            break
+    return done
+
+
+class _Worker:
+    """A forked process that runs ``work()`` and sends its result back through a pipe."""
+
+    def __init__(self, work):
+        read, write = os.pipe()
+        pid = os.fork()
+        if pid == 0:  # the child: never returns, never runs the parent's exit handlers
+            code = 1
+            try:
+                os.close(read)
+                data = pickle.dumps(work(), protocol=pickle.HIGHEST_PROTOCOL)
+                with os.fdopen(write, "wb") as pipe:
+                    pipe.write(data)
+                code = 0
+            finally:
+                os._exit(code)
+        os.close(write)
+        self.pid, self.read = pid, read
+
+    def result(self) -> dict:
+        """What the worker sent, or {} if it failed (its targets are compiled again)."""
+        with os.fdopen(self.read, "rb") as pipe:
+            data = pipe.read()
+        _, status = os.waitpid(self.pid, 0)
+        return pickle.loads(data) if status == 0 and data else {}
 
 
 @functools.lru_cache(maxsize=1)

@@ -11,6 +11,7 @@ the golden files (tests/test_golden.py). No timing is asserted (bench/README.md 
 
 from __future__ import annotations
 
+import os
 import shutil
 import subprocess
 import sys
@@ -21,7 +22,7 @@ import sqlglot
 from sqlglot import exp
 
 import sqlgen.cli as cli
-from sqlgen import compiler, parse_spec
+from sqlgen import SqlgenError, compiler, parse_spec
 from sqlgen.dialects import TARGETS, rewrites
 from sqlgen.output import MANIFEST
 from sqlgen.render import bind, render
@@ -155,8 +156,6 @@ def _sqlgen_copy(where: Path, edit) -> Path:
 
 
 def _command(pythonpath: Path, *args: str) -> subprocess.CompletedProcess:
-    import os
-
     env = {**os.environ, "PYTHONPATH": str(pythonpath)}
     return subprocess.run([sys.executable, "-m", "sqlgen", *args], env=env, cwd=pythonpath,
                           capture_output=True, text=True, timeout=300)
@@ -286,3 +285,68 @@ def test_a_file_in_place_of_the_output_folder_is_refused(tmp_path):
     code, _, err = run("build", str(spec), "--dialect", "duckdb,postgres", "--out", str(out))
     assert code == 1 and err == f"Error: {out} exists and is not a folder\n"
     assert out.read_text() == "not a folder\n"
+
+
+forking = pytest.mark.skipif(not sys.platform.startswith("linux"),
+                             reason="several processes only on Linux")
+
+
+@forking
+def test_several_processes_give_the_same_files():
+    spec = parse_spec(SPEC, "spec.yml")
+    names = [name for name in TARGETS if name != "sqlite"]
+    assert compiler.render_targets(spec, names, jobs=3) == compiler.render_targets(spec, names)
+
+
+@forking
+def test_a_worker_that_dies_costs_time_not_files(monkeypatch):
+    parent = os.getpid()
+    original = compiler._render_until_error
+
+    def dying(*args):
+        if os.getpid() != parent:
+            os._exit(3)  # as if killed
+        return original(*args)
+
+    monkeypatch.setattr(compiler, "_render_until_error", dying)
+    spec = parse_spec(SPEC, "spec.yml")
+    names = ["duckdb", "postgres", "tsql", "spark"]
+    assert compiler.render_targets(spec, names, jobs=2) == {
+        name: compiler.render_files(spec, name) for name in names}
+
+
+@forking
+def test_the_first_failing_target_is_reported_whatever_the_jobs(tmp_path):
+    """SQLite and T-SQL cannot convert to a named zone; SQLite comes first in the list."""
+    spec = tmp_path / "spec.yml"
+    spec.write_text(SPEC.replace("  where:", "  timezone: Europe/Paris\n  where:"))
+    results = [run("build", str(spec), "--dialect", "duckdb,sqlite,trino,tsql", "--out",
+                   str(tmp_path / f"out{jobs}"), "--jobs", jobs) for jobs in ("1", "4")]
+    assert results[0] == results[1]
+    assert results[0][2].startswith("Error: dialect 'sqlite' cannot generate")
+    with pytest.raises(SqlgenError, match="dialect 'tsql'"):
+        compiler.render_targets(parse_spec(spec.read_text(), "spec.yml"),
+                                ["duckdb", "trino", "tsql"], jobs=3)
+
+
+@forking
+def test_the_command_in_several_processes_writes_the_same_bytes(tmp_path):
+    """The installed command has no other thread, so it forks."""
+    spec = tmp_path / "spec.yml"
+    spec.write_text(SPEC)
+    trees = []
+    for jobs in ("1", "3"):
+        out = tmp_path / f"out{jobs}"
+        done = subprocess.run([sys.executable, "-m", "sqlgen", "build", str(spec), "--dialect",
+                               "duckdb,postgres,spark,tsql,bigquery", "--out", str(out),
+                               "--jobs", jobs], capture_output=True, text=True, timeout=300)
+        assert done.returncode == 0, done.stderr
+        trees.append({str(p.relative_to(out)): p.read_bytes() for p in out.rglob("*")
+                      if p.is_file()})
+    assert trees[0] == trees[1] and len(trees[0]) == 5 * 13  # 12 files and a manifest each
+
+
+def test_jobs_must_be_a_positive_number(tmp_path):
+    with pytest.raises(SystemExit) as stop:
+        run("build", str(tmp_path / "spec.yml"), "--jobs", "0")
+    assert stop.value.code == 2
