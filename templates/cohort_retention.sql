@@ -1,5 +1,8 @@
 {%- import '_periods.sql' as p with context -%}
 {%- import '_activity.sql' as a with context -%}
+{#- data_range reads active_periods, not the small cohort_actives: with a single reference
+    DuckDB would inline active_periods and turn the MIN window into a join of two groupings
+    of the events (measured in bench/: 1.80x the floor against 1.14x). -#}
 {#- Cohort = a user's first active period; one row per cohort and age (periods since the
     cohort period) up to the last period with data, zero rows included: a full triangle. -#}
 WITH {{ a.active_periods() }}, marked AS (
@@ -16,8 +19,8 @@ WITH {{ a.active_periods() }}, marked AS (
   FROM cohort_actives
   WHERE active_key = active_cohort_key
 ), data_range AS (
-  SELECT MIN(active_key) AS first_data_key, MAX(active_key) AS last_data_key
-  FROM cohort_actives
+  SELECT MIN(period_key) AS first_data_key, MAX(period_key) AS last_data_key
+  FROM active_periods
 ), {{ p.digits_cte() }}, ages AS (
   SELECT {{ p.counting_value(grain.calendar_digits) }} AS age_number
   FROM data_range AS r

@@ -28,73 +28,33 @@ WITH sqlgen_source AS (
   FROM dated
   WHERE
     NOT activity_date IS NULL
-), user_periods AS (
-  SELECT
-    user_id,
-    period_key,
-    COUNT(*) AS events,
-    COUNT(DISTINCT activity_date) AS active_days,
-    MIN(activity_date) AS first_active_date,
-    MAX(activity_date) AS last_active_date
-  FROM keyed
-  GROUP BY
-    user_id,
-    period_key
 )
 SELECT
   user_id,
   period_key,
   CAST(CAST('1970-01-01' AS DATE) + INTERVAL (period_key - 23640) MONTH AS DATE) AS period_start,
-  events,
-  active_days,
-  first_active_date,
-  last_active_date
-FROM user_periods;
+  COUNT(*) AS events,
+  COUNT(DISTINCT activity_date) AS active_days,
+  MIN(activity_date) AS first_active_date,
+  MAX(activity_date) AS last_active_date
+FROM keyed
+GROUP BY
+  user_id,
+  period_key;
 
 -- user_states
 CREATE OR REPLACE VIEW "before_month".user_states AS
-WITH sqlgen_source AS (
-  SELECT
-    "user_id" AS sqlgen_user,
-    "ts" AS sqlgen_ts
-  FROM "events"
-  WHERE
-    NOT "user_id" IS NULL AND NOT "ts" IS NULL
-), dated AS (
-  SELECT
-    sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
-), keyed AS (
-  SELECT
-    user_id,
-    activity_date,
-    (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
-    ) AS period_key
-  FROM dated
-  WHERE
-    NOT activity_date IS NULL
-), active_periods AS (
-  SELECT
-    user_id,
-    period_key,
-    MAX(activity_date) AS last_date
-  FROM keyed
-  GROUP BY
-    user_id,
-    period_key
-), sequenced AS (
+WITH sequenced AS (
   SELECT
     user_id,
     period_key,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key,
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS later_key
-  FROM active_periods
+  FROM "before_month".user_activity
 ), data_range AS (
   SELECT
     MAX(period_key) AS last_key
-  FROM active_periods
+  FROM "before_month".user_activity
 ), lapsed AS (
   SELECT
     s.user_id,
@@ -129,58 +89,23 @@ FROM lapsed;
 
 -- growth_accounting
 CREATE OR REPLACE VIEW "before_month".growth_accounting AS
-WITH sqlgen_source AS (
-  SELECT
-    "user_id" AS sqlgen_user,
-    "ts" AS sqlgen_ts
-  FROM "events"
-  WHERE
-    NOT "user_id" IS NULL AND NOT "ts" IS NULL
-), dated AS (
-  SELECT
-    sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
-), keyed AS (
-  SELECT
-    user_id,
-    activity_date,
-    (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
-    ) AS period_key
-  FROM dated
-  WHERE
-    NOT activity_date IS NULL
-), active_periods AS (
-  SELECT
-    user_id,
-    period_key,
-    MAX(activity_date) AS last_date
-  FROM keyed
-  GROUP BY
-    user_id,
-    period_key
-), sequenced AS (
-  SELECT
-    period_key,
-    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
-  FROM active_periods
-), tallies AS (
+WITH tallies AS (
   SELECT
     period_key AS tally_key,
-    COUNT(*) AS active_tally,
-    COUNT(CASE WHEN prior_key IS NULL THEN 1 END) AS new_tally,
-    COUNT(CASE WHEN prior_key = period_key - 1 THEN 1 END) AS retained_tally,
-    COUNT(CASE WHEN prior_key < period_key - 1 THEN 1 END) AS resurrected_tally
-  FROM sequenced
+    COUNT(CASE WHEN state <> 'churned' THEN 1 END) AS active_tally,
+    COUNT(CASE WHEN state = 'new' THEN 1 END) AS new_tally,
+    COUNT(CASE WHEN state = 'retained' THEN 1 END) AS retained_tally,
+    COUNT(CASE WHEN state = 'resurrected' THEN 1 END) AS resurrected_tally,
+    COUNT(CASE WHEN state = 'churned' THEN 1 END) AS churned_tally
+  FROM "before_month".user_states
   GROUP BY
     period_key
 ), data_range AS (
   SELECT
     MIN(period_key) AS first_key,
     MAX(period_key) AS last_key,
-    MAX(last_date) AS data_through
-  FROM active_periods
+    MAX(last_active_date) AS data_through
+  FROM "before_month".user_activity
 ), data_edge AS (
   SELECT
     first_key,
@@ -241,6 +166,7 @@ WITH sqlgen_source AS (
     COALESCE(t.new_tally, 0) AS new_count,
     COALESCE(t.retained_tally, 0) AS retained_count,
     COALESCE(t.resurrected_tally, 0) AS resurrected_count,
+    COALESCE(t.churned_tally, 0) AS churned_count,
     CASE
       WHEN c.calendar_key = e.last_key AND e.after_data_key = e.last_key
       THEN 'in_progress'
@@ -250,7 +176,7 @@ WITH sqlgen_source AS (
   CROSS JOIN data_edge AS e
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
-), sequenced_totals AS (
+), sequenced AS (
   SELECT
     calendar_key,
     active_count,
@@ -258,19 +184,9 @@ WITH sqlgen_source AS (
     new_count,
     retained_count,
     resurrected_count,
+    churned_count,
     status
   FROM filled
-), balanced AS (
-  SELECT
-    calendar_key,
-    active_count,
-    previous_count,
-    new_count,
-    retained_count,
-    resurrected_count,
-    previous_count - retained_count AS churned_count,
-    status
-  FROM sequenced_totals
 )
 SELECT
   CAST(CAST('1970-01-01' AS DATE) + INTERVAL (calendar_key - 23640) MONTH AS DATE) AS period_start,
@@ -286,46 +202,15 @@ SELECT
   CAST(churned_count AS DOUBLE) / NULLIF(previous_count, 0) AS churn_rate,
   status AS period_status,
   calendar_key AS period_key
-FROM balanced;
+FROM sequenced;
 
 -- cohort_retention
 CREATE OR REPLACE VIEW "before_month".cohort_retention AS
-WITH sqlgen_source AS (
-  SELECT
-    "user_id" AS sqlgen_user,
-    "ts" AS sqlgen_ts
-  FROM "events"
-  WHERE
-    NOT "user_id" IS NULL AND NOT "ts" IS NULL
-), dated AS (
-  SELECT
-    sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
-), keyed AS (
-  SELECT
-    user_id,
-    activity_date,
-    (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
-    ) AS period_key
-  FROM dated
-  WHERE
-    NOT activity_date IS NULL
-), active_periods AS (
-  SELECT
-    user_id,
-    period_key,
-    MAX(activity_date) AS last_date
-  FROM keyed
-  GROUP BY
-    user_id,
-    period_key
-), marked AS (
+WITH marked AS (
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
-  FROM active_periods
+  FROM "before_month".user_activity
 ), cohort_actives AS (
   SELECT
     marked_cohort_key AS active_cohort_key,
@@ -346,7 +231,7 @@ WITH sqlgen_source AS (
   SELECT
     MIN(period_key) AS first_data_key,
     MAX(period_key) AS last_data_key
-  FROM active_periods
+  FROM "before_month".user_activity
 ), digits AS (
   SELECT
     0 AS n
@@ -425,62 +310,49 @@ WITH sqlgen_source AS (
     NOT "user_id" IS NULL AND NOT "ts" IS NULL
 ), dated AS (
   SELECT
-    sqlgen_user AS user_id,
+    sqlgen_user AS day_user,
     CAST(sqlgen_ts AS DATE) AS activity_date
   FROM sqlgen_source
 ), numbered AS (
   SELECT
-    user_id AS day_user,
+    day_user,
     DATE_DIFF('DAY', CAST('1970-01-05' AS DATE), activity_date) AS day_number
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
-), blocked AS (
+), user_days AS (
   SELECT
-    day_user,
-    day_number,
-    day_number - (
-      day_number + 700000
-    ) % 28 AS block_number
+    day_user AS visit_user,
+    day_number AS visit_day
   FROM numbered
-), user_blocks AS (
-  SELECT
-    day_user AS block_user,
-    block_number,
-    MIN(day_number) AS first_day,
-    MAX(day_number) AS last_day
-  FROM blocked
   GROUP BY
     day_user,
-    block_number
+    day_number
 ), visits AS (
   SELECT
-    first_day,
-    last_day,
-    LAG(block_number) OVER (PARTITION BY block_user ORDER BY block_number) AS prior_block,
-    LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number) AS next_day
-  FROM user_blocks
+    visit_user,
+    visit_day,
+    LAG(visit_day) OVER (PARTITION BY visit_user ORDER BY visit_day) AS prior_day,
+    LEAD(visit_day) OVER (PARTITION BY visit_user ORDER BY visit_day) AS next_day
+  FROM user_days
 ), window_lengths AS (
   SELECT
     28 AS window_length
 ), spans AS (
   SELECT
     w.window_length AS span_window,
-    v.first_day AS start_day,
-    v.last_day + w.window_length AS lapse_day,
+    v.visit_day AS start_day,
     CASE
-      WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length
-      THEN v.last_day + w.window_length
+      WHEN v.next_day IS NULL OR v.next_day > v.visit_day + w.window_length
+      THEN v.visit_day + w.window_length
       ELSE v.next_day
     END AS end_day,
     CASE
-      WHEN v.next_day IS NULL OR v.next_day > v.last_day + 2 * w.window_length
-      THEN v.last_day + 2 * w.window_length
+      WHEN v.next_day IS NULL OR v.next_day > v.visit_day + 2 * w.window_length
+      THEN v.visit_day + 2 * w.window_length
       ELSE v.next_day
     END AS churn_end_day,
-    CASE WHEN v.prior_block IS NULL THEN 1 ELSE 0 END AS first_visit,
+    CASE WHEN v.prior_day IS NULL THEN 1 ELSE 0 END AS first_visit,
     CASE
-      WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length
+      WHEN v.next_day IS NULL OR v.next_day > v.visit_day + w.window_length
       THEN 1
       ELSE 0
     END AS lapse
@@ -502,7 +374,7 @@ WITH sqlgen_source AS (
     0,
     1,
     0 - first_visit,
-    0
+    lapse
   FROM spans
   UNION ALL
   SELECT
@@ -522,17 +394,6 @@ WITH sqlgen_source AS (
     0,
     0
   FROM spans
-  UNION ALL
-  SELECT
-    span_window,
-    lapse_day,
-    0,
-    0,
-    0,
-    1
-  FROM spans
-  WHERE
-    lapse = 1
   UNION ALL
   SELECT
     span_window,
@@ -558,9 +419,9 @@ WITH sqlgen_source AS (
     change_day
 ), data_range AS (
   SELECT
-    MIN(first_day) AS first_day,
-    MAX(last_day) AS last_day
-  FROM user_blocks
+    MIN(visit_day) AS first_day,
+    MAX(visit_day) AS last_day
+  FROM user_days
 ), digits AS (
   SELECT
     0 AS n

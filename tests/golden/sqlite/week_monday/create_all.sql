@@ -437,9 +437,9 @@ WITH sqlgen_source AS (
     active_key = active_cohort_key
 ), data_range AS (
   SELECT
-    MIN(active_key) AS first_data_key,
-    MAX(active_key) AS last_data_key
-  FROM cohort_actives
+    MIN(period_key) AS first_data_key,
+    MAX(period_key) AS last_data_key
+  FROM active_periods
 ), digits AS (
   SELECT
     0 AS n
