@@ -38,10 +38,18 @@ def _jobs(value: str) -> int:
     return int(value)
 
 
-def _usable_cpus() -> int:
+def _spare_cpus() -> int:
+    """CPUs this process may use that are not already busy (1-minute load average), at
+    least 1: on a loaded machine, more processes only queue behind the others."""
     if hasattr(os, "sched_getaffinity"):  # Linux: the CPUs this process may run on
-        return len(os.sched_getaffinity(0))
-    return os.cpu_count() or 1
+        usable = len(os.sched_getaffinity(0))
+    else:
+        usable = os.cpu_count() or 1
+    try:
+        busy = int(os.getloadavg()[0])
+    except (AttributeError, OSError):  # no load average on this platform
+        busy = 0
+    return max(1, usable - busy)
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -61,7 +69,7 @@ def _parser() -> argparse.ArgumentParser:
                        help="write nothing; exit 1 with a diff if the files are not up to date")
     build.add_argument("--jobs", type=_jobs, default=None, metavar="N",
                        help="with several dialects, compile in up to N processes "
-                            "(default: the number of CPUs this process may use)")
+                            "(default: the CPUs not already busy, by the load average)")
 
     validate = sub.add_parser("validate", help="check a spec and report every problem")
     validate.add_argument("spec", help="the YAML spec file")
@@ -92,7 +100,7 @@ def _build(args: argparse.Namespace) -> int:
     fresh = [is_up_to_date(folder, inputs, names) for folder, _, inputs in plans]
     todo = [plan for plan, ok in zip(plans, fresh) if not ok]
     rendered = (render_targets(spec, [target for _, target, _ in todo],
-                               args.jobs or _usable_cpus()) if todo else {})
+                               args.jobs or _spare_cpus()) if todo else {})
     if args.check:
         return _check([(folder, rendered[target]) for folder, target, _ in todo])
     results = iter(write_folders([(folder, rendered[target], inputs)

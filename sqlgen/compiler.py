@@ -79,12 +79,8 @@ class Queries:
         self._rest = {name: chain[shared:] for name, chain in chains.items()}
         self._uses = len(targets)
         self._trees: dict[str, tuple[exp.Expression, int]] = {}  # view -> (tree, uses left)
-
-    def prepare(self, views: list[View]) -> None:
-        """Parse every view now (before the targets are compiled in several processes)."""
-        for view in views:
-            if view.name not in self._trees:
-                self._trees[view.name] = (self._prepared(view), self._uses)
+        # (target, view) -> statements compiled ahead, in other processes (render_targets)
+        self.statements: dict[tuple[str, str], tuple[str, ...]] = {}
 
     def query(self, view: View, target: Target) -> exp.Expression:
         """The view's SELECT rewritten for ``target`` (one of this build's targets)."""
@@ -199,7 +195,8 @@ def compile_spec(spec: Spec, target_name: str | None = None,
     queries = queries or Queries(spec, [target])
     out = []
     for view in views:
-        statements = ddl_statements(view, spec, target, queries)
+        statements = (queries.statements.get((target.name, view.name))
+                      or ddl_statements(view, spec, target, queries))
         body = "\n\n".join(s + ";" for s in statements)
         text = "\n".join(header(spec, target, view)) + "\n\n" + body + "\n"
         out.append(CompiledView(view, view_table(spec, view.name).sql(target.sqlglot_dialect,
@@ -228,43 +225,55 @@ def render_targets(spec: Spec, target_names: list[str],
     """``render_files`` for several targets, each view parsed once for all of them.
 
     With ``jobs`` > 1 (on Linux, where forking is the usual way to start a process, and
-    while no other thread runs) the targets are compiled in up to that many processes,
-    forked once every view is parsed. The files are
-    the same bytes either way, and so is the error: that of the first target, in order,
-    that cannot be compiled.
+    while no other thread runs) the views are split over up to that many processes, each
+    parsing and compiling its views for every target. The files are the same bytes either
+    way, and so is the error: the first one met compiling target by target, view by view.
     """
     queries = Queries(spec, [TARGETS[name] for name in target_names])
-    distinct = list(dict.fromkeys(target_names))
-    jobs = min(jobs, len(distinct))
-    if jobs < 2 or not sys.platform.startswith("linux") or threading.active_count() > 1:
-        return {name: render_files(spec, name, queries) for name in target_names}
-    queries.prepare(planned_views(spec))
-    # Objects made so far are shared with the workers; keeping the collector off them
-    # spares every process a pass over (and copies of) the whole inherited heap.
-    gc.freeze()
-    groups = [distinct[i::jobs] for i in range(jobs)]
-    workers = [_Worker(lambda group=group: _render_until_error(spec, group, queries))
-               for group in groups[1:]]
-    done: dict[str, dict[str, str]] = {}
-    try:
-        done.update(_render_until_error(spec, groups[0], queries))
-    finally:  # even when this process failed: wait for every worker
-        for worker in workers:
-            done.update(worker.result())
-        gc.unfreeze()
-    # A target not done (it failed, or its worker died) is compiled here, in order: the
-    # first one that cannot be compiled raises its own error, as without workers.
-    return {name: done[name] if name in done else render_files(spec, name, queries)
-            for name in target_names}
+    views = planned_views(spec)
+    jobs = min(jobs, len(views))
+    if jobs > 1 and sys.platform.startswith("linux") and threading.active_count() == 1:
+        names = list(dict.fromkeys(target_names))
+        groups = [views[i::jobs] for i in range(jobs)]
+        # What exists now is shared with the workers; keeping the collector off it spares
+        # every process a pass over (and copies of) the whole inherited heap.
+        gc.freeze()
+        workers = []
+        for group in groups[1:]:
+            try:
+                workers.append(_Worker(lambda group=group: _statements(spec, group, names,
+                                                                       queries)))
+            except OSError:  # no more processes: the groups left are compiled below
+                break
+        try:
+            queries.statements.update(_statements(spec, groups[0], names, queries))
+        finally:  # even when this process failed: wait for every worker
+            for worker in workers:
+                queries.statements.update(worker.result())
+            gc.unfreeze()
+    # Whatever no process compiled (an error, or a worker that died) is compiled here, in
+    # order: the first part that cannot be compiled raises its own error.
+    return {name: render_files(spec, name, queries) for name in target_names}
 
 
-def _render_until_error(spec: Spec, names: list[str], queries: Queries) -> dict:
-    done = {}
+def _statements(spec: Spec, views: list[View], names: list[str],
+                queries: Queries) -> dict[tuple[str, str], tuple[str, ...]]:
+    """(target, view) -> DDL statements for these views and targets; what fails is left out."""
+    every_view = [v.name for v in planned_views(spec)]
+    targets = []
     for name in names:
         try:
-            done[name] = render_files(spec, name, queries)
+            require_support(spec, TARGETS[name], every_view)
+            targets.append(TARGETS[name])
         except SqlgenError:
-            break
+            pass
+    done = {}
+    for view in views:
+        for target in targets:
+            try:
+                done[(target.name, view.name)] = ddl_statements(view, spec, target, queries)
+            except SqlgenError:
+                pass
     return done
 
 
@@ -288,7 +297,7 @@ class _Worker:
         self.pid, self.read = pid, read
 
     def result(self) -> dict:
-        """What the worker sent, or {} if it failed (its targets are compiled again)."""
+        """What the worker sent, or {} if it failed (its part is then compiled again)."""
         with os.fdopen(self.read, "rb") as pipe:
             data = pipe.read()
         _, status = os.waitpid(self.pid, 0)

@@ -301,14 +301,14 @@ def test_several_processes_give_the_same_files():
 @forking
 def test_a_worker_that_dies_costs_time_not_files(monkeypatch):
     parent = os.getpid()
-    original = compiler._render_until_error
+    original = compiler._statements
 
     def dying(*args):
         if os.getpid() != parent:
             os._exit(3)  # as if killed
         return original(*args)
 
-    monkeypatch.setattr(compiler, "_render_until_error", dying)
+    monkeypatch.setattr(compiler, "_statements", dying)
     spec = parse_spec(SPEC, "spec.yml")
     names = ["duckdb", "postgres", "tsql", "spark"]
     assert compiler.render_targets(spec, names, jobs=2) == {
