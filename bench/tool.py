@@ -7,12 +7,14 @@ imports are included. When a target is missed, the CLI is profiled with cProfile
 
 Before/after comparison of two versions of sqlgen, interleaved in one run:
 
-    .venv/bin/python bench/tool.py --before REV [--after REV] [--runs 5]
+    .venv/bin/python bench/tool.py --before REV [--after REV] [--templates REV] [--runs 5]
 
 Each version is exported from git (``git archive``; without ``--after``, the working tree
 as installed is the "after") and run by the same ``.venv/bin/sqlgen`` with ``PYTHONPATH``
-pointing at the export. Every round times a build into an empty folder and a ``--check``
-of that folder for each version, the order rotated by one each round; one warm-up round.
+pointing at the export; ``--templates REV`` gives both exports the templates of REV, so
+that only the code differs (and the files must come out byte-identical). Every round
+times a build into an empty folder and a ``--check`` of that folder for each version, the
+order rotated by one each round; one warm-up round.
 """
 
 from __future__ import annotations
@@ -123,12 +125,14 @@ def _import_rows(text: str, top: int = 8) -> list[tuple[float, str]]:
 REPO = Path(__file__).resolve().parent.parent
 
 
-def _export(rev: str, into: Path) -> Path:
-    """sqlgen and its templates at ``rev``, laid out as an importable package."""
+def _export(rev: str, into: Path, templates: str | None = None) -> Path:
+    """sqlgen at ``rev`` with the templates of ``templates`` (default: ``rev``), laid out
+    as an importable package."""
     into.mkdir(parents=True)
-    archive = subprocess.run(["git", "archive", rev, "sqlgen", "templates"], cwd=REPO,
-                             check=True, capture_output=True).stdout
-    subprocess.run(["tar", "-x", "-C", str(into)], input=archive, check=True)
+    for what, at in (("sqlgen", rev), ("templates", templates or rev)):
+        archive = subprocess.run(["git", "archive", at, what], cwd=REPO, check=True,
+                                 capture_output=True).stdout
+        subprocess.run(["tar", "-x", "-C", str(into)], input=archive, check=True)
     (into / "templates").rename(into / "sqlgen" / "templates")
     return into
 
@@ -141,14 +145,16 @@ def _templates(folder: Path) -> dict[str, bytes]:
     return {p.name: p.read_bytes() for p in folder.glob("*.sql")}
 
 
-def compare(before: str, after: str | None, runs: int) -> dict:
+def compare(before: str, after: str | None, runs: int, templates: str | None = None) -> dict:
     """Median whole-process seconds of build and --check for each version, interleaved."""
     with tempfile.TemporaryDirectory(prefix="sqlgen-compare-") as tmp:
         work = Path(tmp)
         (work / "spec.yml").write_text(generated.spec_text("month"))
-        paths = {"before": _export(before, work / "before")}
+        if templates and not after:
+            raise ValueError("--templates needs --after (the working tree has its own)")
+        paths = {"before": _export(before, work / "before", templates)}
         if after:
-            paths["after"] = _export(after, work / "after")
+            paths["after"] = _export(after, work / "after", templates)
         variants = [("before", before, [], paths["before"]),
                     ("after", after or "working tree", [], paths.get("after"))]
         help_text = _run(["--help"], variants[1][3], work, ["build"]).stdout
@@ -180,6 +186,7 @@ def compare(before: str, after: str | None, runs: int) -> dict:
                           == _templates(after_templates))
     return {
         "runs": runs, "revisions": {name: rev for name, rev, *_ in variants},
+        "templates": templates,
         "files": len(outputs["before"]),
         "identical": all(o == outputs["before"] for o in outputs.values()),
         "templates_same": templates_same,
@@ -210,7 +217,8 @@ def compare_lines(result: dict) -> list[str]:
              f"Files byte-identical between the versions: "
              f"{'yes' if result['identical'] else 'no'}"
              + ("" if result["templates_same"] else " (the templates differ between them)")
-             + ".", "",
+             + "." + (f" Templates of `{result['templates']}` for both." if result["templates"]
+                      else ""), "",
              "| version | build s | vs before | `--check` s | vs before |",
              "| --- | --- | --- | --- | --- |"]
     for name, m in med.items():
@@ -226,9 +234,11 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--before", required=True, metavar="REV", help="git revision")
     parser.add_argument("--after", metavar="REV",
                         help="git revision (default: the working tree as installed)")
+    parser.add_argument("--templates", metavar="REV",
+                        help="give both versions the templates of this revision")
     parser.add_argument("--runs", type=int, default=5)
     args = parser.parse_args(argv)
-    result = compare(args.before, args.after, args.runs)
+    result = compare(args.before, args.after, args.runs, args.templates)
     print("\n".join(compare_lines(result)))
     return 0
 

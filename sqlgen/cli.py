@@ -39,17 +39,28 @@ def _jobs(value: str) -> int:
 
 
 def _spare_cpus() -> int:
-    """CPUs this process may use that are not already busy (1-minute load average), at
-    least 1: on a loaded machine, more processes only queue behind the others."""
+    """CPUs this process may use that other work does not keep busy, at least 1: on a
+    loaded machine, more processes only queue behind the others."""
     if hasattr(os, "sched_getaffinity"):  # Linux: the CPUs this process may run on
         usable = len(os.sched_getaffinity(0))
     else:
         usable = os.cpu_count() or 1
+    return max(1, usable - _busy_cpus())
+
+
+def _busy_cpus(loadavg: str | None = None) -> int:
+    """Other work running: the smaller of the 1-minute load average (which also remembers
+    this command's own earlier runs) and the tasks runnable right now besides this one
+    (which misses work that just paused); 0 where neither is known."""
     try:
-        busy = int(os.getloadavg()[0])
-    except (AttributeError, OSError):  # no load average on this platform
-        busy = 0
-    return max(1, usable - busy)
+        fields = (loadavg if loadavg is not None else Path("/proc/loadavg").read_text()).split()
+        return max(0, min(int(float(fields[0])), int(fields[3].split("/")[0]) - 1))
+    except (OSError, ValueError, IndexError):
+        pass
+    try:
+        return int(os.getloadavg()[0])
+    except (AttributeError, OSError):
+        return 0
 
 
 def _parser() -> argparse.ArgumentParser:

@@ -350,3 +350,17 @@ def test_jobs_must_be_a_positive_number(tmp_path):
     with pytest.raises(SystemExit) as stop:
         run("build", str(tmp_path / "spec.yml"), "--jobs", "0")
     assert stop.value.code == 2
+
+
+@pytest.mark.parametrize("loadavg, busy", [
+    ("2.52 2.10 1.90 3/412 9001", 2),  # two other tasks, busy for a while
+    ("0.97 0.80 0.70 1/412 9001", 0),  # only this command (its own earlier runs)
+    ("3.40 2.00 1.00 1/412 9001", 0),  # the others just paused
+    ("0.10 0.20 0.30 4/412 9001", 0),  # a burst that just began
+    ("not a load average", 1),  # then os.getloadavg() (1.5 here) alone
+])
+def test_busy_cpus_reads_the_load_average(loadavg, busy, monkeypatch):
+    """Fields of /proc/loadavg as proc(5) describes them: 1-, 5-, 15-minute averages, then
+    runnable/total scheduling entities (this process among the runnable ones)."""
+    monkeypatch.setattr(os, "getloadavg", lambda: (1.5, 1.0, 1.0))
+    assert cli._busy_cpus(loadavg) == busy
