@@ -31,20 +31,21 @@ MANIFEST_HEAD = (
 )
 
 
-def _is_generated(path: Path) -> bool:
+def _first_line(path: Path) -> str | None:
+    """The first line of a text file without its newline; None if it cannot be read."""
     try:
         with path.open("r", encoding="utf-8") as handle:
-            return handle.readline().startswith(HEADER_MARK)
+            return handle.readline().rstrip("\n")
     except (OSError, UnicodeDecodeError):
-        return False
+        return None
+
+
+def _is_generated(path: Path) -> bool:
+    return (_first_line(path) or "").startswith(HEADER_MARK)
 
 
 def _is_manifest(path: Path) -> bool:
-    try:
-        with path.open("r", encoding="utf-8") as handle:
-            return handle.readline().rstrip("\n") == MANIFEST_HEAD[0]
-    except (OSError, UnicodeDecodeError):
-        return False
+    return _first_line(path) == MANIFEST_HEAD[0]
 
 
 def _stale(folder: Path, names) -> list[Path]:
@@ -159,25 +160,25 @@ def _write(folder: Path, files: dict[str, str], inputs: list[str] | None) -> Wri
         folder.mkdir(parents=True, exist_ok=True)
         written, unchanged = [], []
         for name, text in files.items():
-            path = folder / name
-            if path.exists() and path.read_text(encoding="utf-8") == text:
-                unchanged.append(name)
-                continue
-            _atomic_write(path, text)
-            written.append(name)
+            (written if _write_if_changed(folder / name, text) else unchanged).append(name)
         removed = []
         for path in _stale(folder, files):
             path.unlink()
             removed.append(path.name)
         if inputs is not None:
-            manifest = folder / MANIFEST
-            text = manifest_text(inputs, files)
-            if not (manifest.exists() and manifest.read_text(encoding="utf-8") == text):
-                _atomic_write(manifest, text)
+            _write_if_changed(folder / MANIFEST, manifest_text(inputs, files))
     except OSError as err:
         where = err.filename or folder
         raise OutputError(f"{where}: cannot write: {err.strerror or err}") from None
     return WriteResult(written, unchanged, removed)
+
+
+def _write_if_changed(path: Path, text: str) -> bool:
+    """Replace the file atomically unless it already holds ``text``; whether it was written."""
+    if path.exists() and path.read_text(encoding="utf-8") == text:
+        return False
+    _atomic_write(path, text)
+    return True
 
 
 def _atomic_write(path: Path, text: str) -> None:
