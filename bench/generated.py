@@ -84,9 +84,8 @@ def full_scan(view: str) -> str:
     return f"SELECT count(*), sum(hash(COLUMNS(*))) FROM {view}"
 
 
-def trailing_query(source: str, qualified: bool = True) -> str:
-    """Trailing 28-day active users of a schema's trailing_activity (or of a subquery with
-    its columns, ``qualified=False``) as (day, trailing_users) rows."""
-    table = f"{source}.trailing_activity" if qualified else f"{source} AS t"
-    return (f"SELECT day, active_users AS trailing_users FROM {table} "
+def trailing_query(schema: str) -> str:
+    """Trailing 28-day active users of a schema's trailing_activity as (day, trailing_users)
+    rows."""
+    return (f"SELECT day, active_users AS trailing_users FROM {schema}.trailing_activity "
             f"WHERE window_days = {TRAILING_DAYS}")
