@@ -1,6 +1,7 @@
 """The ``sqlgen`` command: a thin shell over the library.
 
-Exit codes: 0 ok, 1 a spec, data or output problem (or stale files for --check), 2 usage.
+Exit codes (``errors.EXIT_*``): 0 ok, 1 stale files for --check, 2 usage, 3 a spec problem,
+4 an output problem.
 """
 
 from __future__ import annotations
@@ -166,10 +167,10 @@ def main(argv: list[str] | None = None) -> int:
         return COMMANDS[args.command](args)
     except SpecError as err:
         print(err.render(), file=sys.stderr)
-        return 1
+        return err.exit_code
     except SqlgenError as err:
         print(f"Error: {err}", file=sys.stderr)
-        return 1
+        return err.exit_code
     except KeyboardInterrupt:
         return 130
 

@@ -1,8 +1,23 @@
-"""Errors a person can act on: every one names its file, place and key."""
+"""Errors a person can act on: every one names its file, place and key.
+
+Exit codes of the ``sqlgen`` command (documented in the README):
+
+  0  success
+  1  ``build --check``: generated files are out of date
+  2  usage error (unknown option, missing argument)
+  3  the spec cannot be used (a problem in it, or a dialect that cannot express it)
+  4  the output folder or a file cannot be written or read as needed
+"""
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+
+EXIT_OK = 0
+EXIT_STALE = 1
+EXIT_USAGE = 2
+EXIT_SPEC = 3
+EXIT_OUTPUT = 4
 
 
 @dataclass(frozen=True)
@@ -21,7 +36,9 @@ class Problem:
 
 
 class SqlgenError(Exception):
-    """Base class of every error sqlgen reports to a user (exit code 1)."""
+    """Base class of every error sqlgen reports to a user; ``exit_code`` is the command's."""
+
+    exit_code = EXIT_SPEC
 
 
 class SpecError(SqlgenError):
@@ -48,3 +65,5 @@ class UnsupportedError(SqlgenError):
 
 class OutputError(SqlgenError):
     """A problem with the output folder (a file sqlgen did not write, say)."""
+
+    exit_code = EXIT_OUTPUT
