@@ -15,8 +15,9 @@ from pathlib import Path
 from . import __version__
 from .compiler import build_inputs, file_names, render_files, render_targets
 from .dialects import TARGETS, target_names
-from .errors import SpecError, SqlgenError
-from .output import MANIFEST, check_files, is_up_to_date, write_folders
+from .errors import EXIT_OUTPUT, SpecError, SqlgenError
+from .output import (MANIFEST, check_files, is_up_to_date, plan_folder, refuse, spec_owner,
+                     tidy, write_folders)
 from .spec import Spec, load_spec
 
 
@@ -79,6 +80,9 @@ def _parser() -> argparse.ArgumentParser:
                        "relative to the spec; with several dialects one subfolder each)")
     build.add_argument("--check", action="store_true",
                        help="write nothing; exit 1 with a diff if the files are not up to date")
+    build.add_argument("--full", action="store_true",
+                       help="compile and compare every file even when the manifest vouches "
+                            "for them (recommended with --check in CI)")
     build.add_argument("--jobs", type=_jobs, default=None, metavar="N",
                        help="with several dialects, compile in up to N processes "
                             "(default: the CPUs not already busy, by the load average)")
@@ -105,42 +109,73 @@ def _build(args: argparse.Namespace) -> int:
     spec = load_spec(args.spec)
     dialects = args.dialect or [spec.output.dialect]
     names = file_names(spec)
-    plans = [(folder, target, build_inputs(spec, target))
+    plans = [(folder, target, build_inputs(spec, target), spec_owner(args.spec, folder))
              for target, folder in _folders(spec, args.spec, dialects, args.out)]
     # A folder whose manifest matches these inputs and whose files match their recorded
     # hashes holds what a build would write: no need to compile its target.
-    fresh = [is_up_to_date(folder, inputs, names) for folder, _, inputs in plans]
+    fresh = [not args.full and is_up_to_date(folder, owner, inputs, names)
+             for folder, _, inputs, owner in plans]
     todo = [plan for plan, ok in zip(plans, fresh) if not ok]
-    rendered = (render_targets(spec, [target for _, target, _ in todo],
+    rendered = (render_targets(spec, [target for _, target, _, _ in todo],
                                args.jobs or _spare_cpus()) if todo else {})
     if args.check:
-        return _check([(folder, rendered[target]) for folder, target, _ in todo])
-    results = iter(write_folders([(folder, rendered[target], inputs)
-                                  for folder, target, inputs in todo]))
-    for (folder, _, _), ok in zip(plans, fresh):
-        if ok:
-            print(f"{folder}: 0 written, {len(names)} unchanged")
+        return _check(args.spec, names, [(folder, owner, inputs, rendered.get(target))
+                                         for (folder, target, inputs, owner) in plans])
+    # Every folder is checked before the first is written, the fresh ones too.
+    kept = {folder: plan_folder(folder, owner, inputs, names, args.spec)
+            for (folder, _, inputs, owner), ok in zip(plans, fresh) if ok}
+    refuse(list(kept.values()))
+    results = iter(write_folders([(folder, rendered[target], inputs, owner, args.spec)
+                                  for folder, target, inputs, owner in todo]))
+    for folder, *_ in plans:
+        if folder in kept:
+            plan = kept[folder]
+            _report(folder, 0, len(names), 0, tidy(plan), plan.notes())
             continue
         result = next(results)
-        print(f"{folder}: {len(result.written)} written, {len(result.unchanged)} unchanged"
-              + (f", {len(result.removed)} removed" if result.removed else ""))
+        _report(folder, len(result.written), len(result.unchanged), len(result.removed),
+                result.leftovers, result.notes)
     return 0
 
 
-def _check(jobs: list[tuple[Path, dict[str, str]]]) -> int:
-    """Diffs for the folders the manifests could not vouch for (compiled in full)."""
-    stale = [diff for folder, files in jobs for diff in check_files(folder, files)]
+def _report(folder: Path, written: int, unchanged: int, removed: int, leftovers: int,
+            notes) -> None:
+    print(f"{folder}: {written} written, {unchanged} unchanged"
+          + (f", {removed} removed" if removed else ""))
+    if leftovers:
+        print(f"{folder}: removed {leftovers} temporary file(s) left by an interrupted build")
+    for note in notes:
+        print(f"sqlgen: note: {note}", file=sys.stderr)
+
+
+def _check(spec_path: str, names: list[str],
+           jobs: list[tuple[Path, str, list[str], dict[str, str] | None]]) -> int:
+    """Diffs for the folders the manifests could not vouch for (compiled in full); the
+    folders a build would refuse are refused here too, with the same reasons."""
+    plans = [plan_folder(folder, owner, inputs, names, spec_path)
+             for folder, owner, inputs, files in jobs]
+    refuse(plans)
+    for plan in plans:
+        for note in plan.notes():
+            print(f"sqlgen: note: {note}", file=sys.stderr)
+        if plan.leftovers:
+            print(f"sqlgen: note: {plan.folder}: {len(plan.leftovers)} temporary file(s) left "
+                  "by an interrupted build; `sqlgen build` removes them", file=sys.stderr)
+    stale = [diff for plan, (*_, files) in zip(plans, jobs) if files is not None
+             for diff in check_files(plan, files)]
     if stale:
         sys.stdout.write("".join(stale))
         print(f"sqlgen: {len(stale)} file(s) out of date; run `sqlgen build` to update them",
               file=sys.stderr)
         return 1
     print("sqlgen: generated files are up to date")
-    if jobs:
-        shown = ", ".join(str(folder / MANIFEST) for folder, _ in jobs)
+    compiled = [plan.manifest.path for plan, (*_, files) in zip(plans, jobs) if files is not None]
+    if compiled:
+        shown = ", ".join(str(path) for path in compiled)
         print(f"sqlgen: checked by a full compile: {shown} did not vouch for the files "
-              "(missing, or written for another spec or by another sqlgen); `sqlgen build` "
-              "rewrites it, and the next --check is fast again", file=sys.stderr)
+              "(missing, or written for another spec or by another sqlgen, or --full); "
+              "`sqlgen build` rewrites it, and the next --check is fast again",
+              file=sys.stderr)
     return 0
 
 
@@ -173,6 +208,10 @@ def main(argv: list[str] | None = None) -> int:
         return err.exit_code
     except KeyboardInterrupt:
         return 130
+    except OSError as err:  # a read or write no stage above turned into a message
+        print(f"Error: {err.filename or 'sqlgen'}: {err.strerror or err}; check the path "
+              "and its permissions", file=sys.stderr)
+        return EXIT_OUTPUT
 
 
 if __name__ == "__main__":

@@ -206,8 +206,11 @@ def compile_spec(spec: Spec, target_name: str | None = None,
 
 
 def file_names(spec: Spec) -> list[str]:
-    """The files ``render_files`` returns for a spec, whatever the target, without compiling."""
-    return [f"{view.name}.sql" for view in planned_views(spec)] + [CREATE_ALL]
+    """The files ``render_files`` returns for a spec, whatever the target, without compiling:
+    each created view's own name (prefix included) and ``<prefix>create_all.sql``. The one
+    place that names files, so that specs with other prefixes share a folder."""
+    prefix = spec.output.prefix
+    return [f"{prefix}{view.name}.sql" for view in planned_views(spec)] + [prefix + CREATE_ALL]
 
 
 def render_files(spec: Spec, target_name: str | None = None,
@@ -215,9 +218,8 @@ def render_files(spec: Spec, target_name: str | None = None,
     """File name -> content for a spec and target, including create_all.sql."""
     target = TARGETS[target_name or spec.output.dialect]
     compiled = compile_spec(spec, target.name, queries)
-    files = {f"{c.view.name}.sql": c.text for c in compiled}
-    files[CREATE_ALL] = _create_all(spec, target, compiled)
-    return files
+    texts = [c.text for c in compiled] + [_create_all(spec, target, compiled)]
+    return dict(zip(file_names(spec), texts))
 
 
 def render_targets(spec: Spec, target_names: list[str],
