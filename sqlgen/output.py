@@ -47,6 +47,7 @@ MANIFEST_HEAD = (
 # The first line of the manifest sqlgen 0.1 wrote: one build's inputs, no spec named.
 LEGACY_HEAD = "# Written by sqlgen build: the inputs of the build that wrote this folder and a SHA-256"
 TEMP_PREFIX = ".sqlgen-tmp-"
+_TEMP = re.compile(r"\.sqlgen-tmp-(\d+)-[a-z0-9_]{8}")  # TEMP_PREFIX, pid, mkstemp's part
 # Temporary files of the sqlgen before this one: ".<name>.<8 random characters>.tmp".
 _LEGACY_TEMP = re.compile(r"\.(?:[A-Za-z0-9_]+\.sql|\.sqlgen-manifest)\.[a-z0-9_]{8}\.tmp")
 _FILE_NAME = re.compile(r"[A-Za-z0-9_]+\.sql")  # every name sqlgen writes besides MANIFEST
@@ -59,19 +60,25 @@ def _sha256(data: bytes) -> str:
 
 
 def _first_line(path: Path) -> bytes:
-    """The first line of a file as bytes (b"" if it cannot be read): a header in UTF-8 is
-    found even when a later byte is broken."""
-    try:
-        if not path.is_file():  # a folder, or a pipe that would block the read
-            return b""
-        with path.open("rb") as handle:
-            return handle.readline(4096).rstrip(b"\n")
-    except OSError:
+    """The first line of a file as bytes (b"" for a missing file, a folder or a pipe that
+    would block the read): a header in UTF-8 is found even when a later byte is broken.
+    Raises OSError for a file that exists but cannot be read."""
+    if not path.is_file():
         return b""
+    with path.open("rb") as handle:
+        return handle.readline(4096).rstrip(b"\n")
 
 
 def _is_generated(path: Path) -> bool:
     return _first_line(path).startswith(HEADER_MARK.encode())
+
+
+def _looks_generated(path: Path) -> bool:
+    """A plain file (no link) with sqlgen's header; False for one that cannot be read."""
+    try:
+        return not path.is_symlink() and _is_generated(path)
+    except OSError:
+        return False
 
 
 def _is_manifest(path: Path) -> bool:
@@ -280,19 +287,23 @@ def _plan(folder: Path, owner: str | None, inputs: list[str] | None, names: list
         plan.refusals.append(_not_ours(plan.manifest.path))
         return plan
     _adopt_legacy(plan, inputs, shown)
+    owned: dict[str, list[str]] = {}  # another spec -> its files this build would write
     for name in names:
-        refusal = _refusal(plan, folder / name, shown)
-        if refusal:
+        refusal = _refusal(plan, folder / name)
+        if refusal is not None and refusal in plan.manifest.entries:
+            owned.setdefault(refusal, []).append(str(folder / name))
+        elif refusal:
             plan.refusals.append(refusal)
+    for other, paths in owned.items():
+        plan.refusals.append(_owned_message(plan, other, paths, shown))
     mine = plan.manifest.entries.get(owner, Entry()).files if owner is not None else {}
     for name in mine:
         path = folder / name
-        if name not in names and path.is_file() and not path.is_symlink() and _is_generated(path):
+        if name not in names and _looks_generated(path):
             plan.remove.append(path)
     listed = {n for entry in plan.manifest.entries.values() for n in entry.files}
     plan.left_alone = [p for p in sorted(folder.glob("*.sql"))
-                       if p.name not in listed and p.name not in names
-                       and p.is_file() and not p.is_symlink() and _is_generated(p)]
+                       if p.name not in listed and p.name not in names and _looks_generated(p)]
     plan.leftovers = _leftovers(folder)
     return plan
 
@@ -333,23 +344,32 @@ def _header_specs(folder: Path, names) -> set[str]:
     """The spec file names the headers of these files give (``... from <spec> (spec``)."""
     found = set()
     for name in names:
-        line = _first_line(folder / name).decode("utf-8", "replace")
+        try:
+            line = _first_line(folder / name).decode("utf-8", "replace")
+        except OSError:
+            continue
         match = re.search(r" from (.+?) \(spec ", line)
         if match:
             found.add(match.group(1))
     return found
 
 
-def _refusal(plan: Plan, path: Path, shown: str) -> str | None:
-    """Why ``path`` may not be written by this build, or None."""
+def _owned_message(plan: Plan, other: str, paths: list[str], shown: str) -> str:
+    spec = os.path.normpath(plan.folder / other)
+    gone = ("" if os.path.exists(spec) else f" (no spec is at {spec} any more: if its files "
+            "are not needed, delete them and build again)")
+    return (f"{', '.join(paths)}: generated for spec {spec} (recorded as {other} in "
+            f"{plan.manifest.path}), so not replaced by a build of {shown}; give each spec "
+            f"its own output.prefix, or {_OUT_HINT}{gone}")
+
+
+def _refusal(plan: Plan, path: Path) -> str | None:
+    """Why ``path`` may not be written by this build: a message, or the name of the spec
+    that owns it; None when it may."""
     other = plan.manifest.owner_of(path.name)
-    if other is not False and other != plan.owner and (path.exists() or path.is_symlink()):
-        gone = ("" if other is None or (plan.folder / other).exists() else
-                f" (that spec is no longer at {plan.folder / other}: if its files are not "
-                "needed, delete them and build again)")
-        return (f"{path}: generated for spec {other} (as {plan.manifest.path} records), so "
-                f"not replaced by a build of {shown}; give each spec its own output.prefix, "
-                f"or {_OUT_HINT}{gone}")
+    # (None: a manifest of sqlgen 0.1 not taken as this spec's, refused as a whole above)
+    if other not in (False, None, plan.owner) and (path.exists() or path.is_symlink()):
+        return other
     if path.is_symlink():
         return f"{path}: is a symbolic link, so not replaced; remove it or {_OUT_HINT}"
     if path.exists() and not path.is_file():
@@ -376,15 +396,16 @@ def _not_a_folder(folder: Path) -> Path | None:
 def _leftovers(folder: Path) -> list[Path]:
     """Temporary files of builds that no longer run: ``.sqlgen-tmp-<pid>-*`` whose process
     is gone, and those of the sqlgen before (which named no process)."""
-    found = [p for p in folder.glob(f"{TEMP_PREFIX}*") if not _running(p.name)]
+    found = [p for p in folder.glob(f"{TEMP_PREFIX}*")
+             if _TEMP.fullmatch(p.name) and not _running(p.name)]
     found += [p for p in folder.glob(".*.tmp") if _LEGACY_TEMP.fullmatch(p.name)]
     return sorted(p for p in found if p.is_file() and not p.is_symlink())
 
 
 def _running(name: str) -> bool:
     """Whether the process named in a temporary file's name still runs (it may be writing)."""
-    pid = name[len(TEMP_PREFIX):].partition("-")[0]
-    if not pid.isdigit() or int(pid) == os.getpid():
+    pid = _TEMP.fullmatch(name).group(1)
+    if int(pid) == os.getpid():
         return False
     try:
         os.kill(int(pid), 0)
@@ -443,11 +464,11 @@ def locked(folders: list[Path]):
     no lock file), so that two builds into one folder read and write its manifest one after
     the other. Where locking is not available, nothing is locked."""
     with contextlib.ExitStack() as stack:
-        for folder in sorted({f.resolve() for f in folders if f.is_dir()}):
+        for folder in sorted({f.resolve() for f in folders}):
             try:
-                fd = os.open(folder, os.O_RDONLY)
+                fd = os.open(folder, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0))
             except OSError:
-                continue  # the plan reports what cannot be read
+                continue  # not there yet, or not a folder: the plan says what is wrong
             stack.callback(os.close, fd)
             if fcntl is not None:
                 fcntl.flock(fd, fcntl.LOCK_EX)
@@ -520,7 +541,10 @@ def _atomic_write(path: Path, data: bytes) -> None:
         mode = stat.S_IMODE(path.stat().st_mode)
     except FileNotFoundError:
         mode = 0o666 & ~_umask()
-    fd, tmp = tempfile.mkstemp(prefix=f"{TEMP_PREFIX}{os.getpid()}-", dir=path.parent)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f"{TEMP_PREFIX}{os.getpid()}-", dir=path.parent)
+    except OSError as err:  # name the file being written, not the temporary one
+        raise OSError(err.errno, err.strerror, str(path)) from None
     try:
         with os.fdopen(fd, "wb") as handle:
             handle.write(data)

@@ -24,13 +24,14 @@ LOCATED = re.compile(r"^\S[^\n]*?:\d+:\d+: ", re.MULTILINE)
 
 
 def run_cli(*args: str, cwd: Path | None = None, timeout: float = 60,
-            stdin: str | None = None) -> subprocess.CompletedProcess:
-    """Run the installed ``sqlgen`` entry point; text output, never waits on a terminal."""
+            stdin: str | None = None, preexec_fn=None) -> subprocess.CompletedProcess:
+    """Run the installed ``sqlgen`` entry point; text output, never waits on a terminal.
+    ``preexec_fn`` runs in the child first (set a umask, become another user)."""
     exe = Path(sys.executable).with_name("sqlgen")
     command = [str(exe)] if exe.exists() else [shutil.which("sqlgen") or "sqlgen"]
     return subprocess.run(command + list(args), cwd=cwd, capture_output=True, text=True,
                           timeout=timeout, input=stdin if stdin is not None else "",
-                          errors="replace")
+                          errors="replace", preexec_fn=preexec_fn)
 
 
 def assert_refused(result: subprocess.CompletedProcess, code: int, *, located: bool = True,
