@@ -403,3 +403,218 @@ def test_hostile_file_case(case: Case, place: Place):
 
 def test_the_suite_is_big_enough():
     assert len(CASES) >= 40 and len({c.id for c in CASES}) == len(CASES)
+
+
+# ------------------------------------------------------------------- two specs, one folder
+
+CURRENCY = """\
+version: 1
+revenue:
+  table: invoice_lines
+  customer: account_id
+  timestamp: invoiced_at
+  amount: amount
+  where: "currency = '{code}'"
+grain: month
+cohorts: {cohorts}
+output:
+  dialect: duckdb
+  prefix: {prefix}
+"""
+INVOICES = [("a", "2024-01-05", 10, "USD"), ("b", "2024-01-20", 7, "EUR"),
+            ("a", "2024-02-03", 12, "USD"), ("c", "2024-02-10", 5, "USD"),
+            ("b", "2024-03-01", 9, "EUR"), ("d", "2024-03-15", 4, "EUR")]
+
+
+def _currency_specs(root: Path, prefix: str = "{code}_", cohorts: str = "false") -> dict:
+    specs = {}
+    for code in ("usd", "eur"):
+        specs[code] = root / f"{code}.yml"
+        specs[code].write_text(CURRENCY.format(code=code.upper(), cohorts=cohorts,
+                                               prefix=prefix.format(code=code)))
+    return specs
+
+
+def _sql_files(folder: Path) -> dict[str, bytes]:
+    return {p.name: p.read_bytes() for p in folder.iterdir() if p.name.endswith(".sql")}
+
+
+@pytest.mark.parametrize("order", [("usd", "eur"), ("eur", "usd")], ids="-then-".join)
+def test_a_spec_per_currency_shares_one_folder(order, tmp_path):
+    """Issue 10: two specs side by side, one per currency with its own prefix, both in the
+    default ./sql: both builds succeed in either order and both --check clean, fast and
+    full; the views of both run side by side in one database."""
+    specs = _currency_specs(tmp_path)
+    for code in order:
+        done = run_cli("build", str(specs[code]), cwd=tmp_path)
+        assert done.returncode == 0, done.stderr
+    out = tmp_path / "sql"
+    names = _sql_files(out)
+    assert {n.split("_", 1)[0] for n in names} == {"usd", "eur"}
+    assert "usd_create_all.sql" in names and "eur_revenue_accounting.sql" in names
+    for code in order:
+        assert run_cli("build", str(specs[code]), "--check").stderr == ""  # fast: vouched for
+        full = run_cli("build", str(specs[code]), "--check", "--full")
+        assert full.returncode == 0 and "checked by a full compile" in full.stderr
+        again = run_cli("build", str(specs[code]))
+        assert again.returncode == 0 and " 0 written" in again.stdout
+    assert _sql_files(out) == names
+    owners = [line for line in (out / MANIFEST).read_text().splitlines()
+              if line.startswith("owner ")]
+    assert owners == ['owner "../eur.yml"', 'owner "../usd.yml"']
+    import duckdb
+
+    con = duckdb.connect()
+    con.execute("CREATE TABLE invoice_lines(account_id TEXT, invoiced_at TIMESTAMP, "
+                "amount DECIMAL(18, 2), currency TEXT)")
+    con.executemany("INSERT INTO invoice_lines VALUES (?, ?, ?, ?)", INVOICES)
+    for code in order:
+        con.execute((out / f"{code}_create_all.sql").read_text())
+    for code in ("usd", "eur"):
+        # Reference: a month's revenue is the sum of its positive invoice amounts in that
+        # currency (common practice; every customer here pays a positive amount).
+        expected = {}
+        for _, day, amount, currency in INVOICES:
+            if currency == code.upper():
+                expected[day[:7]] = expected.get(day[:7], 0) + amount
+        rows = con.execute(f"SELECT strftime(period_start, '%Y-%m'), revenue FROM "
+                           f"{code}_revenue_accounting WHERE revenue > 0").fetchall()
+        assert {month: float(revenue) for month, revenue in rows} == expected
+
+
+def test_same_names_from_two_specs_are_refused_naming_both(tmp_path):
+    specs = _currency_specs(tmp_path, prefix="")
+    assert run_cli("build", str(specs["usd"]), cwd=tmp_path).returncode == 0
+    before = _sql_files(tmp_path / "sql")
+    done = run_cli("build", str(specs["eur"]), cwd=tmp_path)
+    assert_refused(done, EXIT_OUTPUT, located=False,
+                   mentions=(f"generated for spec {specs['usd']} (recorded as ../usd.yml",
+                             f"not replaced by a build of {specs['eur']}", "output.prefix",
+                             "--out"))
+    check = run_cli("build", str(specs["eur"]), "--check", cwd=tmp_path)
+    assert (check.returncode, check.stderr) == (done.returncode, done.stderr)  # they agree
+    assert _sql_files(tmp_path / "sql") == before
+
+
+def test_specs_named_alike_in_two_folders_are_told_apart(tmp_path):
+    """Both are ``growth.yml``: the manifest names each by its path from the folder."""
+    for team in ("a", "b"):
+        (tmp_path / team).mkdir()
+        (tmp_path / team / "growth.yml").write_text(SPEC)
+    out = tmp_path / "shared"
+    assert run_cli("build", str(tmp_path / "a" / "growth.yml"), "--out", str(out)).returncode == 0
+    done = run_cli("build", str(tmp_path / "b" / "growth.yml"), "--out", str(out))
+    assert_refused(done, EXIT_OUTPUT, located=False,
+                   mentions=(f"generated for spec {tmp_path / 'a' / 'growth.yml'}",
+                             "recorded as ../a/growth.yml", str(tmp_path / "b" / "growth.yml")))
+
+
+def test_a_build_removes_only_its_own_files(tmp_path):
+    specs = _currency_specs(tmp_path, cohorts="true")
+    for code in ("usd", "eur"):
+        assert run_cli("build", str(specs[code]), cwd=tmp_path).returncode == 0
+    out = tmp_path / "sql"
+    assert (out / "usd_revenue_cohorts.sql").exists() and (out / "eur_revenue_cohorts.sql").exists()
+    usd = {n: b for n, b in _sql_files(out).items() if n.startswith("usd_")}
+    specs["eur"].write_text(specs["eur"].read_text().replace("cohorts: true", "cohorts: false"))
+    done = run_cli("build", str(specs["eur"]), cwd=tmp_path)
+    assert done.returncode == 0 and ", 1 removed" in done.stdout
+    assert not (out / "eur_revenue_cohorts.sql").exists()
+    assert {n: b for n, b in _sql_files(out).items() if n.startswith("usd_")} == usd
+    for code in ("usd", "eur"):
+        check = run_cli("build", str(specs[code]), "--check", cwd=tmp_path)
+        assert (check.returncode, check.stderr) == (0, ""), check.stderr
+
+
+def test_a_spec_that_is_gone_still_protects_its_files_until_they_are_deleted(tmp_path):
+    specs = _currency_specs(tmp_path, prefix="")
+    assert run_cli("build", str(specs["usd"]), cwd=tmp_path).returncode == 0
+    specs["usd"].unlink()
+    done = run_cli("build", str(specs["eur"]), cwd=tmp_path)
+    assert_refused(done, EXIT_OUTPUT, located=False, mentions=(f"no spec is at {specs['usd']} any more",))
+    for path in (tmp_path / "sql").glob("*.sql"):
+        path.unlink()
+    done = run_cli("build", str(specs["eur"]), cwd=tmp_path)
+    assert done.returncode == 0, done.stderr
+    assert "usd.yml" not in (tmp_path / "sql" / MANIFEST).read_text()
+
+
+# ------------------------------------------------------------------ modes and kill -9
+
+
+@pytest.mark.parametrize("mask, mode", [(0o022, 0o644), (0o077, 0o600), (0o002, 0o664)])
+def test_new_files_get_the_mode_the_umask_gives(mask, mode, tmp_path):
+    """Issue 10: files were 0600 whatever the umask; a plain write gives 0o666 & ~umask
+    (POSIX open(2) with mode 0666, as Python's open does)."""
+    (tmp_path / "growth.yml").write_text(SPEC)
+    done = run_cli("build", str(tmp_path / "growth.yml"), preexec_fn=umask(mask))
+    assert done.returncode == 0, done.stderr
+    modes = {p.name: stat.S_IMODE(p.stat().st_mode) for p in (tmp_path / "sql").iterdir()}
+    assert modes == {name: mode for name in [*FILES, MANIFEST]}
+
+
+def test_a_replaced_file_keeps_its_mode(tmp_path):
+    """As a plain write into an existing file would: the owner's chmod stays."""
+    (tmp_path / "growth.yml").write_text(SPEC)
+    assert run_cli("build", str(tmp_path / "growth.yml")).returncode == 0
+    path = tmp_path / "sql" / "growth_accounting.sql"
+    path.chmod(0o640)
+    (tmp_path / "growth.yml").write_text(SPEC.replace("grain: month", "grain: week"))
+    done = run_cli("build", str(tmp_path / "growth.yml"), preexec_fn=umask(0o022))
+    assert done.returncode == 0 and "5 written" in done.stdout
+    assert stat.S_IMODE(path.stat().st_mode) == 0o640
+
+
+SLOW_WRITES = """\
+import os, sys, time
+from sqlgen import cli
+replace = os.replace
+def slow(*args, **kwargs):  # a slower disk: widens the window in which a kill lands
+    time.sleep(0.02)
+    return replace(*args, **kwargs)
+os.replace = slow
+sys.exit(cli.main(sys.argv[1:]))
+"""
+
+
+def test_kill_9_mid_build_loses_nothing_and_the_next_build_cleans_up(tmp_path):
+    """Issue 16: builds killed with SIGKILL while writing, 20 rounds, each a random short
+    time after its first temporary file appears. After every kill each file is whole (the
+    old or the new version, never a mix); the next build removes the leftovers, says so,
+    and leaves every file complete."""
+    dialects = ["duckdb", "postgres", "tsql"]
+    texts = {grain: SPEC.replace("grain: month", f"grain: {grain}") for grain in ("month", "week")}
+    whole = {(d, name): set() for d in dialects for name in FILES}
+    for text in texts.values():
+        spec = parse_spec(text, "growth.yml")
+        for d in dialects:
+            for name, body in render_files(spec, d).items():
+                whole[(d, name)].add(body.encode())
+    (tmp_path / "slow.py").write_text(SLOW_WRITES)
+    spec_path, out = tmp_path / "growth.yml", tmp_path / "out"
+    argv = [sys.executable, str(tmp_path / "slow.py"), "build", str(spec_path), "--dialect",
+            ",".join(dialects), "--out", str(out), "--jobs", "1"]
+    rng = random.Random(16)
+    left = 0
+    for round_ in range(20):
+        spec_path.write_text(texts["week" if round_ % 2 else "month"])
+        child = subprocess.Popen(argv, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        deadline = time.monotonic() + 60
+        while child.poll() is None and not list(out.rglob(".sqlgen-tmp-*")):
+            assert time.monotonic() < deadline, "the build never wrote"
+            time.sleep(0.002)
+        time.sleep(rng.uniform(0, 0.15))
+        child.send_signal(signal.SIGKILL)
+        child.wait()  # reaped: its pid no longer runs
+        left += bool(list(out.rglob(".sqlgen-tmp-*")))
+        for d in dialects:
+            for path in (out / d).glob("*.sql") if (out / d).exists() else ():
+                assert path.read_bytes() in whole[(d, path.name)], (round_, path)
+    assert left > 0  # the kills did land mid-write (20 of 20 in practice)
+    done = run_cli("build", str(spec_path), "--dialect", ",".join(dialects), "--out", str(out))
+    assert done.returncode == 0, done.stderr
+    assert "temporary file(s) left by an interrupted build" in done.stdout
+    assert not list(out.rglob(".sqlgen-tmp-*"))
+    full = run_cli("build", str(spec_path), "--dialect", ",".join(dialects), "--out", str(out),
+                   "--check", "--full")
+    assert full.returncode == 0, full.stdout[-2000:]
