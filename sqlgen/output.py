@@ -44,8 +44,9 @@ MANIFEST_HEAD = (
     "# can tell an up-to-date folder without compiling, and no build replaces or removes",
     "# another spec's files. Do not edit.",
 )
-# The first line of the manifest sqlgen 0.1 wrote: one build's inputs, no spec named.
-LEGACY_HEAD = "# Written by sqlgen build: the inputs of the build that wrote this folder and a SHA-256"
+# The first line of the manifest an earlier sqlgen wrote: one build's inputs, no spec named.
+LEGACY_HEAD = ("# Written by sqlgen build: the inputs of the build that wrote this folder "
+               "and a SHA-256")
 TEMP_PREFIX = ".sqlgen-tmp-"
 _TEMP = re.compile(r"\.sqlgen-tmp-(\d+)-[a-z0-9_]{8}")  # TEMP_PREFIX, pid, mkstemp's part
 # Temporary files of the sqlgen before this one: ".<name>.<8 random characters>.tmp".
@@ -170,7 +171,7 @@ def read_manifest(folder: Path) -> Manifest:
         elif kind == "file":
             _file_line(manifest, entry, rest, number)
         elif entry is None and kind == "sqlgen" and None not in manifest.entries:
-            entry = manifest.entries[None] = Entry([line])  # sqlgen 0.1: one unnamed build
+            entry = manifest.entries[None] = Entry([line])  # an earlier sqlgen: one unnamed build
         elif entry is not None:
             entry.inputs.append(line)
         else:
@@ -320,7 +321,7 @@ class _Refused(OSError):
 
 
 def _adopt_legacy(plan: Plan, inputs: list[str] | None, shown: str) -> None:
-    """A manifest of sqlgen 0.1 names no spec. Its files are taken as this spec's when its
+    """A manifest of an earlier sqlgen names no spec. Its files are taken as this spec's when its
     spec hash is this spec's, or when its files' headers name a spec file of this spec's
     name (the spec was edited since); otherwise the build is refused, since its files may
     be another spec's."""
@@ -367,7 +368,7 @@ def _refusal(plan: Plan, path: Path) -> str | None:
     """Why ``path`` may not be written by this build: a message, or the name of the spec
     that owns it; None when it may."""
     other = plan.manifest.owner_of(path.name)
-    # (None: a manifest of sqlgen 0.1 not taken as this spec's, refused as a whole above)
+    # (None: a manifest of an earlier sqlgen, not taken as this spec's, refused as a whole above)
     if other not in (False, None, plan.owner) and (path.exists() or path.is_symlink()):
         return other
     if path.is_symlink():

@@ -115,8 +115,10 @@ KEYS: tuple[Key, ...] = (
         default="duckdb", choices=tuple(target_names())),
     Key("output.schema", "schema", "Optional schema (or catalog.schema) to create the views in.",
         example="growth"),
-    Key("output.prefix", "prefix", "Optional prefix for every view name.", default="",
-        example="ga_"),
+    Key("output.prefix", "prefix",
+        "Optional prefix for every view name, and so for every file name "
+        "(`<prefix><view>.sql`, `<prefix>create_all.sql`); specs sharing a folder need "
+        "different ones.", default="", example="ga_"),
     Key("output.folder", "text",
         "Folder for the generated files, relative to the spec file; `--out` overrides.",
         default="sql"),

@@ -147,3 +147,13 @@ def test_demo_refuses_a_foreign_database(tmp_path):
     duckdb.connect(str(folder / "quillfinch.duckdb")).close()
     result = sqlgen("demo", "--folder", str(folder))
     assert result.returncode == 4 and "is not a sqlgen demo database" in result.stderr
+
+
+def test_file_names_carry_the_prefix(spec_file, tmp_path):
+    spec_file.write_text(SPEC.replace("  schema: growth", "  schema: growth\n  prefix: ga_"))
+    assert sqlgen("build", str(spec_file)).returncode == 0
+    files = sorted(p.name for p in (tmp_path / "sql").iterdir())
+    assert files == [".sqlgen-manifest", "ga_activity_source_summary.sql", "ga_create_all.sql",
+                     "ga_growth_accounting.sql", "ga_user_activity.sql", "ga_user_states.sql"]
+    text = (tmp_path / "sql" / "ga_growth_accounting.sql").read_text()
+    assert "CREATE OR REPLACE VIEW \"growth\".ga_growth_accounting AS" in text

@@ -147,7 +147,7 @@ def _manifest(p: Place) -> Path:
 
 
 def _legacy_manifest(p: Place, spec_hash: str | None = None, named: str | None = None) -> None:
-    """The manifest format of sqlgen 0.1: one build's inputs, no spec named."""
+    """The manifest format of the sqlgen before: one build's inputs, no spec named."""
     lines = _manifest(p).read_text().splitlines()
     body = [line for line in lines if not line.startswith(("#", "owner "))]
     if spec_hash:
@@ -531,7 +531,8 @@ def test_a_spec_that_is_gone_still_protects_its_files_until_they_are_deleted(tmp
     assert run_cli("build", str(specs["usd"]), cwd=tmp_path).returncode == 0
     specs["usd"].unlink()
     done = run_cli("build", str(specs["eur"]), cwd=tmp_path)
-    assert_refused(done, EXIT_OUTPUT, located=False, mentions=(f"no spec is at {specs['usd']} any more",))
+    assert_refused(done, EXIT_OUTPUT, located=False,
+                   mentions=(f"no spec is at {specs['usd']} any more",))
     for path in (tmp_path / "sql").glob("*.sql"):
         path.unlink()
     done = run_cli("build", str(specs["eur"]), cwd=tmp_path)
