@@ -571,7 +571,7 @@ import os, sys, time
 from sqlgen import cli
 replace = os.replace
 def slow(*args, **kwargs):  # a slower disk: widens the window in which a kill lands
-    time.sleep(0.02)
+    time.sleep(float(os.environ.get("SLOW_WRITE_SECONDS", "0.02")))
     return replace(*args, **kwargs)
 os.replace = slow
 sys.exit(cli.main(sys.argv[1:]))
@@ -619,3 +619,23 @@ def test_kill_9_mid_build_loses_nothing_and_the_next_build_cleans_up(tmp_path):
     full = run_cli("build", str(spec_path), "--dialect", ",".join(dialects), "--out", str(out),
                    "--check", "--full")
     assert full.returncode == 0, full.stdout[-2000:]
+
+
+def test_two_builds_at_once_into_one_folder_keep_both_entries(tmp_path):
+    """Each build reads, changes and writes the folder's manifest while it holds a lock on
+    the folder; with slow writes, two unlocked builds would each write a manifest without
+    the other's entry."""
+    specs = _currency_specs(tmp_path)
+    (tmp_path / "sql").mkdir()
+    (tmp_path / "slow.py").write_text(SLOW_WRITES)
+    env = {**os.environ, "SLOW_WRITE_SECONDS": "0.3"}  # ~2 s of writing: the builds overlap
+    children = [subprocess.Popen([sys.executable, str(tmp_path / "slow.py"), "build",
+                                  str(specs[code])], stdout=subprocess.DEVNULL,
+                                 stderr=subprocess.PIPE, text=True, env=env)
+                for code in ("usd", "eur")]
+    for child in children:
+        assert child.wait(timeout=120) == 0, child.stderr.read()
+        child.stderr.close()
+    for code in ("usd", "eur"):
+        check = run_cli("build", str(specs[code]), "--check")
+        assert (check.returncode, check.stderr) == (0, ""), check.stderr
