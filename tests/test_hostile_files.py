@@ -611,7 +611,7 @@ def test_kill_9_mid_build_loses_nothing_and_the_next_build_cleans_up(tmp_path):
         for d in dialects:
             for path in (out / d).glob("*.sql") if (out / d).exists() else ():
                 assert path.read_bytes() in whole[(d, path.name)], (round_, path)
-    assert left > 0  # the kills did land mid-write (20 of 20 in practice)
+    assert left > 0  # the kills did land mid-write (19 of 20 in one run)
     done = run_cli("build", str(spec_path), "--dialect", ",".join(dialects), "--out", str(out))
     assert done.returncode == 0, done.stderr
     assert "temporary file(s) left by an interrupted build" in done.stdout
