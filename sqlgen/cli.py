@@ -16,8 +16,8 @@ from . import __version__
 from .compiler import build_inputs, file_names, render_files, render_targets
 from .dialects import TARGETS, target_names
 from .errors import EXIT_OUTPUT, SpecError, SqlgenError
-from .output import (MANIFEST, check_files, is_up_to_date, plan_folder, refuse, spec_owner,
-                     tidy, write_folders)
+from .output import (check_files, is_up_to_date, plan_folder, refuse, spec_owner, tidy,
+                     write_folders)
 from .spec import Spec, load_spec
 
 
