@@ -15,7 +15,7 @@ from pathlib import Path
 from . import __version__
 from .compiler import build_inputs, file_names, render_files, render_targets
 from .dialects import TARGETS, target_names
-from .errors import SpecError, SqlgenError
+from .errors import SpecError, SqlgenError, UnsupportedError
 from .output import MANIFEST, check_files, is_up_to_date, write_folders
 from .spec import Spec, load_spec
 
@@ -167,6 +167,9 @@ def main(argv: list[str] | None = None) -> int:
         return COMMANDS[args.command](args)
     except SpecError as err:
         print(err.render(), file=sys.stderr)
+        return err.exit_code
+    except UnsupportedError as err:  # located at the spec key once compiled from a spec
+        print(str(err) if err.where else f"Error: {err}", file=sys.stderr)
         return err.exit_code
     except SqlgenError as err:
         print(f"Error: {err}", file=sys.stderr)
