@@ -13,6 +13,7 @@ import sys
 from pathlib import Path
 
 from . import __version__
+from .comments import printable
 from .compiler import build_inputs, file_names, render_files, render_targets
 from .dialects import TARGETS, target_names
 from .errors import SpecError, SqlgenError, UnsupportedError
@@ -147,7 +148,8 @@ def _check(jobs: list[tuple[Path, dict[str, str]]]) -> int:
 def _validate(args: argparse.Namespace) -> int:
     spec = load_spec(args.spec)
     render_files(spec)  # a combination the target cannot express is a spec problem too
-    print(f"{args.spec}: ok ({spec.grain} grain, target {spec.output.dialect})")
+    print(f"{printable(args.spec, False)}: ok ({spec.grain} grain, target "
+          f"{spec.output.dialect})")
     return 0
 
 

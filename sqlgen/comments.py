@@ -38,9 +38,11 @@ def unsafe(char: str) -> bool:
         and char != " "
 
 
-def printable(text: str) -> str:
-    """``text`` on one line: backslashes doubled, every unsafe character escaped."""
-    return "".join("\\\\" if c == "\\" else _escape_char(c) if unsafe(c) else c for c in text)
+def printable(text: str, backslashes: bool = True) -> str:
+    """``text`` on one line: every unsafe character escaped, backslashes doubled (unless
+    ``backslashes`` is false: a message that shows text already escaped)."""
+    return "".join("\\\\" if c == "\\" and backslashes else _escape_char(c) if unsafe(c)
+                   else c for c in text)
 
 
 def cut(text: str, limit: int) -> str:

@@ -34,9 +34,9 @@ class Problem:
 
     def __str__(self) -> str:
         """One line whatever the file name, key or message hold (``comments.printable``)."""
-        where = f"{printable(self.file)}:{self.line}:{self.col}"
-        message = printable(self.message)
-        key = cut(printable(self.key), 120)
+        where = f"{printable(self.file, False)}:{self.line}:{self.col}"
+        message = printable(self.message, False)  # values in it are already ``shown``
+        key = cut(printable(self.key, False), 120)
         return f"{where}: {key}: {message}" if key else f"{where}: {message}"
 
 

@@ -203,7 +203,7 @@ class Spec:
         while key and key not in self.positions:
             key = key.rpartition(".")[0]
         line, col = self.positions.get(key, (1, 1))
-        return f"{printable(self.path or self.file)}:{line}:{col}"
+        return f"{printable(self.path or self.file, False)}:{line}:{col}"
 
     def digest(self) -> str:
         """A short stable hash of the spec's meaning (not its formatting or file name).

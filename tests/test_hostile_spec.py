@@ -15,6 +15,7 @@ own table, and no file written by a psql or mysql shell escape.
 from __future__ import annotations
 
 import contextlib
+import dataclasses
 import datetime as dt
 import io
 import os
@@ -22,6 +23,7 @@ import shutil
 import socket
 import subprocess
 import traceback
+import types
 from pathlib import Path
 
 import pytest
@@ -35,7 +37,8 @@ from sqlgen import cli, compile_spec, parse_spec, render_files
 from sqlgen.comments import comment_text, shown, unsafe
 from sqlgen.dialects import TARGETS, target_names
 from sqlgen.spec import KEYS
-from sqlgen.views import planned_views
+from sqlgen.compiler import deciding_lines
+from sqlgen.views import VIEWS, planned_views
 from test_spec import GOOD  # the smallest valid spec, one key a line
 
 LEAKS = ("Node(", "<class ", "Traceback", "object at 0x")
@@ -517,6 +520,26 @@ week_start: sunday
     assert "--   revenue where: none (every row counts)\n" in revenue
     both = files["create_all.sql"].split("\n\n", 1)[0]
     assert "activity table" in both and "revenue table" in both
+
+
+def test_header_shows_the_valid_range_when_the_spec_has_one():
+    """The range keys (activity.valid_from / valid_until) arrive with another change; the
+    header shows them as soon as the source carries them."""
+    spec = parse_spec(GOOD, "g.yml")
+    fields = {f.name: getattr(spec.activity, f.name) for f in dataclasses.fields(spec.activity)}
+    ranged = types.SimpleNamespace(**fields, valid_from=dt.date(1990, 1, 1),
+                                   valid_until=dt.date(2100, 1, 1))
+    lines = deciding_lines(dataclasses.replace(spec, activity=ranged), None)
+    assert ("activity valid range: 1990-01-01 to 2100-01-01; rows outside it are left out"
+            in lines)
+    assert not any("valid range" in line for line in deciding_lines(spec, None))
+
+
+def test_every_view_names_the_spec_key_that_asks_for_it():
+    """A dialect that cannot generate a view is reported at this key's line."""
+    paths = {key.path for key in KEYS}
+    assert all(view.spec_key in paths and view.reads in ("activity", "revenue")
+               for view in VIEWS)
 
 
 def test_header_and_manifest_carry_the_same_spec_hash(tmp_path):
