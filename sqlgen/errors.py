@@ -73,8 +73,7 @@ class UnsupportedError(SqlgenError):
         if not where:
             super().__init__(f"dialect {dialect!r} cannot generate {key}: {reason}")
             return
-        what = "this" if key == spec_key else key
-        super().__init__(f"{where}: {spec_key}: dialect {dialect!r} cannot generate {what}: "
+        super().__init__(f"{where}: {spec_key}: dialect {dialect!r} cannot generate {key}: "
                          f"{reason}")
 
     def located(self, where: str, spec_key: str) -> UnsupportedError:

@@ -226,7 +226,7 @@ def test_nothing_is_written_when_a_later_target_fails(tmp_path):
     code, _, err = run("build", str(spec), "--dialect", "duckdb,trino,sqlite", "--out",
                        str(tmp_path / "out"))
     assert code == 3 and err.startswith(f"{spec}:6:13: activity.timezone: dialect 'sqlite' "
-                                        "cannot generate this")
+                                        "cannot generate activity.timezone")
     assert not (tmp_path / "out").exists()
 
 
@@ -325,7 +325,7 @@ def test_the_first_failing_target_is_reported_whatever_the_jobs(tmp_path):
                    str(tmp_path / f"out{jobs}"), "--jobs", jobs) for jobs in ("1", "4")]
     assert results[0] == results[1]
     assert results[0][2].startswith(f"{spec}:6:13: activity.timezone: dialect 'sqlite' "
-                                    "cannot generate this")
+                                    "cannot generate activity.timezone")
     with pytest.raises(SqlgenError, match="dialect 'tsql'"):
         compiler.render_targets(parse_spec(spec.read_text(), "spec.yml"),
                                 ["duckdb", "trino", "tsql"], jobs=3)

@@ -401,7 +401,7 @@ def test_unsupported_dialect_is_located_at_the_key(tmp_path):
     path.write_text(text)
     result = run_main("build", str(path), "--dialect", "sqlite", "--out", str(tmp_path / "o"))
     assert_refused(result, EXIT_SPEC, mentions=(f"{path}:4:13: activity.timezone: dialect "
-                                                "'sqlite' cannot generate this: ",))
+                                                "'sqlite' cannot generate activity.timezone: ",))
     assert not (tmp_path / "o").exists()
 
 
