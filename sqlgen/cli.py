@@ -13,9 +13,10 @@ import sys
 from pathlib import Path
 
 from . import __version__
+from .comments import printable
 from .compiler import build_inputs, file_names, render_files, render_targets
 from .dialects import TARGETS, target_names
-from .errors import EXIT_OUTPUT, SpecError, SqlgenError
+from .errors import EXIT_OUTPUT, SpecError, SqlgenError, UnsupportedError
 from .output import (check_files, is_up_to_date, plan_folder, refuse, spec_owner, tidy,
                      write_folders)
 from .spec import Spec, load_spec
@@ -182,7 +183,8 @@ def _check(spec_path: str, names: list[str],
 def _validate(args: argparse.Namespace) -> int:
     spec = load_spec(args.spec)
     render_files(spec)  # a combination the target cannot express is a spec problem too
-    print(f"{args.spec}: ok ({spec.grain} grain, target {spec.output.dialect})")
+    print(f"{printable(args.spec, False)}: ok ({spec.grain} grain, target "
+          f"{spec.output.dialect})")
     return 0
 
 
@@ -202,6 +204,9 @@ def main(argv: list[str] | None = None) -> int:
         return COMMANDS[args.command](args)
     except SpecError as err:
         print(err.render(), file=sys.stderr)
+        return err.exit_code
+    except UnsupportedError as err:  # located at the spec key once compiled from a spec
+        print(str(err) if err.where else f"Error: {err}", file=sys.stderr)
         return err.exit_code
     except SqlgenError as err:
         print(f"Error: {err}", file=sys.stderr)

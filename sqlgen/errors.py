@@ -13,6 +13,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from .comments import cut, printable
+
 EXIT_OK = 0
 EXIT_STALE = 1
 EXIT_USAGE = 2
@@ -31,8 +33,11 @@ class Problem:
     message: str
 
     def __str__(self) -> str:
-        where = f"{self.file}:{self.line}:{self.col}"
-        return f"{where}: {self.key}: {self.message}" if self.key else f"{where}: {self.message}"
+        """One line whatever the file name, key or message hold (``comments.printable``)."""
+        where = f"{printable(self.file, False)}:{self.line}:{self.col}"
+        message = printable(self.message, False)  # values in it are already ``shown``
+        key = cut(printable(self.key, False), 120)
+        return f"{where}: {key}: {message}" if key else f"{where}: {message}"
 
 
 class SqlgenError(Exception):
@@ -56,11 +61,25 @@ class SpecError(SqlgenError):
 
 
 class UnsupportedError(SqlgenError):
-    """A spec option that a target dialect cannot express correctly."""
+    """A spec option that a target dialect cannot express correctly.
 
-    def __init__(self, dialect: str, key: str, reason: str):
-        self.dialect, self.key, self.reason = dialect, key, reason
-        super().__init__(f"dialect {dialect!r} cannot generate {key}: {reason}")
+    ``where`` is the ``file:line:col`` of the spec key that asks for it, once known
+    (``compiler.compile_spec`` adds it); the message then starts with it.
+    """
+
+    def __init__(self, dialect: str, key: str, reason: str, where: str = "",
+                 spec_key: str = ""):
+        self.dialect, self.key, self.reason, self.where = dialect, key, reason, where
+        if not where:
+            super().__init__(f"dialect {dialect!r} cannot generate {key}: {reason}")
+            return
+        super().__init__(f"{where}: {spec_key}: dialect {dialect!r} cannot generate {key}: "
+                         f"{reason}")
+
+    def located(self, where: str, spec_key: str) -> UnsupportedError:
+        """The same error, its message starting with ``where`` (``file:line:col``) and the
+        spec key that asks for the feature (``cohorts`` for ``view cohort_retention``)."""
+        return UnsupportedError(self.dialect, self.key, self.reason, where, spec_key)
 
 
 class OutputError(SqlgenError):

@@ -7,10 +7,13 @@ aggregate or window, and no column of another table.
 
 from __future__ import annotations
 
+import re
+
 import sqlglot
 from sqlglot import exp
 from sqlglot.errors import ParseError, TokenError
 
+from .comments import cut
 from .names import RESERVED_PREFIX
 
 _FORBIDDEN: tuple[tuple[type[exp.Expression], str], ...] = (
@@ -34,7 +37,7 @@ def parse_filter(text: str, dialect: str) -> exp.Expression:
     try:
         tokens = sqlglot.Dialect.get_or_raise(dialect).tokenize(text)
     except TokenError as err:
-        raise ValueError(f"cannot read the expression: {err}") from None
+        raise ValueError(f"cannot read the expression: {cut(_plain(str(err)), 200)}") from None
     if any(token.comments for token in tokens):
         raise ValueError("comments are not allowed in a filter; remove the -- or /* */ part")
     try:
@@ -54,7 +57,8 @@ def _check(tree: exp.Expression) -> exp.Expression:
                 raise ValueError(f"{what} is not allowed in a filter; use a plain condition "
                                  "on the table's own columns, e.g. event_name <> 'push_received'")
         if isinstance(node, exp.Column) and (node.table or node.args.get("db")):
-            raise ValueError(f"column {node.sql()} names a table; write the column alone")
+            raise ValueError(f"column {cut(node.sql(), 80)} names a table; write the column "
+                             "alone")
         if isinstance(node, exp.Column) and node.name.lower().startswith(RESERVED_PREFIX):
             raise ValueError(f"names starting with {RESERVED_PREFIX!r} are reserved for sqlgen")
     top = tree.unnest() if isinstance(tree, exp.Paren) else tree
@@ -65,7 +69,15 @@ def _check(tree: exp.Expression) -> exp.Expression:
 
 
 def _first_error(err: ParseError) -> str:
+    """sqlglot's first error in words: its class names shown short, the text cut."""
     if err.errors:
         first = err.errors[0]
-        return f"{first.get('description')} (column {first.get('col')})"
-    return str(err)
+        text = f"{_plain(str(first.get('description')))} (column {first.get('col')})"
+    else:
+        text = _plain(str(err))
+    return cut(text, 200)
+
+
+def _plain(text: str) -> str:
+    """``<class 'sqlglot.expressions.core.Add'>`` -> ``Add``."""
+    return re.sub(r"<class '(?:[\w]+\.)*(\w+)'>", r"\1", text)

@@ -11,6 +11,8 @@ import re
 
 from sqlglot import exp
 
+from .comments import unsafe
+
 BARE = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
 RESERVED_PREFIX = "sqlgen_"
 
@@ -22,7 +24,15 @@ class NameError_(ValueError):
 
 
 def split_name(text: str, max_parts: int) -> tuple[Part, ...]:
-    """Split ``a.b."C d"`` into parts; each bare or quoted; at most ``max_parts``."""
+    """Split ``a.b."C d"`` into parts; each bare or quoted; at most ``max_parts``.
+
+    A control character or line separator is refused even inside quotes: engines differ
+    on whether an identifier may hold one, and no real table needs it.
+    """
+    bad = next((i for i, char in enumerate(text) if unsafe(char)), None)
+    if bad is not None:
+        raise NameError_(f"holds a control character (U+{ord(text[bad]):04X}) at position "
+                         f"{bad + 1}; names are printable text")
     parts: list[Part] = []
     pos = 0
     while True:

@@ -6,15 +6,17 @@ raising, so a user fixes a spec in one pass.
 
 from __future__ import annotations
 
+import datetime as dt
 import difflib
 import hashlib
 import json
 import os
 import zoneinfo
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, fields, is_dataclass, replace
 from typing import Any, Callable
 
 from . import names
+from .comments import MESSAGE_LIMIT, cut, printable, shown, unsafe
 from .dialects import TARGETS, target_names
 from .errors import Problem, SpecError
 from .filters import parse_filter
@@ -192,11 +194,26 @@ class Spec:
     trailing_windows: tuple[int, ...] = ()
     file: str = field(default="spec.yml", compare=False)
     revenue: RevenueSource | None = None
+    # Where each key's value was written: key path -> (line, col), filled by the checker;
+    # ``path`` is the spec file as the user named it. Neither is part of the meaning.
+    positions: dict[str, tuple[int, int]] = field(default_factory=dict, compare=False,
+                                                  repr=False)
+    path: str = field(default="", compare=False, repr=False)
+
+    def where(self, key: str) -> str:
+        """``file:line:col`` of a spec key (or the nearest section written), for messages."""
+        while key and key not in self.positions:
+            key = key.rpartition(".")[0]
+        line, col = self.positions.get(key, (1, 1))
+        return f"{printable(self.path or self.file, False)}:{line}:{col}"
 
     def digest(self) -> str:
-        """A short stable hash of the spec's meaning (not its formatting)."""
-        data = asdict(self)
-        data.pop("file")
+        """A short stable hash of the spec's meaning (not its formatting or file name).
+
+        The one spec hash: the header of every generated file and the manifest show it.
+        """
+        data = {f.name: getattr(self, f.name) for f in fields(self) if f.compare}
+        data = {name: asdict(v) if is_dataclass(v) else v for name, v in data.items()}
         if data.get("revenue") is None:
             data.pop("revenue", None)  # specs without revenue keep their earlier hash
         for name, off in (("cohorts", False), ("engagement", False), ("trailing_windows", [])):
@@ -214,13 +231,16 @@ def load_spec(path: str) -> Spec:
 
 def parse_spec(text: str, filename: str = "spec.yml") -> Spec:
     """Validate spec text; raise SpecError listing every problem."""
-    root = parse_yaml(text, filename)
+    problems: list[Problem] = []
+    root = parse_yaml(text, filename, problems)
     checker = _Checker(filename)
+    checker.problems = problems  # the reader's problems (a key written twice, a tag) first
     values = checker.section(root, "")
     _cross_checks(checker, root, values)
     if checker.problems:
         raise SpecError(checker.problems)
-    return _build(values, filename)
+    positions = {"": (root.line, root.col), **checker.positions}
+    return replace(_build(values, filename), positions=positions, path=filename)
 
 
 def _cross_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
@@ -330,6 +350,7 @@ class _Checker:
         self.filename = filename
         self.problems: list[Problem] = []
         self.values: dict[str, Any] = {}
+        self.positions: dict[str, tuple[int, int]] = {}
         self.dialect = "duckdb"
 
     def report(self, node_pos: tuple[int, int], key: str, message: str) -> None:
@@ -357,6 +378,11 @@ class _Checker:
     def key(self, parent: Node, key: Key) -> None:
         leaf = _leaf(key.path)
         child = parent.value.get(leaf)
+        if child is not None:
+            self.positions[key.path] = (child.line, child.col)
+        if child is not None and child.refused:  # already reported by the YAML reader
+            self.values[key.path] = key.default
+            return
         if child is None or child.value is None:
             if key.required:
                 where = _parent(key.path) or "the spec"
@@ -391,23 +417,42 @@ def _leaf(path: str) -> str:
     return path.rpartition(".")[2]
 
 
+def _describe(value: Any) -> str:
+    """A YAML value as a message names it: never a repr of sqlgen's own objects."""
+    if isinstance(value, list):
+        return "a list"
+    if isinstance(value, dict):
+        return "a mapping"
+    if value is None:
+        return "nothing"
+    if isinstance(value, bool):
+        return str(value).lower()
+    if isinstance(value, (int, float)):
+        return cut(str(value), MESSAGE_LIMIT)
+    if isinstance(value, (dt.date, dt.datetime)):
+        return f"the date {value.isoformat()}"
+    return shown(value)
+
+
 def _text(value: Any, what: str = "text") -> str:
     if not isinstance(value, str) or isinstance(value, bool):
-        raise ValueError(f"expected {what}, got {type(value).__name__} {value!r}")
+        raise ValueError(f"expected {what}, got {_describe(value)}")
     return value
 
 
 def _check_integer(_c: _Checker, key: Key, value: Any) -> int:
     if key.path == "version":
         if value != 1 or isinstance(value, bool):
-            raise ValueError(f"expected 1 (the only spec version), got {value!r}")
+            raise ValueError(f"expected 1 (the only spec version), got {_describe(value)}")
     return int(value)
 
 
 def _check_choice(c: _Checker, key: Key, value: Any) -> str:
+    if isinstance(value, (list, dict)) or value is None:
+        raise ValueError(f"expected one of {', '.join(key.choices)}, got {_describe(value)}")
     text = str(value) if not isinstance(value, bool) else repr(value).lower()
     if text not in key.choices:
-        raise ValueError(f"{text!r} is not one of {', '.join(key.choices)}."
+        raise ValueError(f"{shown(text)} is not one of {', '.join(key.choices)}."
                          f"{_suggest(text, key.choices)}")
     if key.path == "output.dialect":
         c.dialect = TARGETS[text].sqlglot_dialect
@@ -419,7 +464,7 @@ def _check_name(max_parts: int) -> Callable[[_Checker, Key, Any], tuple[names.Pa
         try:
             parts = names.split_name(_text(value, "a name"), max_parts)
         except names.NameError_ as err:
-            raise ValueError(f"{value!r} {err}") from None
+            raise ValueError(f"{shown(value)} {err}") from None
         for text, _quoted in parts:
             if text.lower().startswith(names.RESERVED_PREFIX):
                 raise ValueError(f"names starting with {names.RESERVED_PREFIX!r} are reserved")
@@ -431,8 +476,16 @@ def _check_column(c: _Checker, key: Key, value: Any) -> names.Part:
     return _check_name(1)(c, key, value)[0]
 
 
+def _refuse_control(text: str, allowed: str = "") -> None:
+    bad = next((i for i, char in enumerate(text) if unsafe(char) and char not in allowed), None)
+    if bad is not None:
+        raise ValueError(f"holds a control character (U+{ord(text[bad]):04X}) at position "
+                         f"{bad + 1}; write printable text")
+
+
 def _check_filter(c: _Checker, _key: Key, value: Any) -> str:
     text = _text(value, "an SQL condition as text").strip()
+    _refuse_control(text, allowed="\t\n\r")  # a condition may span lines
     parse_filter(text, c.dialect)
     return text
 
@@ -440,7 +493,7 @@ def _check_filter(c: _Checker, _key: Key, value: Any) -> str:
 def _check_timezone(_c: _Checker, _key: Key, value: Any) -> str:
     zone = _text(value, "an IANA time zone name")
     if zone not in _zones():
-        raise ValueError(f"{zone!r} is not an IANA time zone name.{_suggest(zone, _zones())}")
+        raise ValueError(f"{shown(zone)} is not an IANA time zone name.{_suggest(zone, _zones())}")
     return zone
 
 
@@ -451,34 +504,38 @@ def _zones() -> list[str]:
 def _check_prefix(_c: _Checker, _key: Key, value: Any) -> str:
     text = _text(value)
     if text and not names.BARE.fullmatch(text):
-        raise ValueError(f"{text!r} must be letters, digits and _ (starting with a letter or _)")
+        raise ValueError(f"{shown(text)} must be letters, digits and _ (starting with a letter "
+                         "or _)")
     return text
 
 
 def _check_text(_c: _Checker, _key: Key, value: Any) -> str:
-    return _text(value)
+    text = _text(value)
+    _refuse_control(text)
+    return text
 
 
 def _check_scale(_c: _Checker, _key: Key, value: Any) -> int:
     if not isinstance(value, int) or isinstance(value, bool) or not 0 <= value <= MAX_SCALE:
         raise ValueError(f"expected a whole number of decimal places from 0 to {MAX_SCALE}, "
-                         f"got {value!r}")
+                         f"got {_describe(value)}")
     return value
 
 
 def _check_boolean(_c: _Checker, _key: Key, value: Any) -> bool:
     if not isinstance(value, bool):
-        raise ValueError(f"expected true or false, got {value!r}")
+        raise ValueError(f"expected true or false, got {_describe(value)}")
     return value
 
 
 def _check_windows(_c: _Checker, _key: Key, value: Any) -> tuple[int, ...]:
     if not isinstance(value, list):
-        raise ValueError(f"expected a list of window lengths in days, e.g. [7, 28]; got {value!r}")
+        raise ValueError("expected a list of window lengths in days, e.g. [7, 28]; got "
+                         f"{_describe(value)}")
     days = [item.value for item in value]
     for day in days:
         if not isinstance(day, int) or isinstance(day, bool):
-            raise ValueError(f"window length {day!r} is not a whole number of days")
+            raise ValueError(f"window length {_describe(day)} is not a whole number of days")
         if not 1 <= day <= MAX_WINDOW_DAYS:
             raise ValueError(f"window length {day} must be from 1 to {MAX_WINDOW_DAYS} days")
     repeated = sorted({day for day in days if days.count(day) > 1})

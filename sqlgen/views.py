@@ -21,6 +21,13 @@ class View:
     depends: tuple[str, ...] = ()
     personal_data: bool = False
     enabled: Callable[[Spec], bool] = lambda spec: True
+    reads: str = "activity"  # the spec section of its source table: activity or revenue
+    option: str = ""  # the spec key that turns the view on, when it is optional
+
+    @property
+    def spec_key(self) -> str:
+        """The spec key that asks for this view: its option, else its source section."""
+        return self.option or self.reads
 
     @property
     def template(self) -> str:
@@ -100,7 +107,7 @@ VIEWS: tuple[View, ...] = (
                         "start (DATE)"),
          ("last_date", "newest local date counted: a charge's date, or a subscription's start "
                        "or end (DATE); periods run to the one holding it")),
-        enabled=lambda spec: spec.revenue is not None),
+        enabled=lambda spec: spec.revenue is not None, reads="revenue"),
     View(
         "customer_revenue",
         "One row per customer and period in which the customer has revenue, had revenue the "
@@ -126,7 +133,7 @@ VIEWS: tuple[View, ...] = (
                            "period before the zero/negative rule; NULL when it has none"),
          ("counted_as_zero", "1 when period_amount is zero or negative and counts as no "
                              "revenue, else 0")),
-        personal_data=True, enabled=lambda spec: spec.revenue is not None),
+        personal_data=True, enabled=lambda spec: spec.revenue is not None, reads="revenue"),
     View(
         "revenue_accounting",
         "One row per period from the first period with revenue data to the last, empty "
@@ -168,7 +175,7 @@ VIEWS: tuple[View, ...] = (
                            "end, else 'complete'"),
          ("period_key", "integer period index")),
         depends=("customer_revenue", "revenue_source_summary"),
-        enabled=lambda spec: spec.revenue is not None),
+        enabled=lambda spec: spec.revenue is not None, reads="revenue"),
     View(
         "cohort_retention",
         "One row per cohort (users by first active period) and age, from age 0 to the last "
@@ -182,7 +189,8 @@ VIEWS: tuple[View, ...] = (
          ("retention_rate", "active_users / cohort_users (1.0 at age 0)"),
          ("cohort_key", "integer period index of the cohort period"),
          ("period_key", "integer period index of the period")),
-        enabled=lambda spec: spec.cohorts and spec.activity is not None),
+        enabled=lambda spec: spec.cohorts and spec.activity is not None,
+        option="cohorts"),
     View(
         "engagement_depth",
         "One row per period and number of distinct active days a user can have in it (1 at "
@@ -200,7 +208,8 @@ VIEWS: tuple[View, ...] = (
          ("period_status", "'in_progress' for a last period the data does not cover to its "
                            "end, else 'complete'"),
          ("period_key", "integer period index")),
-        enabled=lambda spec: spec.engagement and spec.activity is not None),
+        enabled=lambda spec: spec.engagement and spec.activity is not None,
+        option="engagement"),
     View(
         "trailing_activity",
         "One row per day, from the first to the last day with activity, and window length "
@@ -216,7 +225,8 @@ VIEWS: tuple[View, ...] = (
          ("churned_users", "users active in the previous window but not in this one"),
          ("quick_ratio", "(new + resurrected) / churned; NULL when churned is 0"),
          ("day_key", "integer day index (days since 1970-01-05)")),
-        enabled=lambda spec: bool(spec.trailing_windows) and spec.activity is not None),
+        enabled=lambda spec: bool(spec.trailing_windows) and spec.activity is not None,
+        option="trailing_windows"),
     View(
         "revenue_cohorts",
         "One row per cohort of customers (by first period with revenue) and age, from age 0 "
@@ -233,7 +243,8 @@ VIEWS: tuple[View, ...] = (
          ("cohort_key", "integer period index of the cohort period"),
          ("period_key", "integer period index of the period")),
         depends=("customer_revenue", "revenue_source_summary"),
-        enabled=lambda spec: spec.cohorts and spec.revenue is not None),
+        enabled=lambda spec: spec.cohorts and spec.revenue is not None,
+        reads="revenue", option="cohorts"),
 )
 
 VIEWS_BY_NAME = {view.name: view for view in VIEWS}

@@ -41,7 +41,7 @@ CASES = [
     ("alias bomb", "a: &x [1, 2]\nb: [*x, *x]\n" + GOOD,
      ["s.yml:1:4: YAML anchors and aliases are not allowed in a spec"]),
     ("python tag", GOOD.replace("grain: month", "grain: !!python/object:os.system month"),
-     ["s.yml:6:8: YAML tag 'tag:yaml.org,2002:python/object:os.system' is not allowed; "
+     ["s.yml:6:8: grain: YAML tag 'tag:yaml.org,2002:python/object:os.system' is not allowed; "
       "write plain values"]),
     ("bad yaml", "version: 1\nactivity:\n  table: t\n   user: u\n",
      ["s.yml:4:8: not valid YAML: mapping values are not allowed here"]),
@@ -59,7 +59,8 @@ CASES = [
     ("week start", GOOD + "week_start: sundy\n",
      ["s.yml:7:13: week_start: 'sundy' is not one of monday, tuesday, wednesday, thursday, "
       "friday, saturday, sunday. Did you mean 'sunday'?"]),
-    ("duplicate key", GOOD + "grain: week\n", ["s.yml:7:1: grain: key appears twice"]),
+    ("duplicate key", GOOD + "grain: week\n",
+     ["s.yml:7:1: grain: key appears twice (first on line 6); keep one"]),
 ]
 
 FILTER_CASES = [

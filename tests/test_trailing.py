@@ -172,7 +172,7 @@ def spec_problems(extra: str) -> list[str]:
     ("trailing_windows: [400]\n", "window length 400 must be from 1 to 366 days"),
     ("trailing_windows: [7, 7.5]\n", "window length 7.5 is not a whole number of days"),
     ("trailing_windows: ['7']\n", "window length '7' is not a whole number of days"),
-    ("trailing_windows: [true]\n", "window length True is not a whole number of days"),
+    ("trailing_windows: [true]\n", "window length true is not a whole number of days"),
     ("trailing_windows: [28, 7, 28]\n", "window length 28 appears more than once"),
     ("cohorts: yes please\n", "expected true or false, got 'yes please'"),
     ("engagement: 1\n", "expected true or false, got 1"),

@@ -2,6 +2,11 @@
 -- Do not edit: change the spec and run `sqlgen build` again.
 -- customer_revenue: One row per customer and period in which the customer has revenue, had revenue the period before, or has a zero or negative total: the revenue, its state and the amount each component contributes. Not revenue recognised under an accounting standard.
 -- Holds one row per user: personal data. Grant access as you would to the underlying user table.
+-- What decides the numbers:
+--   revenue table: billing.invoice_lines (charges)
+--   revenue time: timestamps without zone, used as stored (no time zone conversion)
+--   revenue where: currency = 'EUR'
+--   grain: month
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
 CREATE OR REPLACE VIEW `finance`.customer_revenue AS

@@ -2,6 +2,11 @@
 -- Do not edit: change the spec and run `sqlgen build` again.
 -- user_activity: One row per user and active period.
 -- Holds one row per user: personal data. Grant access as you would to the underlying user table.
+-- What decides the numbers:
+--   activity table: raw.app_events
+--   activity time: timestamps without zone, used as stored (no time zone conversion)
+--   activity where: event_name <> 'push_received'
+--   grain: day
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- CREATE OR REPLACE VIEW cannot change an existing view's columns on this engine: after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, which does so).
 

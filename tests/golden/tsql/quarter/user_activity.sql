@@ -2,6 +2,11 @@
 -- Do not edit: change the spec and run `sqlgen build` again.
 -- user_activity: One row per user and active period.
 -- Holds one row per user: personal data. Grant access as you would to the underlying user table.
+-- What decides the numbers:
+--   activity table: raw.app_events
+--   activity time: timestamps without zone, used as stored (no time zone conversion)
+--   activity where: event_name <> 'push_received'
+--   grain: quarter
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
 CREATE OR ALTER VIEW [growth].user_activity AS
