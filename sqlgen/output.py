@@ -288,6 +288,7 @@ def _plan(folder: Path, owner: str | None, inputs: list[str] | None, names: list
         plan.refusals.append(_not_ours(plan.manifest.path))
         return plan
     _adopt_legacy(plan, inputs, shown)
+    _adopt_renamed(plan, inputs)
     owned: dict[str, list[str]] = {}  # another spec -> its files this build would write
     for name in names:
         refusal = _refusal(plan, folder / name)
@@ -339,6 +340,20 @@ def _adopt_legacy(plan: Plan, inputs: list[str] | None, shown: str) -> None:
     plan.refusals.append(f"{plan.manifest.path}: written by an earlier sqlgen for {who}, not "
                          f"for {shown}; build that spec once with this sqlgen first, or "
                          f"{_OUT_HINT}")
+
+
+def _adopt_renamed(plan: Plan, inputs: list[str] | None) -> None:
+    """A spec renamed (or moved) since its build: an entry whose spec file is gone and whose
+    spec hash is this spec's is taken as this spec's (``git mv usd.yml revenue_usd.yml``).
+    An entry of a spec that is gone and was edited too stays refused (see _owned_message)."""
+    spec_line = next((line for line in inputs or [] if line.startswith("spec ")), None)
+    if plan.owner is None or spec_line is None:
+        return
+    for other in sorted(o for o in plan.manifest.entries if o not in (None, plan.owner)):
+        entry = plan.manifest.entries[other]
+        if spec_line in entry.inputs and not os.path.exists(plan.folder / other):
+            del plan.manifest.entries[other]
+            plan.manifest.entries.setdefault(plan.owner, Entry()).files.update(entry.files)
 
 
 def _header_specs(folder: Path, names) -> set[str]:

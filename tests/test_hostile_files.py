@@ -250,7 +250,7 @@ CASES = [
     Case("missing-spec", lambda p: p.spec.unlink(), BUILD, EXIT_SPEC,
          ("growth.yml", "cannot read the spec"), located=True),
     Case("folder-as-spec", lambda p: None, ("build", "{out}"), EXIT_SPEC,
-         ("cannot read the spec",), located=True, after=unchanged),
+         ("is a directory, not a regular file",), located=True, after=unchanged),
     Case("spec-not-utf8", lambda p: p.spec.write_bytes(b"version: 1\n\xff\n"), BUILD,
          EXIT_SPEC, ("not UTF-8",), located=True, after=unchanged),
     Case("spec-empty", lambda p: p.spec.write_text(""), CHECK, EXIT_SPEC, ("empty",),

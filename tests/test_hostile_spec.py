@@ -561,6 +561,16 @@ def test_renamed_spec_is_not_up_to_date(tmp_path):
     (tmp_path / "a.yml").rename(tmp_path / "b.yml")
     result = run_main("build", str(tmp_path / "b.yml"), "--check")
     assert result.returncode == 1, result.stdout + result.stderr
+    # the renamed spec takes its files over (same spec hash, the old spec file gone) ...
+    assert run_main("build", str(tmp_path / "b.yml")).returncode == EXIT_OK
+    manifest = (tmp_path / "sql" / ".sqlgen-manifest").read_text()
+    assert '"../b.yml"' in manifest and "a.yml" not in manifest
+    assert run_main("build", str(tmp_path / "b.yml"), "--check").returncode == EXIT_OK
+    # ... but a spec that is gone and was edited keeps its files, refused
+    (tmp_path / "b.yml").rename(tmp_path / "c.yml")
+    (tmp_path / "c.yml").write_text(GOOD.replace("grain: month", "grain: quarter"))
+    result = run_main("build", str(tmp_path / "c.yml"))
+    assert result.returncode == 4 and "no spec is at" in result.stderr
 
 
 # ------------------------------------------------ executed on every engine
