@@ -10,7 +10,7 @@ import os
 import pickle
 import sys
 import threading
-from dataclasses import asdict, dataclass
+from dataclasses import dataclass
 from importlib import metadata
 from pathlib import Path
 
@@ -330,21 +330,54 @@ def build_inputs(spec: Spec, target_name: str) -> list[str]:
     Two builds with the same lines write the same bytes (output is deterministic), so a
     folder whose files match what a build with these lines wrote is up to date.
     """
-    spec_text = json.dumps(asdict(spec), sort_keys=True, separators=(",", ":"))
+    spec_text = json.dumps(spec.data(), sort_keys=True, separators=(",", ":"))
     return [f"sqlgen {__version__}", f"target {target_name}",
             f"spec {hashlib.sha256(spec_text.encode()).hexdigest()}",
             f"generator {generator_digest()}"]
 
 
 def _create_all(spec: Spec, target: Target, compiled: list[CompiledView]) -> str:
+    """Every view in dependency order, after the schema they go in; in one transaction
+    where the target's DDL is transactional, so a run that fails changes nothing."""
     lines = header(spec, target, None)
     lines.append("-- Every view, each after the views it reads.")
-    parts = ["\n".join(lines)]
+    lines.append("-- " + (f"Not one transaction: {target.no_ddl_transaction}; a failed run can "
+                          "leave some views created. Run it again after fixing the cause."
+                          if target.no_ddl_transaction else
+                          "One transaction: a run that fails leaves every object as it was."))
+    statements = [s for s in (_create_schema(spec, target),) if s]
     if target.view_ddl == "replace" and target.ddl_note:
         for c in reversed(compiled):
             drop = exp.Drop(tables=[view_table(spec, c.view.name)], kind="VIEW", exists=True,
                             cascade=True)
-            parts.append(_generate(drop, target, "view DDL") + ";")
-    for c in compiled:
-        parts.append(f"-- {c.view.name}\n" + "\n\n".join(s + ";" for s in c.statements))
-    return "\n\n".join(parts) + "\n"
+            statements.append(_generate(drop, target, "view DDL"))
+    run = _through_exec if target.exec_batch else (lambda statement: statement + ";")
+    body = [s + ";" for s in statements]  # the schema (T-SQL: its own EXEC) and drops
+    body += [f"-- {c.view.name}\n" + "\n\n".join(run(s) for s in c.statements)
+             for c in compiled]
+    if not target.no_ddl_transaction:
+        body = [_generate(exp.Transaction(), target, "transaction") + ";", *body,
+                _generate(exp.Commit(), target, "transaction") + ";"]
+    if target.exec_batch:  # an error rolls the whole transaction back, not one statement
+        body.insert(0, "SET XACT_ABORT ON;")
+    return "\n\n".join(["\n".join(lines), *body]) + "\n"
+
+
+def _create_schema(spec: Spec, target: Target) -> str:
+    """CREATE SCHEMA IF NOT EXISTS for output.schema in the target's spelling (ClickHouse:
+    DATABASE; T-SQL: an existence test, having no IF NOT EXISTS); "" without a schema."""
+    if not spec.output.schema:
+        return ""
+    parts = [names.identifier(p) for p in spec.output.schema]
+    if not target.schema_catalog:
+        parts = parts[-1:]
+    schema = exp.Table(this=parts[-1], db=parts[0] if len(parts) == 2 else None)
+    return _generate(exp.Create(this=schema, kind="SCHEMA", exists=True), target, "output.schema")
+
+
+def _through_exec(statement: str) -> str:
+    """T-SQL: CREATE VIEW must begin a batch, so create_all.sql (one batch, so that one
+    transaction holds it) runs each statement as ``EXEC (N'...')``."""
+    tsql = TARGETS["tsql"]
+    text = _generate(exp.Paren(this=exp.National(this=statement)), tsql, "view DDL")
+    return _generate(exp.Command(this="EXEC", expression=text), tsql, "view DDL") + ";"

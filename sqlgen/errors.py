@@ -55,12 +55,42 @@ class SpecError(SqlgenError):
         return "\n".join(lines)
 
 
-class UnsupportedError(SqlgenError):
-    """A spec option that a target dialect cannot express correctly."""
+@dataclass(frozen=True)
+class Gap:
+    """One spec option a target dialect cannot express; ``where`` is ``file:line:col`` of
+    the spec key that asks for it, or "" when no key does (a construct sqlglot refused)."""
 
-    def __init__(self, dialect: str, key: str, reason: str):
+    dialect: str
+    key: str
+    reason: str
+    where: str = ""
+
+    def __str__(self) -> str:
+        text = f"dialect {self.dialect!r} cannot generate {self.key}: {self.reason}"
+        return f"{self.where}: {self.key}: {text}" if self.where else text
+
+
+class UnsupportedError(SqlgenError):
+    """Spec options that target dialects cannot express correctly: every gap, one a line.
+
+    ``dialect``, ``key`` and ``reason`` are the first gap's.
+    """
+
+    def __init__(self, dialect: str, key: str, reason: str, where: str = "",
+                 more: tuple[Gap, ...] = ()):
+        self.gaps = (Gap(dialect, key, reason, where), *more)
         self.dialect, self.key, self.reason = dialect, key, reason
-        super().__init__(f"dialect {dialect!r} cannot generate {key}: {reason}")
+        super().__init__("\n".join(str(gap) for gap in self.gaps))
+
+    @classmethod
+    def of(cls, gaps: list[Gap]) -> UnsupportedError:
+        """One error listing every gap (at least one)."""
+        first, *rest = gaps
+        return cls(first.dialect, first.key, first.reason, first.where, tuple(rest))
+
+    def render(self) -> str:
+        """The message for a person: located lines as they are, others as an Error."""
+        return "\n".join(str(gap) if gap.where else f"Error: {gap}" for gap in self.gaps)
 
 
 class OutputError(SqlgenError):

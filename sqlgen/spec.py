@@ -11,7 +11,7 @@ import hashlib
 import json
 import os
 import zoneinfo
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from typing import Any, Callable
 
 from . import names
@@ -190,10 +190,22 @@ class Spec:
     trailing_windows: tuple[int, ...] = ()
     file: str = field(default="spec.yml", compare=False)
     revenue: RevenueSource | None = None
+    # Where each key given in the spec file is (key path -> line, column of its value), for
+    # messages about a key that is valid but cannot be used (a dialect that cannot express it).
+    positions: dict[str, tuple[int, int]] = field(default_factory=dict, compare=False)
+    # Located notes about keys that are valid but have no effect; the caller shows them.
+    warnings: tuple[Problem, ...] = field(default=(), compare=False)
+
+    def data(self) -> dict[str, Any]:
+        """The spec's fields as plain data, without where its keys are or its warnings."""
+        data = asdict(self)
+        data.pop("positions")
+        data.pop("warnings")
+        return data
 
     def digest(self) -> str:
         """A short stable hash of the spec's meaning (not its formatting)."""
-        data = asdict(self)
+        data = self.data()
         data.pop("file")
         if data.get("revenue") is None:
             data.pop("revenue", None)  # specs without revenue keep their earlier hash
@@ -218,7 +230,22 @@ def parse_spec(text: str, filename: str = "spec.yml") -> Spec:
     _cross_checks(checker, root, values)
     if checker.problems:
         raise SpecError(checker.problems)
-    return _build(values, filename)
+    spec = _build(values, filename)
+    return replace(spec, positions=dict(checker.positions),
+                   warnings=tuple(_warnings(checker, spec)))
+
+
+def _warnings(checker: _Checker, spec: Spec) -> list[Problem]:
+    """Keys that are valid but change nothing in this spec."""
+    found = []
+    default = KEYS_BY_PATH["week_start"].default
+    if spec.grain != "week" and "week_start" in checker.positions and spec.week_start != default:
+        line, col = checker.positions["week_start"]
+        found.append(Problem(checker.filename, line, col, "week_start",
+                             f"warning: has no effect with grain: {spec.grain}; it sets the "
+                             "first day of a week for grain: week only. Remove it or set "
+                             "grain: week"))
+    return found
 
 
 def _cross_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
@@ -328,6 +355,7 @@ class _Checker:
         self.filename = filename
         self.problems: list[Problem] = []
         self.values: dict[str, Any] = {}
+        self.positions: dict[str, tuple[int, int]] = {}
         self.dialect = "duckdb"
 
     def report(self, node_pos: tuple[int, int], key: str, message: str) -> None:
@@ -365,12 +393,15 @@ class _Checker:
             if key.kind == "mapping" and (key.required or not _requires_keys(key.path)):
                 self.section(Node({}, parent.line, parent.col), key.path)
             return
+        self.positions[key.path] = (child.line, child.col)
         if key.kind == "mapping":
             self.values[key.path] = True  # the section is present
             self.section(child, key.path)
             return
         try:
             self.values[key.path] = _CHECKS[key.kind](self, key, child.value)
+        except _Reported:
+            self.values[key.path] = key.default
         except ValueError as err:
             self.values[key.path] = key.default
             self.report((child.line, child.col), key.path, str(err))
@@ -470,19 +501,31 @@ def _check_boolean(_c: _Checker, _key: Key, value: Any) -> bool:
     return value
 
 
-def _check_windows(_c: _Checker, _key: Key, value: Any) -> tuple[int, ...]:
+class _Reported(Exception):
+    """A check already reported its problems (each at its own place)."""
+
+
+def _check_windows(c: _Checker, key: Key, value: Any) -> tuple[int, ...]:
+    """Every bad or repeated length is reported at its own place in the list."""
     if not isinstance(value, list):
         raise ValueError(f"expected a list of window lengths in days, e.g. [7, 28]; got {value!r}")
-    days = [item.value for item in value]
-    for day in days:
+    seen: set[int] = set()
+    before = len(c.problems)
+    for item in value:
+        day = item.value
         if not isinstance(day, int) or isinstance(day, bool):
-            raise ValueError(f"window length {day!r} is not a whole number of days")
-        if not 1 <= day <= MAX_WINDOW_DAYS:
-            raise ValueError(f"window length {day} must be from 1 to {MAX_WINDOW_DAYS} days")
-    repeated = sorted({day for day in days if days.count(day) > 1})
-    if repeated:
-        raise ValueError(f"window length {repeated[0]} appears more than once")
-    return tuple(days)
+            message = f"window length {day!r} is not a whole number of days"
+        elif not 1 <= day <= MAX_WINDOW_DAYS:
+            message = f"window length {day} must be from 1 to {MAX_WINDOW_DAYS} days"
+        elif day in seen:
+            message = f"window length {day} appears more than once; give each length once"
+        else:
+            seen.add(day)
+            continue
+        c.report((item.line, item.col), key.path, message)
+    if len(c.problems) > before:
+        raise _Reported
+    return tuple(item.value for item in value)
 
 
 _CHECKS: dict[str, Callable[[_Checker, Key, Any], Any]] = {

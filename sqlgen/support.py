@@ -7,7 +7,7 @@ supports, executed on a real engine in the tests when ``Target.engine`` is set.
 from __future__ import annotations
 
 from .dialects import Target
-from .errors import UnsupportedError
+from .errors import Gap, UnsupportedError
 from .spec import Spec
 from .views import VIEWS
 
@@ -65,9 +65,32 @@ def _revenue_features(spec: Spec) -> list[tuple[str, str]]:
     return used
 
 
-def require_support(spec: Spec, target: Target, views: list[str]) -> None:
-    """Raise UnsupportedError naming the dialect and spec key of the first gap."""
+def gaps(spec: Spec, target: Target, views: list[str], file: str | None = None) -> list[Gap]:
+    """Every feature of the spec the target cannot express, each with its spec key and the
+    ``file:line:col`` of that key (``file`` defaults to the spec's own file name)."""
+    found = []
     for feature, key in features_used(spec) + [(v, f"view {v}") for v in views]:
         status, reason = support(target, feature)
         if status == "unsupported":
-            raise UnsupportedError(target.name, key, reason)
+            found.append(Gap(target.name, key, reason, _where(spec, key, file)))
+    return found
+
+
+def _where(spec: Spec, key: str, file: str | None) -> str:
+    """Where a key is in the spec file; a view's place is the key that enables it."""
+    if key.startswith("view "):
+        key = VIEW_KEYS.get(key[len("view "):], "")
+    line, col = spec.positions.get(key) or spec.positions.get(key.partition(".")[0]) or (1, 1)
+    return f"{file or spec.file}:{line}:{col}"
+
+
+# The key that turns each optional view on; the other views come with their section.
+VIEW_KEYS = {"cohort_retention": "cohorts", "revenue_cohorts": "cohorts",
+             "engagement_depth": "engagement", "trailing_activity": "trailing_windows"}
+
+
+def require_support(spec: Spec, target: Target, views: list[str]) -> None:
+    """Raise UnsupportedError naming the dialect, spec key and place of every gap."""
+    found = gaps(spec, target, views)
+    if found:
+        raise UnsupportedError.of(found)
