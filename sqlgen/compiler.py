@@ -23,7 +23,7 @@ from .dialects import TARGETS, Target, rewrites
 from .errors import SqlgenError, UnsupportedError
 from .render import bind, parse, render, templates_dir
 from .spec import Spec
-from .support import require_support
+from .support import require_support, support
 from .views import View, planned_views
 
 CAUTION = ("Management metrics, not audited financial statements: check definitions before "
@@ -341,18 +341,20 @@ def _create_all(spec: Spec, target: Target, compiled: list[CompiledView]) -> str
     where the target's DDL is transactional, so a run that fails changes nothing."""
     lines = header(spec, target, None)
     lines.append("-- Every view, each after the views it reads.")
-    lines.append("-- " + (f"Not one transaction: {target.no_ddl_transaction}; a failed run can "
-                          "leave some views created. Run it again after fixing the cause."
-                          if target.no_ddl_transaction else
-                          "One transaction: a run that fails leaves every object as it was."))
-    statements = [s for s in (_create_schema(spec, target),) if s]
+    if target.no_ddl_transaction:
+        lines.append(f"-- Not one transaction: {target.no_ddl_transaction}. A failed run can "
+                     "leave some views created; run it again after fixing the cause.")
+    else:
+        lines.append("-- One transaction: a run that fails leaves every object as it was"
+                     + (f"; {target.transaction_note}." if target.transaction_note else "."))
+    statements = [s for s in (create_schema(spec, target),) if s]
     if target.view_ddl == "replace" and target.ddl_note:
         for c in reversed(compiled):
             drop = exp.Drop(tables=[view_table(spec, c.view.name)], kind="VIEW", exists=True,
                             cascade=True)
             statements.append(_generate(drop, target, "view DDL"))
     run = _through_exec if target.exec_batch else (lambda statement: statement + ";")
-    body = [s + ";" for s in statements]  # the schema (T-SQL: its own EXEC) and drops
+    body = [s + ";" for s in statements]  # the schema and the drops
     body += [f"-- {c.view.name}\n" + "\n\n".join(run(s) for s in c.statements)
              for c in compiled]
     if not target.no_ddl_transaction:
@@ -363,10 +365,11 @@ def _create_all(spec: Spec, target: Target, compiled: list[CompiledView]) -> str
     return "\n\n".join(["\n".join(lines), *body]) + "\n"
 
 
-def _create_schema(spec: Spec, target: Target) -> str:
+def create_schema(spec: Spec, target: Target) -> str:
     """CREATE SCHEMA IF NOT EXISTS for output.schema in the target's spelling (ClickHouse:
-    DATABASE; T-SQL: an existence test, having no IF NOT EXISTS); "" without a schema."""
-    if not spec.output.schema:
+    DATABASE; T-SQL: an existence test, having no IF NOT EXISTS); "" without a schema or
+    on a target without schemas (SQLite)."""
+    if not spec.output.schema or support(target, "qualified names")[0] == "unsupported":
         return ""
     parts = [names.identifier(p) for p in spec.output.schema]
     if not target.schema_catalog:
@@ -377,7 +380,8 @@ def _create_schema(spec: Spec, target: Target) -> str:
 
 def _through_exec(statement: str) -> str:
     """T-SQL: CREATE VIEW must begin a batch, so create_all.sql (one batch, so that one
-    transaction holds it) runs each statement as ``EXEC (N'...')``."""
-    tsql = TARGETS["tsql"]
-    text = _generate(exp.Paren(this=exp.National(this=statement)), tsql, "view DDL")
-    return _generate(exp.Command(this="EXEC", expression=text), tsql, "view DDL") + ";"
+    transaction holds it) runs each statement as ``EXECUTE sp_executesql N'...'``."""
+    run = exp.ExecuteSql(this=exp.table_("sp_executesql"),
+                         expressions=[exp.National(this=statement)])
+    # Not pretty: the statement inside is already laid out, and stays as it is.
+    return run.sql(dialect="tsql", copy=False, unsupported_level=ErrorLevel.RAISE) + ";"

@@ -34,11 +34,13 @@ class Target:
     # Why create_all.sql cannot run as one transaction here; "" when its DDL is
     # transactional, so create_all.sql is wrapped in one and a failed run changes nothing.
     no_ddl_transaction: str = ""
+    transaction_note: str = ""  # what the client must do for the transaction to hold
     # Whether CREATE SCHEMA takes output.schema's catalog part; where not, the schema is
     # created in the database the script runs in (the one the views' catalog must name).
     schema_catalog: bool = True
     # T-SQL: CREATE VIEW must begin a batch, and an error does not end a transaction unless
-    # XACT_ABORT is on. create_all.sql then runs each statement through EXEC in one batch.
+    # XACT_ABORT is on. create_all.sql then runs each statement through sp_executesql
+    # in one batch.
     exec_batch: bool = False
 
     def dialect(self) -> Dialect:
@@ -229,8 +231,14 @@ _NO_TX_BIGQUERY = ("BigQuery multi-statement transactions cannot hold CREATE VIE
                    "SCHEMA: each DDL statement applies on its own")
 _NO_TX_SNOWFLAKE = ("each DDL statement commits the open transaction and runs in its own "
                     "(Snowflake autocommits DDL)")
-_NO_TX_TRINO = ("Trino's connectors do not run CREATE VIEW in a transaction: each statement "
-                "applies on its own")
+_NO_TX_TRINO = ("Trino runs DDL in a transaction only on some connectors; create_all.sql does "
+                "not rely on it, so each statement applies on its own")
+
+_SQLITE_BAIL = ("run it with `sqlite3 -bail` (or Python's executescript): without -bail the "
+                "sqlite3 shell goes on after a failed statement and COMMIT keeps the rest")
+
+_TSQL_BATCH = ("the file is one batch (no GO): each view runs through sp_executesql, and "
+               "XACT_ABORT ON rolls the whole transaction back on an error")
 
 _PG_NOTE = ("CREATE OR REPLACE VIEW cannot change an existing view's columns on this engine: "
             "after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, "
@@ -258,7 +266,8 @@ TARGETS: dict[str, Target] = {
         Target("sqlite", "sqlite", "sqlite", "drop_create",
                (_zone_rewrite(_zones_utc_only), sqlite_date_parts),
                unsupported={"activity.timezone": _NO_IANA_SQLITE,
-                            "qualified names": _NO_QUALIFIED_SQLITE}),
+                            "qualified names": _NO_QUALIFIED_SQLITE},
+               transaction_note=_SQLITE_BAIL),
         Target("bigquery", "bigquery", None, "replace",
                (_zone_rewrite(_zones_bigquery), window_keys_nulls_default),
                no_ddl_transaction=_NO_TX_BIGQUERY),
@@ -271,7 +280,7 @@ TARGETS: dict[str, Target] = {
         Target("tsql", "tsql", None, "create_or_alter",
                (_zone_rewrite(_zones_tsql), window_keys_nulls_default),
                unsupported={"activity.timezone": _NO_IANA_TSQL}, schema_catalog=False,
-               exec_batch=True),
+               exec_batch=True, transaction_note=_TSQL_BATCH),
     )
 }
 

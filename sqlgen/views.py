@@ -21,6 +21,7 @@ class View:
     depends: tuple[str, ...] = ()
     personal_data: bool = False
     enabled: Callable[[Spec], bool] = lambda spec: True
+    source: str = "activity"  # the spec section whose table a view without depends reads
 
     @property
     def template(self) -> str:
@@ -100,7 +101,7 @@ VIEWS: tuple[View, ...] = (
                         "start (DATE)"),
          ("last_date", "newest local date counted: a charge's date, or a subscription's start "
                        "or end (DATE); periods run to the one holding it")),
-        enabled=lambda spec: spec.revenue is not None),
+        enabled=lambda spec: spec.revenue is not None, source="revenue"),
     View(
         "customer_revenue",
         "One row per customer and period in which the customer has revenue, had revenue the "
@@ -126,7 +127,7 @@ VIEWS: tuple[View, ...] = (
                            "period before the zero/negative rule; NULL when it has none"),
          ("counted_as_zero", "1 when period_amount is zero or negative and counts as no "
                              "revenue, else 0")),
-        personal_data=True, enabled=lambda spec: spec.revenue is not None),
+        personal_data=True, enabled=lambda spec: spec.revenue is not None, source="revenue"),
     View(
         "revenue_accounting",
         "One row per period from the first period with revenue data to the last, empty "
