@@ -257,7 +257,9 @@ TARGETS: dict[str, Target] = {
         Target("databricks", "databricks", "spark", "replace",
                (_zone_rewrite(_zones_spark), int_date_offsets, constant_unions_as_values),
                executed=_DATABRICKS_EXECUTED, no_ddl_transaction=_NO_TX_SPARK),
-        Target("clickhouse", "clickhouse", "clickhouse", "replace",
+        # drop_create: ClickHouse's CREATE OR REPLACE VIEW silently replaces a *table* of
+        # that name (its data gone), while DROP VIEW refuses one ("is not a View").
+        Target("clickhouse", "clickhouse", "clickhouse", "drop_create",
                (_zone_rewrite(_zones_clickhouse),), no_ddl_transaction=_NO_TX_CLICKHOUSE,
                schema_catalog=False),
         Target("mysql", "mysql", "mysql", "replace",
