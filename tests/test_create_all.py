@@ -17,7 +17,9 @@ import pytest
 
 from conftest import engine_target_pairs
 from harness import load_events, names_for, spec_text
-from sqlgen import parse_spec, render_files
+from sqlglot import exp
+
+from sqlgen import compile_spec, parse_spec, render_files
 from sqlgen.dialects import TARGETS
 from sqlgen.views import planned_views
 
@@ -107,13 +109,18 @@ def _view_names(target: str) -> list[str]:
     return [view.name for view in planned_views(_spec(target))]
 
 
-@pytest.mark.engines
-@pytest.mark.parametrize("engine_name,target", PAIRS)
-def test_first_run_creates_the_missing_schema_and_every_view(engines, engine_name, target):
+def _loaded(engines, engine_name: str, target: str):
+    """The engine, emptied and holding only the activity table; and the views' schema."""
     engine = engines(engine_name)
     engine.reset()
     load_events(engine, EVENTS, target=target)
-    schema = names_for(target)[1]
+    return engine, names_for(target)[1]
+
+
+@pytest.mark.engines
+@pytest.mark.parametrize("engine_name,target", PAIRS)
+def test_first_run_creates_the_missing_schema_and_every_view(engines, engine_name, target):
+    engine, schema = _loaded(engines, engine_name, target)
     assert schema is None or not _schema_exists(engine, schema)
     _run_script(engine, target, _script(target))
     _run_script(engine, target, _script(target))  # and again: nothing is in the way
@@ -128,10 +135,7 @@ def test_first_run_creates_the_missing_schema_and_every_view(engines, engine_nam
 @pytest.mark.parametrize("engine_name,target", PAIRS)
 def test_a_failing_fourth_view_leaves_the_documented_state(engines, engine_name, target):
     """A table where the fourth view goes: CREATE (OR REPLACE) VIEW fails on it."""
-    engine = engines(engine_name)
-    engine.reset()
-    load_events(engine, EVENTS, target=target)
-    schema = names_for(target)[1]
+    engine, schema = _loaded(engines, engine_name, target)
     views = _view_names(target)
     assert len(views) >= 5  # views after the failing one exist, and must not be created
     blocker = f"{schema}.{views[3]}" if schema else views[3]
@@ -162,3 +166,52 @@ def test_a_failing_run_creates_no_schema_where_ddl_is_transactional(engines, eng
     created = _schema_exists(engine, schema)
     assert created == bool(TARGETS[target].no_ddl_transaction)
     assert _objects(engine, schema) == set()
+
+
+def _schema_spec(target: str):
+    return parse_spec(spec_text(target, extra="engagement: true\n"), "create_all.yml")
+
+
+@pytest.mark.parametrize("target", TARGETS)
+def test_one_transaction_exactly_where_the_targets_table_says(target):
+    """BEGIN first and COMMIT last (in the target's spelling) on transactional DDL; neither
+    elsewhere. The schema is created before the first view."""
+    spec = _schema_spec(target)
+    text = render_files(spec, target)["create_all.sql"]
+    dialect = TARGETS[target].sqlglot_dialect
+    begin = exp.Transaction().sql(dialect) + ";"
+    commit = exp.Commit().sql(dialect) + ";"
+    body = [block for block in text.rstrip("\n").split("\n\n") if not _only_comments(block)]
+    lines = text.splitlines()
+    if TARGETS[target].no_ddl_transaction:
+        assert begin not in lines and commit not in lines
+        assert "-- Not one transaction: " in text
+    else:
+        first = 1 if TARGETS[target].exec_batch else 0
+        assert body[first] == begin and body[-1] == commit
+        assert lines.count(begin) == 1 and lines.count(commit) == 1
+    schema = [i for i, block in enumerate(body) if "SCHEMA" in block or "DATABASE" in block]
+    views = [i for i, block in enumerate(body) if "CREATE " in block and " VIEW " in block]
+    if target == "sqlite":
+        assert schema == []
+    else:
+        assert len(schema) == 1 and schema[0] < views[0]
+
+
+def test_tsql_runs_each_view_through_sp_executesql_in_one_batch():
+    """CREATE VIEW must begin a T-SQL batch: inside one transaction (one batch) each view
+    runs as EXECUTE sp_executesql N'...', exactly the statement of its own file."""
+    import sqlglot
+
+    spec = _schema_spec("tsql")
+    text = render_files(spec, "tsql")["create_all.sql"]
+    assert "\nGO\n" not in text
+    assert text.split("\n\n")[1:3] == ["SET XACT_ABORT ON;", "BEGIN TRANSACTION;"]
+    inner = [s.replace("''", "'") for s in
+             re.findall(r"^EXECUTE sp_executesql N'((?:[^']|'')*)';$", text, re.MULTILINE)]
+    expected = [s for view in compile_spec(spec, "tsql") for s in view.statements]
+    assert inner == expected and len(inner) == len(_view_names("tsql"))
+    for statement in inner:
+        assert sqlglot.parse_one(statement, read="tsql").sql("tsql") is not None
+    assert "IF NOT EXISTS (SELECT * FROM INFORMATION_SCHEMA.SCHEMATA WHERE SCHEMA_NAME = " \
+           "'growth') EXEC('CREATE SCHEMA [growth]');" in text
