@@ -518,7 +518,7 @@ def _check_windows(c: _Checker, key: Key, value: Any) -> tuple[int, ...]:
         elif not 1 <= day <= MAX_WINDOW_DAYS:
             message = f"window length {day} must be from 1 to {MAX_WINDOW_DAYS} days"
         elif day in seen:
-            message = f"window length {day} appears more than once; give each length once"
+            message = f"window length {day} appears more than once"
         else:
             seen.add(day)
             continue

@@ -81,3 +81,24 @@ def test_the_demo_folder_is_vouched_for_and_ignored(tmp_path):
                 if a.dest == "folder")
     ignored = (ROOT / ".gitignore").read_text().splitlines()
     assert f"/{demo.default}/" in ignored
+
+
+def test_all_with_no_dialect_left_is_a_spec_error(tmp_path):
+    """Every target of the choice is blocked: an error listing each gap, not an empty build."""
+    import pytest
+
+    from sqlgen.cli import Dialects, _buildable
+    from sqlgen.errors import EXIT_SPEC, UnsupportedError
+    from sqlgen.spec import parse_spec
+
+    spec = parse_spec(SPEC.replace("  timestamp: ts\n", "  timestamp: ts\n  timezone: UTC\n"),
+                      "z.yml")
+    assert _buildable(spec, "z.yml", Dialects(("duckdb", "sqlite"), every=True)) == ["duckdb"]
+    with pytest.raises(UnsupportedError) as caught:
+        _buildable(spec, "z.yml", Dialects(("sqlite", "tsql"), every=True))
+    assert caught.value.exit_code == EXIT_SPEC
+    assert caught.value.render().splitlines() == [
+        "z.yml:6:13: activity.timezone: dialect 'sqlite' cannot generate activity.timezone: "
+        + TARGETS["sqlite"].unsupported["activity.timezone"],
+        "z.yml:6:13: activity.timezone: dialect 'tsql' cannot generate activity.timezone: "
+        + TARGETS["tsql"].unsupported["activity.timezone"]]
