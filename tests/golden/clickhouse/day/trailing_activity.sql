@@ -3,7 +3,9 @@
 -- trailing_activity: One row per day, from the first to the last day with activity, and window length from `trailing_windows`: users active in the window of N days ending that day, accounted against the window of N days before it.
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "growth".trailing_activity AS
+DROP VIEW IF EXISTS "growth".trailing_activity;
+
+CREATE VIEW "growth".trailing_activity AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,

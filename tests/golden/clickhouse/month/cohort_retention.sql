@@ -3,7 +3,9 @@
 -- cohort_retention: One row per cohort (users by first active period) and age, from age 0 to the last period with data, zero rows included: a full triangle.
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "growth".cohort_retention AS
+DROP VIEW IF EXISTS "growth".cohort_retention;
+
+CREATE VIEW "growth".cohort_retention AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,

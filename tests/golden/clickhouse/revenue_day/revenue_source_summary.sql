@@ -3,7 +3,9 @@
 -- revenue_source_summary: One row counting the revenue table's rows: all, left out (NULL customer, date or amount), filtered out by `where`, invalid, counted; and the dates they cover.
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "finance".revenue_source_summary AS
+DROP VIEW IF EXISTS "finance".revenue_source_summary;
+
+CREATE VIEW "finance".revenue_source_summary AS
 WITH sqlgen_source AS (
   SELECT
     "account_id" AS sqlgen_customer,

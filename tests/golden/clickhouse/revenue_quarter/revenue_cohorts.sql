@@ -3,7 +3,9 @@
 -- revenue_cohorts: One row per cohort of customers (by first period with revenue) and age, from age 0 to the last period of revenue data, zero rows included.
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "finance".revenue_cohorts AS
+DROP VIEW IF EXISTS "finance".revenue_cohorts;
+
+CREATE VIEW "finance".revenue_cohorts AS
 WITH marked AS (
   SELECT
     period_key AS marked_key,

@@ -3,7 +3,9 @@
 -- revenue_accounting: One row per period from the first period with revenue data to the last, empty periods included: recurring revenue split into its components, with customer counts and ratios. Not revenue recognised under an accounting standard: reconcile with finance before reporting outside the company.
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "finance".revenue_accounting AS
+DROP VIEW IF EXISTS "finance".revenue_accounting;
+
+CREATE VIEW "finance".revenue_accounting AS
 WITH tallies AS (
   SELECT
     period_key AS tally_key,

@@ -4,7 +4,9 @@
 -- Holds one row per user: personal data. Grant access as you would to the underlying user table.
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "growth".user_activity AS
+DROP VIEW IF EXISTS "growth".user_activity;
+
+CREATE VIEW "growth".user_activity AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,

@@ -3,7 +3,9 @@
 -- activity_source_summary: One row counting the source rows: all, left out for a NULL user or timestamp, filtered out by `where`, not convertible to a local date, and counted as activity.
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "growth".activity_source_summary AS
+DROP VIEW IF EXISTS "growth".activity_source_summary;
+
+CREATE VIEW "growth".activity_source_summary AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,

@@ -3,7 +3,9 @@
 -- engagement_depth: One row per period and number of distinct active days a user can have in it (1 at day grain, 1 to 7 weekly, up to 31 monthly, 92 quarterly, 366 yearly), zero rows and empty periods included.
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "growth".engagement_depth AS
+DROP VIEW IF EXISTS "growth".engagement_depth;
+
+CREATE VIEW "growth".engagement_depth AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
