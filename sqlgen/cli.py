@@ -10,6 +10,7 @@ import argparse
 import difflib
 import os
 import sys
+from dataclasses import dataclass
 from pathlib import Path
 
 from . import __version__
@@ -20,19 +21,39 @@ from .errors import EXIT_OUTPUT, SpecError, SqlgenError, UnsupportedError
 from .output import (check_files, is_up_to_date, plan_folder, refuse, spec_owner, tidy,
                      write_folders)
 from .spec import Spec, load_spec
+from .support import gaps
+from .views import planned_views
 
 
-def _dialects(value: str) -> list[str]:
-    names = target_names() if value == "all" else [v.strip() for v in value.split(",") if v.strip()]
+@dataclass(frozen=True)
+class Dialects:
+    """The dialects asked for: ``every`` for ``all`` (build those that can express the spec)."""
+
+    names: tuple[str, ...]
+    every: bool = False
+
+
+def _dialects(value: str) -> Dialects:
+    if value.strip() == "all":
+        return Dialects(tuple(target_names()), every=True)
+    names = [v.strip() for v in value.split(",")]
+    if not any(names):
+        raise argparse.ArgumentTypeError("name at least one dialect, or all")
     for name in names:
+        if not name:
+            raise argparse.ArgumentTypeError(f"{value!r} has an empty name; separate dialects "
+                                             "with single commas, e.g. duckdb,postgres")
+        if name == "all":
+            raise argparse.ArgumentTypeError("all stands alone: give all, or a list of dialects")
         if name not in TARGETS:
             close = difflib.get_close_matches(name, target_names(), n=1)
             hint = f" Did you mean {close[0]!r}?" if close else ""
             raise argparse.ArgumentTypeError(
                 f"{name!r} is not one of {', '.join(target_names())}, all.{hint}")
-    if not names:
-        raise argparse.ArgumentTypeError("name at least one dialect")
-    return names
+    repeated = sorted({name for name in names if names.count(name) > 1})
+    if repeated:
+        raise argparse.ArgumentTypeError(f"{repeated[0]!r} is named more than once")
+    return Dialects(tuple(names))
 
 
 def _jobs(value: str) -> int:
@@ -99,19 +120,47 @@ def _parser() -> argparse.ArgumentParser:
     return parser
 
 
-def _folders(spec: Spec, spec_path: str, dialects: list[str], out: str | None) -> list[tuple[str, Path]]:
+def _folders(spec: Spec, spec_path: str, chosen: Dialects, dialects: list[str],
+             out: str | None) -> list[tuple[str, Path]]:
+    """One folder, or one subfolder per dialect when several were asked for (even if only
+    one of them can be built, so that each dialect's files stay in the same place)."""
     base = Path(out) if out else Path(spec_path).parent / spec.output.folder
-    if len(dialects) == 1:
+    if len(chosen.names) == 1:
         return [(dialects[0], base)]
     return [(name, base / name) for name in dialects]
 
 
+def _buildable(spec: Spec, chosen: Dialects) -> list[str]:
+    """The dialects to build. Any that cannot express the spec: with ``all``, skipped and
+    listed on stderr with every reason (an error when none is left); when named, an error
+    listing every gap of every named dialect."""
+    views = [view.name for view in planned_views(spec)]
+    found = {name: gaps(spec, TARGETS[name], views) for name in chosen.names}
+    blocked = [gap for name in chosen.names for gap in found[name]]
+    ok = [name for name in chosen.names if not found[name]]
+    if blocked and (not chosen.every or not ok):
+        raise UnsupportedError.of(blocked)
+    if blocked:
+        skipped = [name for name in chosen.names if found[name]]
+        print(f"sqlgen: built {len(ok)} of {len(chosen.names)} dialects; skipped "
+              f"{', '.join(skipped)}, which cannot express this spec:\n"
+              + "\n".join(str(gap) for gap in blocked), file=sys.stderr)
+    return ok
+
+
+def _warn(spec: Spec) -> None:
+    for warning in spec.warnings:
+        print(warning, file=sys.stderr)
+
+
 def _build(args: argparse.Namespace) -> int:
     spec = load_spec(args.spec)
-    dialects = args.dialect or [spec.output.dialect]
+    _warn(spec)
+    chosen = args.dialect or Dialects((spec.output.dialect,))
+    dialects = _buildable(spec, chosen)
     names = file_names(spec)
     plans = [(folder, target, build_inputs(spec, target), spec_owner(args.spec, folder))
-             for target, folder in _folders(spec, args.spec, dialects, args.out)]
+             for target, folder in _folders(spec, args.spec, chosen, dialects, args.out)]
     # A folder whose manifest matches these inputs and whose files match their recorded
     # hashes holds what a build would write: no need to compile its target.
     fresh = [not args.full and is_up_to_date(folder, owner, inputs, names)
@@ -182,7 +231,9 @@ def _check(spec_path: str, names: list[str],
 
 def _validate(args: argparse.Namespace) -> int:
     spec = load_spec(args.spec)
-    render_files(spec)  # a combination the target cannot express is a spec problem too
+    _warn(spec)
+    _buildable(spec, Dialects((spec.output.dialect,)))
+    render_files(spec)  # what sqlglot cannot spell for the target is a spec problem too
     print(f"{printable(args.spec, False)}: ok ({spec.grain} grain, target "
           f"{spec.output.dialect})")
     return 0
@@ -202,11 +253,8 @@ def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     try:
         return COMMANDS[args.command](args)
-    except SpecError as err:
+    except (SpecError, UnsupportedError) as err:
         print(err.render(), file=sys.stderr)
-        return err.exit_code
-    except UnsupportedError as err:  # located at the spec key once compiled from a spec
-        print(str(err) if err.where else f"Error: {err}", file=sys.stderr)
         return err.exit_code
     except SqlgenError as err:
         print(f"Error: {err}", file=sys.stderr)

@@ -24,8 +24,8 @@ from .comments import comment_text
 from .errors import SqlgenError, UnsupportedError
 from .render import bind, parse, render, templates_dir
 from .spec import Spec
-from .support import require_support
-from .views import VIEWS_BY_NAME, View, planned_views
+from .support import require_support, spec_key, support
+from .views import View, planned_views
 
 CAUTION = ("Management metrics, not audited financial statements: check definitions before "
            "quoting a figure.")
@@ -242,14 +242,7 @@ def compile_spec(spec: Spec, target_name: str | None = None,
     try:
         return _compile(spec, target, queries)
     except UnsupportedError as err:
-        key = _spec_key(err.key)
-        raise err.located(spec.where(key), key) from None
-
-
-def _spec_key(key: str) -> str:
-    """The spec key behind a refused feature: ``view cohort_retention`` -> ``cohorts``."""
-    view = VIEWS_BY_NAME.get(key.removeprefix("view ")) if key.startswith("view ") else None
-    return view.spec_key if view is not None else key
+        raise err.located(lambda key: (spec.where(spec_key(key)), spec_key(key))) from None
 
 
 def _compile(spec: Spec, target: Target, queries: Queries | None) -> list[CompiledView]:
@@ -402,15 +395,51 @@ def build_inputs(spec: Spec, target_name: str) -> list[str]:
 
 
 def _create_all(spec: Spec, target: Target, compiled: list[CompiledView]) -> str:
+    """Every view in dependency order, after the schema they go in; in one transaction
+    where the target's DDL is transactional, so a run that fails changes nothing."""
     lines = header(spec, target, None)
     lines.append("-- Every view, each after the views it reads.")
-    parts = ["\n".join(lines)]
+    if target.no_ddl_transaction:
+        lines.append(f"-- Not one transaction: {target.no_ddl_transaction}. A failed run can "
+                     "leave some views created; run it again after fixing the cause.")
+    else:
+        lines.append("-- One transaction: a run that fails leaves every object as it was"
+                     + (f"; {target.transaction_note}." if target.transaction_note else "."))
+    statements = [s for s in (create_schema(spec, target),) if s]
     if target.view_ddl == "replace" and target.ddl_note:
         for c in reversed(compiled):
             drop = exp.Drop(tables=[view_table(spec, c.view.name)], kind="VIEW", exists=True,
                             cascade=True)
-            parts.append(_generate(drop, target, "view DDL") + ";")
-    for c in compiled:
-        parts.append(f"-- {comment_text(c.view.name)}\n"
-                     + "\n\n".join(s + ";" for s in c.statements))
-    return "\n\n".join(parts) + "\n"
+            statements.append(_generate(drop, target, "view DDL"))
+    run = _through_exec if target.exec_batch else (lambda statement: statement + ";")
+    body = [s + ";" for s in statements]  # the schema and the drops
+    body += [f"-- {comment_text(c.view.name)}\n" + "\n\n".join(run(s) for s in c.statements)
+             for c in compiled]
+    if not target.no_ddl_transaction:
+        body = [_generate(exp.Transaction(), target, "transaction") + ";", *body,
+                _generate(exp.Commit(), target, "transaction") + ";"]
+    if target.exec_batch:  # an error rolls the whole transaction back, not one statement
+        body.insert(0, "SET XACT_ABORT ON;")
+    return "\n\n".join(["\n".join(lines), *body]) + "\n"
+
+
+def create_schema(spec: Spec, target: Target) -> str:
+    """CREATE SCHEMA IF NOT EXISTS for output.schema in the target's spelling (ClickHouse:
+    DATABASE; T-SQL: an existence test, having no IF NOT EXISTS); "" without a schema or
+    on a target without schemas (SQLite)."""
+    if not spec.output.schema or support(target, "qualified names")[0] == "unsupported":
+        return ""
+    parts = [names.identifier(p) for p in spec.output.schema]
+    if not target.schema_catalog:
+        parts = parts[-1:]
+    schema = exp.Table(this=parts[-1], db=parts[0] if len(parts) == 2 else None)
+    return _generate(exp.Create(this=schema, kind="SCHEMA", exists=True), target, "output.schema")
+
+
+def _through_exec(statement: str) -> str:
+    """T-SQL: CREATE VIEW must begin a batch, so create_all.sql (one batch, so that one
+    transaction holds it) runs each statement as ``EXECUTE sp_executesql N'...'``."""
+    run = exp.ExecuteSql(this=exp.table_("sp_executesql"),
+                         expressions=[exp.National(this=statement)])
+    # Not pretty: the statement inside is already laid out, and stays as it is.
+    return run.sql(dialect="tsql", copy=False, unsupported_level=ErrorLevel.RAISE) + ";"

@@ -12,9 +12,9 @@ from pathlib import Path
 
 import duckdb
 
-from .compiler import render_files
+from .compiler import build_inputs, render_files
 from .errors import OutputError
-from .output import write_files
+from .output import spec_owner, write_files
 from .spec import parse_spec
 
 SEED = "quillfinch-1"
@@ -145,9 +145,11 @@ def run_demo(folder: Path, grain: str = "month") -> str:
     spec_path = _write_spec(folder, spec_text)
     spec = parse_spec(spec_text, str(spec_path))
     files = render_files(spec)
-    write_files(folder / spec.output.folder, files)
-    con.execute("CREATE SCHEMA IF NOT EXISTS growth")
-    con.execute(files["create_all.sql"])
+    # With the manifest a build writes, so `sqlgen build --check` on the demo spec vouches
+    # for the files without compiling.
+    out = folder / spec.output.folder
+    write_files(out, files, build_inputs(spec, spec.output.dialect), spec_owner(spec_path, out))
+    con.execute(files["create_all.sql"])  # creates the schema too
     cursor = con.execute("SELECT * FROM growth.growth_accounting ORDER BY period_start")
     names = [d[0] for d in cursor.description]
     rows = cursor.fetchall()

@@ -31,6 +31,17 @@ class Target:
     ddl_note: str = ""
     unsupported: dict[str, str] = field(default_factory=dict)  # feature -> reason
     executed: tuple[str, ...] | None = None  # features its engine runs in the tests; None: all
+    # Why create_all.sql cannot run as one transaction here; "" when its DDL is
+    # transactional, so create_all.sql is wrapped in one and a failed run changes nothing.
+    no_ddl_transaction: str = ""
+    transaction_note: str = ""  # what the client must do for the transaction to hold
+    # Whether CREATE SCHEMA takes output.schema's catalog part; where not, the schema is
+    # created in the database the script runs in (the one the views' catalog must name).
+    schema_catalog: bool = True
+    # T-SQL: CREATE VIEW must begin a batch, and an error does not end a transaction unless
+    # XACT_ABORT is on. create_all.sql then runs each statement through sp_executesql
+    # in one batch.
+    exec_batch: bool = False
 
     def dialect(self) -> Dialect:
         return Dialect.get_or_raise(self.sqlglot_dialect)
@@ -211,6 +222,24 @@ _NO_IANA_TSQL = ("T-SQL's AT TIME ZONE takes Windows zone names, not IANA names;
                  "time or a datetimeoffset already in the reporting zone")
 
 
+_NO_TX_MYSQL = ("every CREATE VIEW, DROP VIEW and CREATE DATABASE commits the open transaction "
+               "implicitly (MySQL and MariaDB have no transactional DDL)")
+_NO_TX_CLICKHOUSE = "ClickHouse has no transactions for DDL: each statement applies on its own"
+_NO_TX_SPARK = ("Spark SQL and Databricks SQL have no multi-statement transactions for CREATE "
+                "VIEW: each statement applies on its own")
+_NO_TX_BIGQUERY = ("BigQuery multi-statement transactions cannot hold CREATE VIEW or CREATE "
+                   "SCHEMA: each DDL statement applies on its own")
+_NO_TX_SNOWFLAKE = ("each DDL statement commits the open transaction and runs in its own "
+                    "(Snowflake autocommits DDL)")
+_NO_TX_TRINO = ("Trino runs DDL in a transaction only on some connectors; create_all.sql does "
+                "not rely on it, so each statement applies on its own")
+
+_SQLITE_BAIL = ("run it with `sqlite3 -bail` (or Python's executescript): without -bail the "
+                "sqlite3 shell goes on after a failed statement and COMMIT keeps the rest")
+
+_TSQL_BATCH = ("the file is one batch (no GO): each view runs through sp_executesql, and "
+               "XACT_ABORT ON rolls the whole transaction back on an error")
+
 _PG_NOTE = ("CREATE OR REPLACE VIEW cannot change an existing view's columns on this engine: "
             "after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, "
             "which does so).")
@@ -221,29 +250,39 @@ TARGETS: dict[str, Target] = {
         Target("duckdb", "duckdb", "duckdb", "replace",
                (_zone_rewrite(_zones_at_time_zone),)),
         Target("postgres", "postgres", "postgres", "replace",
-               (_zone_rewrite(_zones_at_time_zone),), ddl_note=_PG_NOTE),
+               (_zone_rewrite(_zones_at_time_zone),), ddl_note=_PG_NOTE, schema_catalog=False),
         Target("spark", "spark", "spark", "replace",
-               (_zone_rewrite(_zones_spark), int_date_offsets, constant_unions_as_values)),
+               (_zone_rewrite(_zones_spark), int_date_offsets, constant_unions_as_values),
+               no_ddl_transaction=_NO_TX_SPARK),
         Target("databricks", "databricks", "spark", "replace",
                (_zone_rewrite(_zones_spark), int_date_offsets, constant_unions_as_values),
-               executed=_DATABRICKS_EXECUTED),
-        Target("clickhouse", "clickhouse", "clickhouse", "replace",
-               (_zone_rewrite(_zones_clickhouse),)),
+               executed=_DATABRICKS_EXECUTED, no_ddl_transaction=_NO_TX_SPARK),
+        # drop_create: ClickHouse's CREATE OR REPLACE VIEW silently replaces a *table* of
+        # that name (its data gone), while DROP VIEW refuses one ("is not a View").
+        Target("clickhouse", "clickhouse", "clickhouse", "drop_create",
+               (_zone_rewrite(_zones_clickhouse),), no_ddl_transaction=_NO_TX_CLICKHOUSE,
+               schema_catalog=False),
         Target("mysql", "mysql", "mysql", "replace",
-               (_zone_rewrite(_zones_mysql), window_keys_nulls_default)),
+               (_zone_rewrite(_zones_mysql), window_keys_nulls_default),
+               no_ddl_transaction=_NO_TX_MYSQL, schema_catalog=False),
         Target("sqlite", "sqlite", "sqlite", "drop_create",
                (_zone_rewrite(_zones_utc_only), sqlite_date_parts),
                unsupported={"activity.timezone": _NO_IANA_SQLITE,
-                            "qualified names": _NO_QUALIFIED_SQLITE}),
+                            "qualified names": _NO_QUALIFIED_SQLITE},
+               transaction_note=_SQLITE_BAIL),
         Target("bigquery", "bigquery", None, "replace",
-               (_zone_rewrite(_zones_bigquery), window_keys_nulls_default)),
-        Target("snowflake", "snowflake", None, "replace", (_zone_rewrite(_zones_snowflake),)),
+               (_zone_rewrite(_zones_bigquery), window_keys_nulls_default),
+               no_ddl_transaction=_NO_TX_BIGQUERY),
+        Target("snowflake", "snowflake", None, "replace", (_zone_rewrite(_zones_snowflake),),
+               no_ddl_transaction=_NO_TX_SNOWFLAKE),
         Target("redshift", "redshift", None, "replace", (_zone_rewrite(_zones_snowflake),),
-               ddl_note=_PG_NOTE),
-        Target("trino", "trino", None, "replace", (_zone_rewrite(_zones_trino),)),
+               ddl_note=_PG_NOTE, schema_catalog=False),
+        Target("trino", "trino", None, "replace", (_zone_rewrite(_zones_trino),),
+               no_ddl_transaction=_NO_TX_TRINO),
         Target("tsql", "tsql", None, "create_or_alter",
                (_zone_rewrite(_zones_tsql), window_keys_nulls_default),
-               unsupported={"activity.timezone": _NO_IANA_TSQL}),
+               unsupported={"activity.timezone": _NO_IANA_TSQL}, schema_catalog=False,
+               exec_batch=True, transaction_note=_TSQL_BATCH),
     )
 }
 

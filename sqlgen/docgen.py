@@ -35,7 +35,7 @@ def spec_reference() -> str:
 def views_reference() -> str:
     parts = [NOTE + "# Views\n"]
     for view in VIEWS:
-        reads = ", ".join(f"`{d}`" for d in view.depends) or "the activity table"
+        reads = ", ".join(f"`{d}`" for d in view.depends) or f"the {view.reads} table"
         parts.append(f"## `{view.name}`\n\n{view.summary} Reads {reads}."
                      + (" **Holds per-user (personal) data.**" if view.personal_data else "")
                      + "\n")
@@ -62,7 +62,38 @@ def support_matrix() -> str:
             if reason:
                 notes.append(f"- **{target.name}**, {feature}: {reason}")
         lines.append(f"| {target.name} | " + " | ".join(cells) + " |")
-    return "\n".join(lines) + "\n\n" + ("\n".join(notes) + "\n" if notes else "")
+    return ("\n".join(lines) + "\n\n" + ("\n".join(notes) + "\n" if notes else "")
+            + "\n" + create_all_matrix())
+
+
+_SAMPLE = "version: 1\nactivity: {table: t, user: u, timestamp: ts}\noutput: {schema: growth}\n"
+
+
+def create_all_matrix() -> str:
+    """How each target's create_all.sql creates `output.schema`, and whether it runs as one
+    transaction (read from TARGETS, with the statement the compiler writes)."""
+    from .compiler import create_schema
+    from .spec import parse_spec
+
+    spec = parse_spec(_SAMPLE, "sample.yml")
+    lines = ["## create_all.sql\n",
+             "`create_all.sql` first creates `output.schema` when it is missing (here "
+             "`growth`), then every view after the views it reads. Where the target's DDL is "
+             "transactional the whole file is one transaction, so a run that fails (a view "
+             "that cannot be created, say) leaves the warehouse as it was; elsewhere a failed "
+             "run can leave some views created, and running the file again after fixing the "
+             "cause completes it.\n",
+             "| dialect | creates the schema with | one transaction |", "| --- | --- | --- |"]
+    notes = []
+    for target in TARGETS.values():
+        statement = create_schema(spec, target)
+        made = f"`` {statement} ``" if statement else "— (no schemas)"
+        lines.append(f"| {target.name} | {made} | "
+                     f"{'no' if target.no_ddl_transaction else 'yes'} |")
+        note = target.no_ddl_transaction or target.transaction_note
+        if note:
+            notes.append(f"- **{target.name}**: {note}.")
+    return "\n".join(lines) + "\n\n" + "\n".join(notes) + "\n"
 
 
 def documents() -> dict[str, str]:

@@ -11,7 +11,8 @@ Exit codes of the ``sqlgen`` command (documented in the README):
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
+from typing import Callable
 
 from .comments import cut, printable
 
@@ -60,26 +61,51 @@ class SpecError(SqlgenError):
         return "\n".join(lines)
 
 
-class UnsupportedError(SqlgenError):
-    """A spec option that a target dialect cannot express correctly.
+@dataclass(frozen=True)
+class Gap:
+    """One spec option a target dialect cannot express; ``where`` is ``file:line:col`` of
+    the spec key that asks for it, or "" when no key does (a construct sqlglot refused)."""
 
-    ``where`` is the ``file:line:col`` of the spec key that asks for it, once known
-    (``compiler.compile_spec`` adds it); the message then starts with it.
+    dialect: str
+    key: str
+    reason: str
+    where: str = ""
+    spec_key: str = ""  # the spec key that asks for it (``cohorts`` for a view), when known
+
+    def __str__(self) -> str:
+        text = f"dialect {self.dialect!r} cannot generate {self.key}: {self.reason}"
+        return f"{self.where}: {self.spec_key or self.key}: {text}" if self.where else text
+
+
+class UnsupportedError(SqlgenError):
+    """Spec options that target dialects cannot express correctly: every gap, one a line.
+
+    ``dialect``, ``key`` and ``reason`` are the first gap's.
     """
 
     def __init__(self, dialect: str, key: str, reason: str, where: str = "",
-                 spec_key: str = ""):
-        self.dialect, self.key, self.reason, self.where = dialect, key, reason, where
-        if not where:
-            super().__init__(f"dialect {dialect!r} cannot generate {key}: {reason}")
-            return
-        super().__init__(f"{where}: {spec_key}: dialect {dialect!r} cannot generate {key}: "
-                         f"{reason}")
+                 more: tuple[Gap, ...] = ()):
+        self.gaps = (Gap(dialect, key, reason, where), *more)
+        self.dialect, self.key, self.reason = dialect, key, reason
+        super().__init__("\n".join(str(gap) for gap in self.gaps))
 
-    def located(self, where: str, spec_key: str) -> UnsupportedError:
-        """The same error, its message starting with ``where`` (``file:line:col``) and the
-        spec key that asks for the feature (``cohorts`` for ``view cohort_retention``)."""
-        return UnsupportedError(self.dialect, self.key, self.reason, where, spec_key)
+    @classmethod
+    def of(cls, gaps: list[Gap]) -> UnsupportedError:
+        """One error listing every gap (at least one)."""
+        first, *rest = gaps
+        return cls(first.dialect, first.key, first.reason, first.where, tuple(rest))
+
+    def located(self, place: Callable[[str], tuple[str, str]]) -> UnsupportedError:
+        """The same gaps, each without a place given one: ``place(key)`` returns the
+        ``file:line:col`` and spec key of a refused feature."""
+        gaps = [gap if gap.where else replace(gap, where=place(gap.key)[0],
+                                              spec_key=place(gap.key)[1])
+                for gap in self.gaps]
+        return UnsupportedError.of(gaps)
+
+    def render(self) -> str:
+        """The message for a person: located lines as they are, others as an Error."""
+        return "\n".join(str(gap) if gap.where else f"Error: {gap}" for gap in self.gaps)
 
 
 class OutputError(SqlgenError):

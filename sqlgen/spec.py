@@ -199,6 +199,8 @@ class Spec:
     positions: dict[str, tuple[int, int]] = field(default_factory=dict, compare=False,
                                                   repr=False)
     path: str = field(default="", compare=False, repr=False)
+    # Located notes about keys that are valid but have no effect; the caller shows them.
+    warnings: tuple[Problem, ...] = field(default=(), compare=False, repr=False)
 
     def where(self, key: str) -> str:
         """``file:line:col`` of a spec key (or the nearest section written), for messages."""
@@ -240,7 +242,21 @@ def parse_spec(text: str, filename: str = "spec.yml") -> Spec:
     if checker.problems:
         raise SpecError(checker.problems)
     positions = {"": (root.line, root.col), **checker.positions}
-    return replace(_build(values, filename), positions=positions, path=filename)
+    spec = replace(_build(values, filename), positions=positions, path=filename)
+    return replace(spec, warnings=tuple(_warnings(checker, spec)))
+
+
+def _warnings(checker: _Checker, spec: Spec) -> list[Problem]:
+    """Keys that are valid but change nothing in this spec."""
+    found = []
+    default = KEYS_BY_PATH["week_start"].default
+    if spec.grain != "week" and "week_start" in checker.positions and spec.week_start != default:
+        line, col = checker.positions["week_start"]
+        found.append(Problem(checker.filename, line, col, "week_start",
+                             f"warning: has no effect with grain: {spec.grain}; it sets the "
+                             "first day of a week for grain: week only. Remove it or set "
+                             "grain: week"))
+    return found
 
 
 def _cross_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
@@ -393,12 +409,15 @@ class _Checker:
             if key.kind == "mapping" and (key.required or not _requires_keys(key.path)):
                 self.section(Node({}, parent.line, parent.col), key.path)
             return
+        self.positions[key.path] = (child.line, child.col)
         if key.kind == "mapping":
             self.values[key.path] = True  # the section is present
             self.section(child, key.path)
             return
         try:
             self.values[key.path] = _CHECKS[key.kind](self, key, child.value)
+        except _Reported:
+            self.values[key.path] = key.default
         except ValueError as err:
             self.values[key.path] = key.default
             self.report((child.line, child.col), key.path, str(err))
@@ -528,20 +547,31 @@ def _check_boolean(_c: _Checker, _key: Key, value: Any) -> bool:
     return value
 
 
-def _check_windows(_c: _Checker, _key: Key, value: Any) -> tuple[int, ...]:
+class _Reported(Exception):
+    """A check already reported its problems (each at its own place)."""
+
+
+def _check_windows(c: _Checker, key: Key, value: Any) -> tuple[int, ...]:
+    """Every bad or repeated length is reported at its own place in the list."""
     if not isinstance(value, list):
-        raise ValueError("expected a list of window lengths in days, e.g. [7, 28]; got "
-                         f"{_describe(value)}")
-    days = [item.value for item in value]
-    for day in days:
+        raise ValueError(f"expected a list of window lengths in days, e.g. [7, 28]; got {_describe(value)}")
+    seen: set[int] = set()
+    before = len(c.problems)
+    for item in value:
+        day = item.value
         if not isinstance(day, int) or isinstance(day, bool):
-            raise ValueError(f"window length {_describe(day)} is not a whole number of days")
-        if not 1 <= day <= MAX_WINDOW_DAYS:
-            raise ValueError(f"window length {day} must be from 1 to {MAX_WINDOW_DAYS} days")
-    repeated = sorted({day for day in days if days.count(day) > 1})
-    if repeated:
-        raise ValueError(f"window length {repeated[0]} appears more than once")
-    return tuple(days)
+            message = f"window length {_describe(day)} is not a whole number of days"
+        elif not 1 <= day <= MAX_WINDOW_DAYS:
+            message = f"window length {day} must be from 1 to {MAX_WINDOW_DAYS} days"
+        elif day in seen:
+            message = f"window length {day} appears more than once"
+        else:
+            seen.add(day)
+            continue
+        c.report((item.line, item.col), key.path, message)
+    if len(c.problems) > before:
+        raise _Reported
+    return tuple(item.value for item in value)
 
 
 _CHECKS: dict[str, Callable[[_Checker, Key, Any], Any]] = {

@@ -7,9 +7,9 @@ supports, executed on a real engine in the tests when ``Target.engine`` is set.
 from __future__ import annotations
 
 from .dialects import Target
-from .errors import UnsupportedError
+from .errors import Gap, UnsupportedError
 from .spec import Spec
-from .views import VIEWS
+from .views import VIEWS, VIEWS_BY_NAME
 
 OPTIONS = ("grain: week", "activity.timezone", "timestamp_type: timestamptz", "activity.where",
            "revenue.timezone", "revenue.where", "shape: subscriptions", "qualified names")
@@ -65,9 +65,25 @@ def _revenue_features(spec: Spec) -> list[tuple[str, str]]:
     return used
 
 
-def require_support(spec: Spec, target: Target, views: list[str]) -> None:
-    """Raise UnsupportedError naming the dialect and spec key of the first gap."""
+def gaps(spec: Spec, target: Target, views: list[str]) -> list[Gap]:
+    """Every feature of the spec the target cannot express, each with the spec key that
+    asks for it and the ``file:line:col`` of that key."""
+    found = []
     for feature, key in features_used(spec) + [(v, f"view {v}") for v in views]:
         status, reason = support(target, feature)
         if status == "unsupported":
-            raise UnsupportedError(target.name, key, reason)
+            found.append(Gap(target.name, key, reason, spec.where(spec_key(key)), spec_key(key)))
+    return found
+
+
+def spec_key(key: str) -> str:
+    """The spec key behind a refused feature: ``view cohort_retention`` -> ``cohorts``."""
+    view = VIEWS_BY_NAME.get(key.removeprefix("view ")) if key.startswith("view ") else None
+    return view.spec_key if view is not None else key
+
+
+def require_support(spec: Spec, target: Target, views: list[str]) -> None:
+    """Raise UnsupportedError naming the dialect, spec key and place of every gap."""
+    found = gaps(spec, target, views)
+    if found:
+        raise UnsupportedError.of(found)

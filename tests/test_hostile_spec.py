@@ -474,11 +474,31 @@ def test_every_file_parses_back_to_exactly_its_statements(target):
             else:
                 expected = [s for c in compiled.values() for st in c.statements
                             for s in _statements(st, dialect)]
+                # create_all.sql wraps the views: a transaction, the schema, DROP VIEWs
+                wrappers = [s for s in parsed if _wrapper(s)]
+                parsed = [s for s in parsed if not _wrapper(s)]
                 drops = [s for s in parsed[:len(parsed) - len(expected)]
                          if s.startswith("DROP VIEW IF EXISTS ")]
                 parsed = parsed[len(drops):]
                 assert len(drops) in (0, len(compiled)), drops
+                assert len(wrappers) <= 4, wrappers
+                if TARGETS[target].exec_batch:
+                    # T-SQL runs each view through sp_executesql inside an IF ... batch that
+                    # sqlglot cannot parse back: each statement is there once, quoted
+                    statements = [st for c in compiled.values() for st in c.statements]
+                    assert all(content.count("N'" + st.replace("'", "''") + "'") == 1
+                               for st in statements)
+                    continue
             assert parsed == expected, file_name
+
+
+_WRAPPERS = ("BEGIN", "COMMIT", "SET XACT_ABORT ON", "BEGIN TRANSACTION", "COMMIT TRANSACTION", "CREATE SCHEMA IF NOT EXISTS ",
+             "CREATE DATABASE IF NOT EXISTS ", "IF NOT EXISTS")
+
+
+def _wrapper(statement: str) -> bool:
+    """A statement create_all.sql adds around the views (transaction, schema)."""
+    return statement in _WRAPPERS[:5] or statement.startswith(_WRAPPERS[5:])
 
 
 def _statements(sql: str, dialect: str) -> list[str]:

@@ -7,6 +7,9 @@
 --   grain: month
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
+-- Not one transaction: BigQuery multi-statement transactions cannot hold CREATE VIEW or CREATE SCHEMA: each DDL statement applies on its own. A failed run can leave some views created; run it again after fixing the cause.
+
+CREATE SCHEMA IF NOT EXISTS `finance`;
 
 -- revenue_source_summary
 CREATE OR REPLACE VIEW `finance`.revenue_source_summary AS

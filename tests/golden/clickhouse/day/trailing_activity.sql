@@ -8,7 +8,9 @@
 --   grain: day
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "growth".trailing_activity AS
+DROP VIEW IF EXISTS "growth".trailing_activity;
+
+CREATE VIEW "growth".trailing_activity AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,

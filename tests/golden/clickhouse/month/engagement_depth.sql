@@ -8,7 +8,9 @@
 --   grain: month
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "growth".engagement_depth AS
+DROP VIEW IF EXISTS "growth".engagement_depth;
+
+CREATE VIEW "growth".engagement_depth AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,

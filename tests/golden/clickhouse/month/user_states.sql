@@ -9,7 +9,9 @@
 --   grain: month
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "growth".user_states AS
+DROP VIEW IF EXISTS "growth".user_states;
+
+CREATE VIEW "growth".user_states AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,

@@ -8,7 +8,9 @@
 --   grain: quarter
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "growth".activity_source_summary AS
+DROP VIEW IF EXISTS "growth".activity_source_summary;
+
+CREATE VIEW "growth".activity_source_summary AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,

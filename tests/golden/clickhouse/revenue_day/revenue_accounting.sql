@@ -8,7 +8,9 @@
 --   grain: day
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "finance".revenue_accounting AS
+DROP VIEW IF EXISTS "finance".revenue_accounting;
+
+CREATE VIEW "finance".revenue_accounting AS
 WITH tallies AS (
   SELECT
     period_key AS tally_key,

@@ -9,7 +9,9 @@
 --   grain: quarter
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "finance".customer_revenue AS
+DROP VIEW IF EXISTS "finance".customer_revenue;
+
+CREATE VIEW "finance".customer_revenue AS
 WITH sqlgen_source AS (
   SELECT
     "account_id" AS sqlgen_customer,

@@ -8,7 +8,9 @@
 --   grain: quarter
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "finance".revenue_source_summary AS
+DROP VIEW IF EXISTS "finance".revenue_source_summary;
+
+CREATE VIEW "finance".revenue_source_summary AS
 WITH sqlgen_source AS (
   SELECT
     "account_id" AS sqlgen_customer,

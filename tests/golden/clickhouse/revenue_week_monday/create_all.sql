@@ -7,9 +7,14 @@
 --   grain: week, weeks start on monday
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
+-- Not one transaction: ClickHouse has no transactions for DDL: each statement applies on its own. A failed run can leave some views created; run it again after fixing the cause.
+
+CREATE DATABASE IF NOT EXISTS "finance";
 
 -- revenue_source_summary
-CREATE OR REPLACE VIEW "finance".revenue_source_summary AS
+DROP VIEW IF EXISTS "finance".revenue_source_summary;
+
+CREATE VIEW "finance".revenue_source_summary AS
 WITH sqlgen_source AS (
   SELECT
     "account_id" AS sqlgen_customer,
@@ -87,7 +92,9 @@ SELECT
 FROM sqlgen_rows;
 
 -- customer_revenue
-CREATE OR REPLACE VIEW "finance".customer_revenue AS
+DROP VIEW IF EXISTS "finance".customer_revenue;
+
+CREATE VIEW "finance".customer_revenue AS
 WITH sqlgen_source AS (
   SELECT
     "account_id" AS sqlgen_customer,
@@ -394,7 +401,9 @@ SELECT
 FROM staged;
 
 -- revenue_accounting
-CREATE OR REPLACE VIEW "finance".revenue_accounting AS
+DROP VIEW IF EXISTS "finance".revenue_accounting;
+
+CREATE VIEW "finance".revenue_accounting AS
 WITH tallies AS (
   SELECT
     period_key AS tally_key,
@@ -553,7 +562,9 @@ SELECT
 FROM filled;
 
 -- revenue_cohorts
-CREATE OR REPLACE VIEW "finance".revenue_cohorts AS
+DROP VIEW IF EXISTS "finance".revenue_cohorts;
+
+CREATE VIEW "finance".revenue_cohorts AS
 WITH marked AS (
   SELECT
     period_key AS marked_key,

@@ -8,7 +8,9 @@
 --   grain: week, weeks start on sunday
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "finance".revenue_cohorts AS
+DROP VIEW IF EXISTS "finance".revenue_cohorts;
+
+CREATE VIEW "finance".revenue_cohorts AS
 WITH marked AS (
   SELECT
     period_key AS marked_key,

@@ -8,7 +8,9 @@
 --   grain: week, weeks start on monday
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "growth".cohort_retention AS
+DROP VIEW IF EXISTS "growth".cohort_retention;
+
+CREATE VIEW "growth".cohort_retention AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,

@@ -7,9 +7,14 @@
 --   grain: week, weeks start on monday
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
+-- Not one transaction: ClickHouse has no transactions for DDL: each statement applies on its own. A failed run can leave some views created; run it again after fixing the cause.
+
+CREATE DATABASE IF NOT EXISTS "growth";
 
 -- activity_source_summary
-CREATE OR REPLACE VIEW "growth".activity_source_summary AS
+DROP VIEW IF EXISTS "growth".activity_source_summary;
+
+CREATE VIEW "growth".activity_source_summary AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
@@ -73,7 +78,9 @@ SELECT
 FROM sqlgen_dated;
 
 -- user_activity
-CREATE OR REPLACE VIEW "growth".user_activity AS
+DROP VIEW IF EXISTS "growth".user_activity;
+
+CREATE VIEW "growth".user_activity AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
@@ -132,7 +139,9 @@ SELECT
 FROM user_periods;
 
 -- user_states
-CREATE OR REPLACE VIEW "growth".user_states AS
+DROP VIEW IF EXISTS "growth".user_states;
+
+CREATE VIEW "growth".user_states AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
@@ -220,7 +229,9 @@ SELECT
 FROM lapsed;
 
 -- growth_accounting
-CREATE OR REPLACE VIEW "growth".growth_accounting AS
+DROP VIEW IF EXISTS "growth".growth_accounting;
+
+CREATE VIEW "growth".growth_accounting AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
@@ -397,7 +408,9 @@ SELECT
 FROM balanced;
 
 -- cohort_retention
-CREATE OR REPLACE VIEW "growth".cohort_retention AS
+DROP VIEW IF EXISTS "growth".cohort_retention;
+
+CREATE VIEW "growth".cohort_retention AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
@@ -535,7 +548,9 @@ LEFT JOIN cohort_actives AS c
   ON c.active_cohort_key = t.cell_cohort_key AND c.active_key = t.cell_key;
 
 -- engagement_depth
-CREATE OR REPLACE VIEW "growth".engagement_depth AS
+DROP VIEW IF EXISTS "growth".engagement_depth;
+
+CREATE VIEW "growth".engagement_depth AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
@@ -699,7 +714,9 @@ LEFT JOIN period_totals AS t
   ON t.total_key = c.cell_key;
 
 -- trailing_activity
-CREATE OR REPLACE VIEW "growth".trailing_activity AS
+DROP VIEW IF EXISTS "growth".trailing_activity;
+
+CREATE VIEW "growth".trailing_activity AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,

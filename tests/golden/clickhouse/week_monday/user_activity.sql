@@ -9,7 +9,9 @@
 --   grain: week, weeks start on monday
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "growth".user_activity AS
+DROP VIEW IF EXISTS "growth".user_activity;
+
+CREATE VIEW "growth".user_activity AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,

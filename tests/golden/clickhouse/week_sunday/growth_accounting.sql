@@ -8,7 +8,9 @@
 --   grain: week, weeks start on sunday
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
-CREATE OR REPLACE VIEW "growth".growth_accounting AS
+DROP VIEW IF EXISTS "growth".growth_accounting;
+
+CREATE VIEW "growth".growth_accounting AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,

@@ -7,6 +7,11 @@
 --   grain: quarter
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
+-- One transaction: a run that fails leaves every object as it was.
+
+BEGIN;
+
+CREATE SCHEMA IF NOT EXISTS "growth";
 
 -- activity_source_summary
 CREATE OR REPLACE VIEW "growth".activity_source_summary AS
@@ -904,3 +909,5 @@ SELECT
   CAST(active_tally - retained_tally AS DOUBLE) / NULLIF(churned_tally, 0) AS quick_ratio,
   grid_day AS day_key
 FROM tallied;
+
+COMMIT;

@@ -7,6 +7,11 @@
 --   grain: month
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
+-- One transaction: a run that fails leaves every object as it was.
+
+BEGIN;
+
+CREATE SCHEMA IF NOT EXISTS "finance";
 
 -- revenue_source_summary
 CREATE OR REPLACE VIEW "finance".revenue_source_summary AS
@@ -663,3 +668,5 @@ SELECT
   cell_cohort_key AS cohort_key,
   cell_key AS period_key
 FROM running;
+
+COMMIT;

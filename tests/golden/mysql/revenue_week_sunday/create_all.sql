@@ -7,6 +7,9 @@
 --   grain: week, weeks start on sunday
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
+-- Not one transaction: every CREATE VIEW, DROP VIEW and CREATE DATABASE commits the open transaction implicitly (MySQL and MariaDB have no transactional DDL). A failed run can leave some views created; run it again after fixing the cause.
+
+CREATE SCHEMA IF NOT EXISTS `finance`;
 
 -- revenue_source_summary
 CREATE OR REPLACE VIEW `finance`.revenue_source_summary AS

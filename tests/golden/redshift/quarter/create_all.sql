@@ -8,6 +8,11 @@
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- CREATE OR REPLACE VIEW cannot change an existing view's columns on this engine: after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, which does so).
 -- Every view, each after the views it reads.
+-- One transaction: a run that fails leaves every object as it was.
+
+BEGIN;
+
+CREATE SCHEMA IF NOT EXISTS "growth";
 
 DROP VIEW IF EXISTS "growth".trailing_activity CASCADE;
 
@@ -919,3 +924,5 @@ SELECT
   CAST(active_tally - retained_tally AS DOUBLE PRECISION) / NULLIF(churned_tally, 0) AS quick_ratio,
   grid_day AS day_key
 FROM tallied;
+
+COMMIT;

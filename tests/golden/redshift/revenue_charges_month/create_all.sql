@@ -8,6 +8,11 @@
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- CREATE OR REPLACE VIEW cannot change an existing view's columns on this engine: after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, which does so).
 -- Every view, each after the views it reads.
+-- One transaction: a run that fails leaves every object as it was.
+
+BEGIN;
+
+CREATE SCHEMA IF NOT EXISTS "finance";
 
 DROP VIEW IF EXISTS "finance".revenue_cohorts CASCADE;
 
@@ -528,3 +533,5 @@ SELECT
   cell_cohort_key AS cohort_key,
   cell_key AS period_key
 FROM running;
+
+COMMIT;

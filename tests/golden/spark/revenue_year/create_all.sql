@@ -7,6 +7,9 @@
 --   grain: year
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
+-- Not one transaction: Spark SQL and Databricks SQL have no multi-statement transactions for CREATE VIEW: each statement applies on its own. A failed run can leave some views created; run it again after fixing the cause.
+
+CREATE SCHEMA IF NOT EXISTS `finance`;
 
 -- revenue_source_summary
 CREATE OR REPLACE VIEW `finance`.revenue_source_summary AS

@@ -7,6 +7,9 @@
 --   grain: quarter
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
+-- One transaction: a run that fails leaves every object as it was; run it with `sqlite3 -bail` (or Python's executescript): without -bail the sqlite3 shell goes on after a failed statement and COMMIT keeps the rest.
+
+BEGIN TRANSACTION;
 
 -- activity_source_summary
 DROP VIEW IF EXISTS activity_source_summary;
@@ -932,3 +935,5 @@ SELECT
   CAST(active_tally - retained_tally AS REAL) / NULLIF(churned_tally, 0) AS quick_ratio,
   grid_day AS day_key
 FROM tallied;
+
+COMMIT;

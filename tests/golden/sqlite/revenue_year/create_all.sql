@@ -7,6 +7,9 @@
 --   grain: year
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
+-- One transaction: a run that fails leaves every object as it was; run it with `sqlite3 -bail` (or Python's executescript): without -bail the sqlite3 shell goes on after a failed statement and COMMIT keeps the rest.
+
+BEGIN TRANSACTION;
 
 -- revenue_source_summary
 DROP VIEW IF EXISTS revenue_source_summary;
@@ -693,3 +696,5 @@ SELECT
   cell_cohort_key AS cohort_key,
   cell_key AS period_key
 FROM running;
+
+COMMIT;

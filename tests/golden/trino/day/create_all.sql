@@ -7,6 +7,9 @@
 --   grain: day
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
+-- Not one transaction: Trino runs DDL in a transaction only on some connectors; create_all.sql does not rely on it, so each statement applies on its own. A failed run can leave some views created; run it again after fixing the cause.
+
+CREATE SCHEMA IF NOT EXISTS "growth";
 
 -- activity_source_summary
 CREATE OR REPLACE VIEW "growth".activity_source_summary AS

@@ -7,16 +7,23 @@
 --   grain: month
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
+-- One transaction: a run that fails leaves every object as it was; the file is one batch (no GO): each view runs through sp_executesql, and XACT_ABORT ON rolls the whole transaction back on an error.
+
+SET XACT_ABORT ON;
+
+BEGIN TRANSACTION;
+
+IF NOT EXISTS (SELECT * FROM INFORMATION_SCHEMA.SCHEMATA WHERE SCHEMA_NAME = 'finance') EXEC('CREATE SCHEMA [finance]');
 
 -- revenue_source_summary
-CREATE OR ALTER VIEW [finance].revenue_source_summary AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].revenue_source_summary AS
 WITH sqlgen_source AS (
   SELECT
     [account_id] AS sqlgen_customer,
     [invoiced_at] AS sqlgen_date_value,
     [amount] AS sqlgen_amount,
     CASE WHEN (
-      [currency] = 'EUR'
+      [currency] = ''EUR''
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM [billing].[invoice_lines]
 ), sqlgen_dated AS (
@@ -33,38 +40,38 @@ WITH sqlgen_source AS (
     row_date AS row_date,
     CASE
       WHEN sqlgen_customer IS NULL
-      THEN 'null_customer'
+      THEN ''null_customer''
       WHEN row_date IS NULL
-      THEN 'null_date'
+      THEN ''null_date''
       WHEN sqlgen_amount IS NULL
-      THEN 'null_amount'
+      THEN ''null_amount''
       WHEN sqlgen_kept = 0
-      THEN 'filtered_out'
-      ELSE 'counted'
+      THEN ''filtered_out''
+      ELSE ''counted''
     END AS row_status
   FROM sqlgen_dated
 )
 SELECT
   COUNT_BIG(*) AS source_rows,
-  COUNT_BIG(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,
-  COUNT_BIG(CASE WHEN row_status = 'null_date' THEN 1 END) AS null_date_rows,
-  COUNT_BIG(CASE WHEN row_status = 'null_amount' THEN 1 END) AS null_amount_rows,
-  COUNT_BIG(CASE WHEN row_status = 'filtered_out' THEN 1 END) AS filtered_out_rows,
-  COUNT_BIG(CASE WHEN row_status = 'invalid' THEN 1 END) AS invalid_rows,
-  COUNT_BIG(CASE WHEN row_status = 'counted' THEN 1 END) AS counted_rows,
-  MIN(CASE WHEN row_status = 'counted' THEN row_date END) AS first_date,
-  MAX(CASE WHEN row_status = 'counted' THEN row_date END) AS last_date
-FROM sqlgen_rows;
+  COUNT_BIG(CASE WHEN row_status = ''null_customer'' THEN 1 END) AS null_customer_rows,
+  COUNT_BIG(CASE WHEN row_status = ''null_date'' THEN 1 END) AS null_date_rows,
+  COUNT_BIG(CASE WHEN row_status = ''null_amount'' THEN 1 END) AS null_amount_rows,
+  COUNT_BIG(CASE WHEN row_status = ''filtered_out'' THEN 1 END) AS filtered_out_rows,
+  COUNT_BIG(CASE WHEN row_status = ''invalid'' THEN 1 END) AS invalid_rows,
+  COUNT_BIG(CASE WHEN row_status = ''counted'' THEN 1 END) AS counted_rows,
+  MIN(CASE WHEN row_status = ''counted'' THEN row_date END) AS first_date,
+  MAX(CASE WHEN row_status = ''counted'' THEN row_date END) AS last_date
+FROM sqlgen_rows';
 
 -- customer_revenue
-CREATE OR ALTER VIEW [finance].customer_revenue AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].customer_revenue AS
 WITH sqlgen_source AS (
   SELECT
     [account_id] AS sqlgen_customer,
     [invoiced_at] AS sqlgen_date_value,
     [amount] AS sqlgen_amount,
     CASE WHEN (
-      [currency] = 'EUR'
+      [currency] = ''EUR''
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM [billing].[invoice_lines]
 ), sqlgen_dated AS (
@@ -81,14 +88,14 @@ WITH sqlgen_source AS (
     row_date AS row_date,
     CASE
       WHEN sqlgen_customer IS NULL
-      THEN 'null_customer'
+      THEN ''null_customer''
       WHEN row_date IS NULL
-      THEN 'null_date'
+      THEN ''null_date''
       WHEN sqlgen_amount IS NULL
-      THEN 'null_amount'
+      THEN ''null_amount''
       WHEN sqlgen_kept = 0
-      THEN 'filtered_out'
-      ELSE 'counted'
+      THEN ''filtered_out''
+      ELSE ''counted''
     END AS row_status
   FROM sqlgen_dated
 ), counted AS (
@@ -98,7 +105,7 @@ WITH sqlgen_source AS (
     sqlgen_amount AS counted_amount
   FROM sqlgen_rows
   WHERE
-    row_status = 'counted'
+    row_status = ''counted''
 ), bounds AS (
   SELECT
     MIN(counted_date) AS first_date,
@@ -185,47 +192,47 @@ WITH sqlgen_source AS (
       WHEN current_amount > 0 AND previous_amount > 0
       THEN CASE
         WHEN current_amount > previous_amount
-        THEN 'expansion'
+        THEN ''expansion''
         WHEN current_amount < previous_amount
-        THEN 'contraction'
-        ELSE 'retained-flat'
+        THEN ''contraction''
+        ELSE ''retained-flat''
       END
       WHEN current_amount > 0 AND revenue_key = first_paid_key
-      THEN 'new'
+      THEN ''new''
       WHEN current_amount > 0
-      THEN 'resurrected'
+      THEN ''resurrected''
       WHEN previous_amount > 0
-      THEN 'churned'
-      ELSE 'no_revenue'
+      THEN ''churned''
+      ELSE ''no_revenue''
     END AS revenue_state
   FROM firsts
 )
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,
-  CAST(DATEADD(MONTH, revenue_key - 23640, CAST('1970-01-01' AS DATE)) AS DATE) AS period_start,
+  CAST(DATEADD(MONTH, revenue_key - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE) AS period_start,
   ROUND(current_amount, 2) AS revenue,
   ROUND(previous_amount, 2) AS previous_revenue,
   revenue_state AS state,
-  ROUND(CASE WHEN revenue_state = 'new' THEN current_amount ELSE 0 END, 2) AS new_revenue,
+  ROUND(CASE WHEN revenue_state = ''new'' THEN current_amount ELSE 0 END, 2) AS new_revenue,
   ROUND(
     CASE
-      WHEN revenue_state = 'expansion'
+      WHEN revenue_state = ''expansion''
       THEN current_amount - previous_amount
       ELSE 0
     END,
     2
   ) AS expansion_revenue,
-  ROUND(CASE WHEN revenue_state = 'resurrected' THEN current_amount ELSE 0 END, 2) AS resurrected_revenue,
+  ROUND(CASE WHEN revenue_state = ''resurrected'' THEN current_amount ELSE 0 END, 2) AS resurrected_revenue,
   ROUND(
     CASE
-      WHEN revenue_state = 'contraction'
+      WHEN revenue_state = ''contraction''
       THEN previous_amount - current_amount
       ELSE 0
     END,
     2
   ) AS contraction_revenue,
-  ROUND(CASE WHEN revenue_state = 'churned' THEN previous_amount ELSE 0 END, 2) AS churned_revenue,
+  ROUND(CASE WHEN revenue_state = ''churned'' THEN previous_amount ELSE 0 END, 2) AS churned_revenue,
   ROUND(
     CASE
       WHEN current_amount < previous_amount
@@ -236,10 +243,10 @@ SELECT
   ) AS retained_revenue,
   CASE WHEN has_rows = 1 THEN ROUND(summed_total, 2) END AS period_amount,
   CASE WHEN has_rows = 1 AND summed_total <= 0 THEN 1 ELSE 0 END AS counted_as_zero
-FROM staged;
+FROM staged';
 
 -- revenue_accounting
-CREATE OR ALTER VIEW [finance].revenue_accounting AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].revenue_accounting AS
 WITH tallies AS (
   SELECT
     period_key AS tally_key,
@@ -255,13 +262,13 @@ WITH tallies AS (
     SUM(CASE WHEN period_amount IS NULL THEN 0 ELSE period_amount END) AS amount_sum,
     COUNT_BIG(CASE WHEN revenue > 0 THEN 1 END) AS customer_count,
     COUNT_BIG(CASE WHEN previous_revenue > 0 THEN 1 END) AS previous_count,
-    COUNT_BIG(CASE WHEN state = 'new' THEN 1 END) AS new_count,
-    COUNT_BIG(CASE WHEN state = 'expansion' THEN 1 END) AS expansion_count,
-    COUNT_BIG(CASE WHEN state = 'resurrected' THEN 1 END) AS resurrected_count,
-    COUNT_BIG(CASE WHEN state = 'contraction' THEN 1 END) AS contraction_count,
-    COUNT_BIG(CASE WHEN state = 'churned' THEN 1 END) AS churned_count,
+    COUNT_BIG(CASE WHEN state = ''new'' THEN 1 END) AS new_count,
+    COUNT_BIG(CASE WHEN state = ''expansion'' THEN 1 END) AS expansion_count,
+    COUNT_BIG(CASE WHEN state = ''resurrected'' THEN 1 END) AS resurrected_count,
+    COUNT_BIG(CASE WHEN state = ''contraction'' THEN 1 END) AS contraction_count,
+    COUNT_BIG(CASE WHEN state = ''churned'' THEN 1 END) AS churned_count,
     COUNT_BIG(CASE WHEN revenue > 0 AND previous_revenue > 0 THEN 1 END) AS retained_count,
-    COUNT_BIG(CASE WHEN state = 'retained-flat' THEN 1 END) AS flat_count,
+    COUNT_BIG(CASE WHEN state = ''retained-flat'' THEN 1 END) AS flat_count,
     COUNT_BIG(CASE WHEN counted_as_zero = 1 THEN 1 END) AS zeroed_count
   FROM [finance].customer_revenue
   GROUP BY
@@ -354,8 +361,8 @@ WITH tallies AS (
     COALESCE(t.zeroed_count, 0) AS zeroed_count,
     CASE
       WHEN c.calendar_key = e.last_key AND e.after_data_key = e.last_key
-      THEN 'in_progress'
-      ELSE 'complete'
+      THEN ''in_progress''
+      ELSE ''complete''
     END AS status
   FROM calendar AS c
   CROSS JOIN data_edge AS e
@@ -363,7 +370,7 @@ WITH tallies AS (
     ON t.tally_key = c.calendar_key
 )
 SELECT
-  CAST(DATEADD(MONTH, calendar_key - 23640, CAST('1970-01-01' AS DATE)) AS DATE) AS period_start,
+  CAST(DATEADD(MONTH, calendar_key - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE) AS period_start,
   ROUND(revenue_amount, 2) AS revenue,
   ROUND(previous_amount, 2) AS previous_revenue,
   ROUND(new_amount, 2) AS new_revenue,
@@ -389,10 +396,10 @@ SELECT
   ROUND(amount_all, 2) AS amount_total,
   status AS period_status,
   calendar_key AS period_key
-FROM filled;
+FROM filled';
 
 -- revenue_cohorts
-CREATE OR ALTER VIEW [finance].revenue_cohorts AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].revenue_cohorts AS
 WITH marked AS (
   SELECT
     period_key AS marked_key,
@@ -508,9 +515,9 @@ WITH marked AS (
   FROM cells
 )
 SELECT
-  CAST(DATEADD(MONTH, cell_cohort_key - 23640, CAST('1970-01-01' AS DATE)) AS DATE) AS cohort_start,
+  CAST(DATEADD(MONTH, cell_cohort_key - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE) AS cohort_start,
   cell_age AS age,
-  CAST(DATEADD(MONTH, cell_key - 23640, CAST('1970-01-01' AS DATE)) AS DATE) AS period_start,
+  CAST(DATEADD(MONTH, cell_key - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE) AS period_start,
   cell_size AS cohort_customers,
   cell_paying AS paying_customers,
   ROUND(cell_revenue, 2) AS revenue,
@@ -518,4 +525,6 @@ SELECT
   CAST(cell_revenue AS FLOAT) / NULLIF(CAST(base_amount AS FLOAT), 0) AS net_revenue_retention,
   cell_cohort_key AS cohort_key,
   cell_key AS period_key
-FROM running;
+FROM running';
+
+COMMIT TRANSACTION;

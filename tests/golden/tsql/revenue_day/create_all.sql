@@ -7,30 +7,37 @@
 --   grain: day
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
+-- One transaction: a run that fails leaves every object as it was; the file is one batch (no GO): each view runs through sp_executesql, and XACT_ABORT ON rolls the whole transaction back on an error.
+
+SET XACT_ABORT ON;
+
+BEGIN TRANSACTION;
+
+IF NOT EXISTS (SELECT * FROM INFORMATION_SCHEMA.SCHEMATA WHERE SCHEMA_NAME = 'finance') EXEC('CREATE SCHEMA [finance]');
 
 -- revenue_source_summary
-CREATE OR ALTER VIEW [finance].revenue_source_summary AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].revenue_source_summary AS
 WITH sqlgen_source AS (
   SELECT
     [account_id] AS sqlgen_customer,
     [started_at] AS sqlgen_date_value,
     [amount] AS sqlgen_amount,
     CASE WHEN (
-      [currency] = 'EUR'
+      [currency] = ''EUR''
     ) THEN 1 ELSE 0 END AS sqlgen_kept,
     [ended_at] AS sqlgen_end_value,
     CASE LOWER([billing_interval])
-      WHEN 'month'
+      WHEN ''month''
       THEN 1
-      WHEN 'monthly'
+      WHEN ''monthly''
       THEN 1
-      WHEN 'quarter'
+      WHEN ''quarter''
       THEN 3
-      WHEN 'quarterly'
+      WHEN ''quarterly''
       THEN 3
-      WHEN 'year'
+      WHEN ''year''
       THEN 12
-      WHEN 'yearly'
+      WHEN ''yearly''
       THEN 12
     END AS sqlgen_months
   FROM [billing].[subscriptions]
@@ -52,61 +59,61 @@ WITH sqlgen_source AS (
     row_months AS row_months,
     CASE
       WHEN sqlgen_customer IS NULL
-      THEN 'null_customer'
+      THEN ''null_customer''
       WHEN row_date IS NULL
-      THEN 'null_date'
+      THEN ''null_date''
       WHEN sqlgen_amount IS NULL
-      THEN 'null_amount'
+      THEN ''null_amount''
       WHEN sqlgen_kept = 0
-      THEN 'filtered_out'
+      THEN ''filtered_out''
       WHEN row_months IS NULL
-      THEN 'invalid'
+      THEN ''invalid''
       WHEN NOT row_end IS NULL AND row_end <= row_date
-      THEN 'invalid'
-      ELSE 'counted'
+      THEN ''invalid''
+      ELSE ''counted''
     END AS row_status
   FROM sqlgen_dated
 )
 SELECT
   COUNT_BIG(*) AS source_rows,
-  COUNT_BIG(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,
-  COUNT_BIG(CASE WHEN row_status = 'null_date' THEN 1 END) AS null_date_rows,
-  COUNT_BIG(CASE WHEN row_status = 'null_amount' THEN 1 END) AS null_amount_rows,
-  COUNT_BIG(CASE WHEN row_status = 'filtered_out' THEN 1 END) AS filtered_out_rows,
-  COUNT_BIG(CASE WHEN row_status = 'invalid' THEN 1 END) AS invalid_rows,
-  COUNT_BIG(CASE WHEN row_status = 'counted' THEN 1 END) AS counted_rows,
-  MIN(CASE WHEN row_status = 'counted' THEN row_date END) AS first_date,
+  COUNT_BIG(CASE WHEN row_status = ''null_customer'' THEN 1 END) AS null_customer_rows,
+  COUNT_BIG(CASE WHEN row_status = ''null_date'' THEN 1 END) AS null_date_rows,
+  COUNT_BIG(CASE WHEN row_status = ''null_amount'' THEN 1 END) AS null_amount_rows,
+  COUNT_BIG(CASE WHEN row_status = ''filtered_out'' THEN 1 END) AS filtered_out_rows,
+  COUNT_BIG(CASE WHEN row_status = ''invalid'' THEN 1 END) AS invalid_rows,
+  COUNT_BIG(CASE WHEN row_status = ''counted'' THEN 1 END) AS counted_rows,
+  MIN(CASE WHEN row_status = ''counted'' THEN row_date END) AS first_date,
   MAX(
     CASE
-      WHEN row_status = 'counted'
+      WHEN row_status = ''counted''
       THEN CASE WHEN row_end IS NULL THEN row_date ELSE row_end END
     END
   ) AS last_date
-FROM sqlgen_rows;
+FROM sqlgen_rows';
 
 -- customer_revenue
-CREATE OR ALTER VIEW [finance].customer_revenue AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].customer_revenue AS
 WITH sqlgen_source AS (
   SELECT
     [account_id] AS sqlgen_customer,
     [started_at] AS sqlgen_date_value,
     [amount] AS sqlgen_amount,
     CASE WHEN (
-      [currency] = 'EUR'
+      [currency] = ''EUR''
     ) THEN 1 ELSE 0 END AS sqlgen_kept,
     [ended_at] AS sqlgen_end_value,
     CASE LOWER([billing_interval])
-      WHEN 'month'
+      WHEN ''month''
       THEN 1
-      WHEN 'monthly'
+      WHEN ''monthly''
       THEN 1
-      WHEN 'quarter'
+      WHEN ''quarter''
       THEN 3
-      WHEN 'quarterly'
+      WHEN ''quarterly''
       THEN 3
-      WHEN 'year'
+      WHEN ''year''
       THEN 12
-      WHEN 'yearly'
+      WHEN ''yearly''
       THEN 12
     END AS sqlgen_months
   FROM [billing].[subscriptions]
@@ -128,18 +135,18 @@ WITH sqlgen_source AS (
     row_months AS row_months,
     CASE
       WHEN sqlgen_customer IS NULL
-      THEN 'null_customer'
+      THEN ''null_customer''
       WHEN row_date IS NULL
-      THEN 'null_date'
+      THEN ''null_date''
       WHEN sqlgen_amount IS NULL
-      THEN 'null_amount'
+      THEN ''null_amount''
       WHEN sqlgen_kept = 0
-      THEN 'filtered_out'
+      THEN ''filtered_out''
       WHEN row_months IS NULL
-      THEN 'invalid'
+      THEN ''invalid''
       WHEN NOT row_end IS NULL AND row_end <= row_date
-      THEN 'invalid'
-      ELSE 'counted'
+      THEN ''invalid''
+      ELSE ''counted''
     END AS row_status
   FROM sqlgen_dated
 ), counted AS (
@@ -151,7 +158,7 @@ WITH sqlgen_source AS (
     row_months AS counted_months
   FROM sqlgen_rows
   WHERE
-    row_status = 'counted'
+    row_status = ''counted''
 ), bounds AS (
   SELECT
     MIN(counted_date) AS first_date,
@@ -159,8 +166,8 @@ WITH sqlgen_source AS (
   FROM counted
 ), data_range AS (
   SELECT
-    DATEDIFF(DAY, CAST('1970-01-05' AS DATE), first_date) AS first_key,
-    DATEDIFF(DAY, CAST('1970-01-05' AS DATE), last_date) AS last_key
+    DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), first_date) AS first_key,
+    DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), last_date) AS last_key
   FROM bounds
 ), spans AS (
   SELECT
@@ -218,8 +225,8 @@ WITH sqlgen_source AS (
 ), segments AS (
   SELECT
     calendar_key AS segment_key,
-    CAST(DATEADD(DAY, calendar_key, CAST('1970-01-05' AS DATE)) AS DATE) AS segment_start,
-    CAST(DATEADD(DAY, calendar_key + 1, CAST('1970-01-05' AS DATE)) AS DATE) AS segment_end,
+    CAST(DATEADD(DAY, calendar_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS segment_start,
+    CAST(DATEADD(DAY, calendar_key + 1, CAST(''1970-01-05'' AS DATE)) AS DATE) AS segment_end,
     365 AS segment_days
   FROM periods
 ), pieces AS (
@@ -264,7 +271,7 @@ WITH sqlgen_source AS (
   SELECT
     share_customer AS total_customer,
     share_key AS total_key,
-    ROUND(CAST(SUM(share_units) AS BIGINT) * CAST('0.01' AS NUMERIC(18, 2)), 2) AS total_amount
+    ROUND(CAST(SUM(share_units) AS BIGINT) * CAST(''0.01'' AS NUMERIC(18, 2)), 2) AS total_amount
   FROM shares
   GROUP BY
     share_customer,
@@ -324,47 +331,47 @@ WITH sqlgen_source AS (
       WHEN current_amount > 0 AND previous_amount > 0
       THEN CASE
         WHEN current_amount > previous_amount
-        THEN 'expansion'
+        THEN ''expansion''
         WHEN current_amount < previous_amount
-        THEN 'contraction'
-        ELSE 'retained-flat'
+        THEN ''contraction''
+        ELSE ''retained-flat''
       END
       WHEN current_amount > 0 AND revenue_key = first_paid_key
-      THEN 'new'
+      THEN ''new''
       WHEN current_amount > 0
-      THEN 'resurrected'
+      THEN ''resurrected''
       WHEN previous_amount > 0
-      THEN 'churned'
-      ELSE 'no_revenue'
+      THEN ''churned''
+      ELSE ''no_revenue''
     END AS revenue_state
   FROM firsts
 )
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,
-  CAST(DATEADD(DAY, revenue_key, CAST('1970-01-05' AS DATE)) AS DATE) AS period_start,
+  CAST(DATEADD(DAY, revenue_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS period_start,
   ROUND(current_amount, 2) AS revenue,
   ROUND(previous_amount, 2) AS previous_revenue,
   revenue_state AS state,
-  ROUND(CASE WHEN revenue_state = 'new' THEN current_amount ELSE 0 END, 2) AS new_revenue,
+  ROUND(CASE WHEN revenue_state = ''new'' THEN current_amount ELSE 0 END, 2) AS new_revenue,
   ROUND(
     CASE
-      WHEN revenue_state = 'expansion'
+      WHEN revenue_state = ''expansion''
       THEN current_amount - previous_amount
       ELSE 0
     END,
     2
   ) AS expansion_revenue,
-  ROUND(CASE WHEN revenue_state = 'resurrected' THEN current_amount ELSE 0 END, 2) AS resurrected_revenue,
+  ROUND(CASE WHEN revenue_state = ''resurrected'' THEN current_amount ELSE 0 END, 2) AS resurrected_revenue,
   ROUND(
     CASE
-      WHEN revenue_state = 'contraction'
+      WHEN revenue_state = ''contraction''
       THEN previous_amount - current_amount
       ELSE 0
     END,
     2
   ) AS contraction_revenue,
-  ROUND(CASE WHEN revenue_state = 'churned' THEN previous_amount ELSE 0 END, 2) AS churned_revenue,
+  ROUND(CASE WHEN revenue_state = ''churned'' THEN previous_amount ELSE 0 END, 2) AS churned_revenue,
   ROUND(
     CASE
       WHEN current_amount < previous_amount
@@ -375,10 +382,10 @@ SELECT
   ) AS retained_revenue,
   CASE WHEN has_rows = 1 THEN ROUND(summed_total, 2) END AS period_amount,
   CASE WHEN has_rows = 1 AND summed_total <= 0 THEN 1 ELSE 0 END AS counted_as_zero
-FROM staged;
+FROM staged';
 
 -- revenue_accounting
-CREATE OR ALTER VIEW [finance].revenue_accounting AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].revenue_accounting AS
 WITH tallies AS (
   SELECT
     period_key AS tally_key,
@@ -394,21 +401,21 @@ WITH tallies AS (
     SUM(CASE WHEN period_amount IS NULL THEN 0 ELSE period_amount END) AS amount_sum,
     COUNT_BIG(CASE WHEN revenue > 0 THEN 1 END) AS customer_count,
     COUNT_BIG(CASE WHEN previous_revenue > 0 THEN 1 END) AS previous_count,
-    COUNT_BIG(CASE WHEN state = 'new' THEN 1 END) AS new_count,
-    COUNT_BIG(CASE WHEN state = 'expansion' THEN 1 END) AS expansion_count,
-    COUNT_BIG(CASE WHEN state = 'resurrected' THEN 1 END) AS resurrected_count,
-    COUNT_BIG(CASE WHEN state = 'contraction' THEN 1 END) AS contraction_count,
-    COUNT_BIG(CASE WHEN state = 'churned' THEN 1 END) AS churned_count,
+    COUNT_BIG(CASE WHEN state = ''new'' THEN 1 END) AS new_count,
+    COUNT_BIG(CASE WHEN state = ''expansion'' THEN 1 END) AS expansion_count,
+    COUNT_BIG(CASE WHEN state = ''resurrected'' THEN 1 END) AS resurrected_count,
+    COUNT_BIG(CASE WHEN state = ''contraction'' THEN 1 END) AS contraction_count,
+    COUNT_BIG(CASE WHEN state = ''churned'' THEN 1 END) AS churned_count,
     COUNT_BIG(CASE WHEN revenue > 0 AND previous_revenue > 0 THEN 1 END) AS retained_count,
-    COUNT_BIG(CASE WHEN state = 'retained-flat' THEN 1 END) AS flat_count,
+    COUNT_BIG(CASE WHEN state = ''retained-flat'' THEN 1 END) AS flat_count,
     COUNT_BIG(CASE WHEN counted_as_zero = 1 THEN 1 END) AS zeroed_count
   FROM [finance].customer_revenue
   GROUP BY
     period_key
 ), data_range AS (
   SELECT
-    DATEDIFF(DAY, CAST('1970-01-05' AS DATE), first_date) AS first_key,
-    DATEDIFF(DAY, CAST('1970-01-05' AS DATE), last_date) AS last_key,
+    DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), first_date) AS first_key,
+    DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), last_date) AS last_key,
     last_date AS data_through
   FROM [finance].revenue_source_summary
 ), data_edge AS (
@@ -416,7 +423,7 @@ WITH tallies AS (
     first_key AS first_key,
     last_key AS last_key,
     data_through AS data_through,
-    DATEDIFF(DAY, CAST('1970-01-05' AS DATE), DATEADD(DAY, 1, data_through)) AS after_data_key
+    DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), DATEADD(DAY, 1, data_through)) AS after_data_key
   FROM data_range
 ), digits AS (
   SELECT
@@ -488,8 +495,8 @@ WITH tallies AS (
     COALESCE(t.zeroed_count, 0) AS zeroed_count,
     CASE
       WHEN c.calendar_key = e.last_key AND e.after_data_key = e.last_key
-      THEN 'in_progress'
-      ELSE 'complete'
+      THEN ''in_progress''
+      ELSE ''complete''
     END AS status
   FROM calendar AS c
   CROSS JOIN data_edge AS e
@@ -497,7 +504,7 @@ WITH tallies AS (
     ON t.tally_key = c.calendar_key
 )
 SELECT
-  CAST(DATEADD(DAY, calendar_key, CAST('1970-01-05' AS DATE)) AS DATE) AS period_start,
+  CAST(DATEADD(DAY, calendar_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS period_start,
   ROUND(revenue_amount, 2) AS revenue,
   ROUND(previous_amount, 2) AS previous_revenue,
   ROUND(new_amount, 2) AS new_revenue,
@@ -523,10 +530,10 @@ SELECT
   ROUND(amount_all, 2) AS amount_total,
   status AS period_status,
   calendar_key AS period_key
-FROM filled;
+FROM filled';
 
 -- revenue_cohorts
-CREATE OR ALTER VIEW [finance].revenue_cohorts AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].revenue_cohorts AS
 WITH marked AS (
   SELECT
     period_key AS marked_key,
@@ -554,8 +561,8 @@ WITH marked AS (
     revenue_key = revenue_cohort_key
 ), data_range AS (
   SELECT
-    DATEDIFF(DAY, CAST('1970-01-05' AS DATE), first_date) AS first_data_key,
-    DATEDIFF(DAY, CAST('1970-01-05' AS DATE), last_date) AS last_data_key
+    DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), first_date) AS first_data_key,
+    DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), last_date) AS last_data_key
   FROM [finance].revenue_source_summary
 ), digits AS (
   SELECT
@@ -639,9 +646,9 @@ WITH marked AS (
   FROM cells
 )
 SELECT
-  CAST(DATEADD(DAY, cell_cohort_key, CAST('1970-01-05' AS DATE)) AS DATE) AS cohort_start,
+  CAST(DATEADD(DAY, cell_cohort_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS cohort_start,
   cell_age AS age,
-  CAST(DATEADD(DAY, cell_key, CAST('1970-01-05' AS DATE)) AS DATE) AS period_start,
+  CAST(DATEADD(DAY, cell_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS period_start,
   cell_size AS cohort_customers,
   cell_paying AS paying_customers,
   ROUND(cell_revenue, 2) AS revenue,
@@ -649,4 +656,6 @@ SELECT
   CAST(cell_revenue AS FLOAT) / NULLIF(CAST(base_amount AS FLOAT), 0) AS net_revenue_retention,
   cell_cohort_key AS cohort_key,
   cell_key AS period_key
-FROM running;
+FROM running';
+
+COMMIT TRANSACTION;

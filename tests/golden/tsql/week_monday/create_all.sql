@@ -7,15 +7,22 @@
 --   grain: week, weeks start on monday
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
+-- One transaction: a run that fails leaves every object as it was; the file is one batch (no GO): each view runs through sp_executesql, and XACT_ABORT ON rolls the whole transaction back on an error.
+
+SET XACT_ABORT ON;
+
+BEGIN TRANSACTION;
+
+IF NOT EXISTS (SELECT * FROM INFORMATION_SCHEMA.SCHEMATA WHERE SCHEMA_NAME = 'growth') EXEC('CREATE SCHEMA [growth]');
 
 -- activity_source_summary
-CREATE OR ALTER VIEW [growth].activity_source_summary AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].activity_source_summary AS
 WITH sqlgen_source AS (
   SELECT
     [user_id] AS sqlgen_user,
     [occurred_at] AS sqlgen_ts,
     CASE WHEN (
-      [event_name] <> 'push_received'
+      [event_name] <> ''push_received''
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM [raw].[app_events]
 ), sqlgen_dated AS (
@@ -54,10 +61,10 @@ SELECT
       THEN 1
     END
   ) AS counted_rows
-FROM sqlgen_dated;
+FROM sqlgen_dated';
 
 -- user_activity
-CREATE OR ALTER VIEW [growth].user_activity AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].user_activity AS
 WITH sqlgen_source AS (
   SELECT
     [user_id] AS sqlgen_user,
@@ -67,7 +74,7 @@ WITH sqlgen_source AS (
     NOT [user_id] IS NULL
     AND NOT [occurred_at] IS NULL
     AND (
-      [event_name] <> 'push_received'
+      [event_name] <> ''push_received''
     )
 ), dated AS (
   SELECT
@@ -79,8 +86,8 @@ WITH sqlgen_source AS (
     user_id AS user_id,
     activity_date AS activity_date,
     (
-      DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) - (
-        DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) + 700000
+      DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), activity_date) - (
+        DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), activity_date) + 700000
       ) % 7
     ) AS period_key
   FROM dated
@@ -102,15 +109,15 @@ WITH sqlgen_source AS (
 SELECT
   user_id,
   period_key,
-  CAST(DATEADD(DAY, period_key, CAST('1970-01-05' AS DATE)) AS DATE) AS period_start,
+  CAST(DATEADD(DAY, period_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS period_start,
   events,
   active_days,
   first_active_date,
   last_active_date
-FROM user_periods;
+FROM user_periods';
 
 -- user_states
-CREATE OR ALTER VIEW [growth].user_states AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].user_states AS
 WITH sqlgen_source AS (
   SELECT
     [user_id] AS sqlgen_user,
@@ -120,7 +127,7 @@ WITH sqlgen_source AS (
     NOT [user_id] IS NULL
     AND NOT [occurred_at] IS NULL
     AND (
-      [event_name] <> 'push_received'
+      [event_name] <> ''push_received''
     )
 ), dated AS (
   SELECT
@@ -132,8 +139,8 @@ WITH sqlgen_source AS (
     user_id AS user_id,
     activity_date AS activity_date,
     (
-      DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) - (
-        DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) + 700000
+      DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), activity_date) - (
+        DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), activity_date) + 700000
       ) % 7
     ) AS period_key
   FROM dated
@@ -174,25 +181,25 @@ WITH sqlgen_source AS (
 SELECT
   user_id,
   period_key,
-  CAST(DATEADD(DAY, period_key, CAST('1970-01-05' AS DATE)) AS DATE) AS period_start,
+  CAST(DATEADD(DAY, period_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS period_start,
   CASE
     WHEN prior_key IS NULL
-    THEN 'new'
+    THEN ''new''
     WHEN prior_key = period_key - 7
-    THEN 'retained'
-    ELSE 'resurrected'
+    THEN ''retained''
+    ELSE ''resurrected''
   END AS state
 FROM sequenced
 UNION ALL
 SELECT
   user_id,
   lapse_key AS period_key,
-  CAST(DATEADD(DAY, lapse_key, CAST('1970-01-05' AS DATE)) AS DATE) AS period_start,
-  'churned' AS state
-FROM lapsed;
+  CAST(DATEADD(DAY, lapse_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS period_start,
+  ''churned'' AS state
+FROM lapsed';
 
 -- growth_accounting
-CREATE OR ALTER VIEW [growth].growth_accounting AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].growth_accounting AS
 WITH sqlgen_source AS (
   SELECT
     [user_id] AS sqlgen_user,
@@ -202,7 +209,7 @@ WITH sqlgen_source AS (
     NOT [user_id] IS NULL
     AND NOT [occurred_at] IS NULL
     AND (
-      [event_name] <> 'push_received'
+      [event_name] <> ''push_received''
     )
 ), dated AS (
   SELECT
@@ -214,8 +221,8 @@ WITH sqlgen_source AS (
     user_id AS user_id,
     activity_date AS activity_date,
     (
-      DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) - (
-        DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) + 700000
+      DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), activity_date) - (
+        DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), activity_date) + 700000
       ) % 7
     ) AS period_key
   FROM dated
@@ -259,8 +266,8 @@ WITH sqlgen_source AS (
     last_key AS last_key,
     data_through AS data_through,
     (
-      DATEDIFF(DAY, CAST('1970-01-05' AS DATE), DATEADD(DAY, 1, data_through)) - (
-        DATEDIFF(DAY, CAST('1970-01-05' AS DATE), DATEADD(DAY, 1, data_through)) + 700000
+      DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), DATEADD(DAY, 1, data_through)) - (
+        DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), DATEADD(DAY, 1, data_through)) + 700000
       ) % 7
     ) AS after_data_key
   FROM data_range
@@ -317,8 +324,8 @@ WITH sqlgen_source AS (
     COALESCE(t.resurrected_tally, 0) AS resurrected_count,
     CASE
       WHEN c.calendar_key = e.last_key AND e.after_data_key = e.last_key
-      THEN 'in_progress'
-      ELSE 'complete'
+      THEN ''in_progress''
+      ELSE ''complete''
     END AS status
   FROM calendar AS c
   CROSS JOIN data_edge AS e
@@ -347,7 +354,7 @@ WITH sqlgen_source AS (
   FROM sequenced_totals
 )
 SELECT
-  CAST(DATEADD(DAY, calendar_key, CAST('1970-01-05' AS DATE)) AS DATE) AS period_start,
+  CAST(DATEADD(DAY, calendar_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS period_start,
   active_count AS active_users,
   previous_count AS previous_active_users,
   new_count AS new_users,
@@ -360,10 +367,10 @@ SELECT
   CAST(churned_count AS FLOAT) / NULLIF(previous_count, 0) AS churn_rate,
   status AS period_status,
   calendar_key AS period_key
-FROM balanced;
+FROM balanced';
 
 -- cohort_retention
-CREATE OR ALTER VIEW [growth].cohort_retention AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].cohort_retention AS
 WITH sqlgen_source AS (
   SELECT
     [user_id] AS sqlgen_user,
@@ -373,7 +380,7 @@ WITH sqlgen_source AS (
     NOT [user_id] IS NULL
     AND NOT [occurred_at] IS NULL
     AND (
-      [event_name] <> 'push_received'
+      [event_name] <> ''push_received''
     )
 ), dated AS (
   SELECT
@@ -385,8 +392,8 @@ WITH sqlgen_source AS (
     user_id AS user_id,
     activity_date AS activity_date,
     (
-      DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) - (
-        DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) + 700000
+      DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), activity_date) - (
+        DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), activity_date) + 700000
       ) % 7
     ) AS period_key
   FROM dated
@@ -482,9 +489,9 @@ WITH sqlgen_source AS (
     s.size_key + 7 * g.age_number <= r.last_data_key
 )
 SELECT
-  CAST(DATEADD(DAY, t.cell_cohort_key, CAST('1970-01-05' AS DATE)) AS DATE) AS cohort_start,
+  CAST(DATEADD(DAY, t.cell_cohort_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS cohort_start,
   t.cell_age AS age,
-  CAST(DATEADD(DAY, t.cell_key, CAST('1970-01-05' AS DATE)) AS DATE) AS period_start,
+  CAST(DATEADD(DAY, t.cell_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS period_start,
   t.cell_size AS cohort_users,
   COALESCE(c.active_count, 0) AS active_users,
   CAST(COALESCE(c.active_count, 0) AS FLOAT) / NULLIF(t.cell_size, 0) AS retention_rate,
@@ -492,10 +499,10 @@ SELECT
   t.cell_key AS period_key
 FROM triangle AS t
 LEFT JOIN cohort_actives AS c
-  ON c.active_cohort_key = t.cell_cohort_key AND c.active_key = t.cell_key;
+  ON c.active_cohort_key = t.cell_cohort_key AND c.active_key = t.cell_key';
 
 -- engagement_depth
-CREATE OR ALTER VIEW [growth].engagement_depth AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].engagement_depth AS
 WITH sqlgen_source AS (
   SELECT
     [user_id] AS sqlgen_user,
@@ -505,7 +512,7 @@ WITH sqlgen_source AS (
     NOT [user_id] IS NULL
     AND NOT [occurred_at] IS NULL
     AND (
-      [event_name] <> 'push_received'
+      [event_name] <> ''push_received''
     )
 ), dated AS (
   SELECT
@@ -517,8 +524,8 @@ WITH sqlgen_source AS (
     user_id AS user_id,
     activity_date AS activity_date,
     (
-      DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) - (
-        DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) + 700000
+      DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), activity_date) - (
+        DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), activity_date) + 700000
       ) % 7
     ) AS period_key
   FROM dated
@@ -613,7 +620,7 @@ WITH sqlgen_source AS (
       WHEN calendar_key = final_key
       THEN DATEDIFF(
         DAY,
-        CAST(DATEADD(DAY, calendar_key, CAST('1970-01-05' AS DATE)) AS DATE),
+        CAST(DATEADD(DAY, calendar_key, CAST(''1970-01-05'' AS DATE)) AS DATE),
         through_date
       ) + 1
       ELSE 7
@@ -637,23 +644,23 @@ WITH sqlgen_source AS (
     d.day_count <= s.span_days
 )
 SELECT
-  CAST(DATEADD(DAY, c.cell_key, CAST('1970-01-05' AS DATE)) AS DATE) AS period_start,
+  CAST(DATEADD(DAY, c.cell_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS period_start,
   c.cell_days AS active_days,
   COALESCE(d.depth_users, 0) AS users,
   CAST(COALESCE(d.depth_users, 0) AS FLOAT) / NULLIF(COALESCE(t.total_users, 0), 0) AS share_of_active_users,
   CAST(COALESCE(t.total_user_days, 0) AS FLOAT) / NULLIF(c.cell_seen * COALESCE(t.total_users, 0), 0) AS daily_to_period_ratio,
   COALESCE(t.total_users, 0) AS period_active_users,
   c.cell_seen AS observed_days,
-  CASE WHEN c.cell_seen < c.cell_span THEN 'in_progress' ELSE 'complete' END AS period_status,
+  CASE WHEN c.cell_seen < c.cell_span THEN ''in_progress'' ELSE ''complete'' END AS period_status,
   c.cell_key AS period_key
 FROM cells AS c
 LEFT JOIN depth_counts AS d
   ON d.depth_key = c.cell_key AND d.depth_days = c.cell_days
 LEFT JOIN period_totals AS t
-  ON t.total_key = c.cell_key;
+  ON t.total_key = c.cell_key';
 
 -- trailing_activity
-CREATE OR ALTER VIEW [growth].trailing_activity AS
+EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].trailing_activity AS
 WITH sqlgen_source AS (
   SELECT
     [user_id] AS sqlgen_user,
@@ -663,7 +670,7 @@ WITH sqlgen_source AS (
     NOT [user_id] IS NULL
     AND NOT [occurred_at] IS NULL
     AND (
-      [event_name] <> 'push_received'
+      [event_name] <> ''push_received''
     )
 ), dated AS (
   SELECT
@@ -673,7 +680,7 @@ WITH sqlgen_source AS (
 ), numbered AS (
   SELECT
     user_id AS day_user,
-    DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) AS day_number
+    DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), activity_date) AS day_number
   FROM dated
   WHERE
     NOT activity_date IS NULL
@@ -887,7 +894,7 @@ WITH sqlgen_source AS (
   FROM running
 )
 SELECT
-  CAST(DATEADD(DAY, grid_day, CAST('1970-01-05' AS DATE)) AS DATE) AS day,
+  CAST(DATEADD(DAY, grid_day, CAST(''1970-01-05'' AS DATE)) AS DATE) AS day,
   grid_window AS window_days,
   active_tally AS active_users,
   previous_tally AS previous_active_users,
@@ -897,4 +904,6 @@ SELECT
   churned_tally AS churned_users,
   CAST(active_tally - retained_tally AS FLOAT) / NULLIF(churned_tally, 0) AS quick_ratio,
   grid_day AS day_key
-FROM tallied;
+FROM tallied';
+
+COMMIT TRANSACTION;
