@@ -113,7 +113,7 @@ VIEWS: tuple[View, ...] = (
          ("revenue", "revenue counted in the period: the customer's period total when "
                      "positive, else 0 (DECIMAL, the amount's scale)"),
          ("previous_revenue", "revenue counted in the previous period"),
-         ("state", "new, expansion, contraction, retained-flat, resurrected or churned; "
+         ("state", "new, expansion, contraction, retained_flat, resurrected or churned; "
                    "no_revenue for a zero or negative total after a period without revenue"),
          ("new_revenue", "revenue of a customer paying for the first time"),
          ("expansion_revenue", "revenue - previous_revenue when both are positive and it grew"),

@@ -9,7 +9,7 @@ out step by step, differently from the SQL (which works on integer units and seg
 - *Revenue* of a customer in a period is the period total when it is positive, else 0: a
   zero or negative total (refunds, credits) counts as no revenue and is flagged.
 - Per customer and period with revenue now or before: new (first period with revenue),
-  expansion / contraction / retained-flat (revenue in both periods: more, less, the same),
+  expansion / contraction / retained_flat (revenue in both periods: more, less, the same),
   resurrected (revenue now, none in the previous period, some before), churned (revenue in
   the previous period, none now; never after the last period); no_revenue for a zero or
   negative total after a period without revenue.
@@ -192,7 +192,7 @@ def _state(current, previous, period, first_paid):
     if current > 0 and previous > 0:
         if current > previous:
             return "expansion"
-        return "contraction" if current < previous else "retained-flat"
+        return "contraction" if current < previous else "retained_flat"
     if current > 0:
         return "new" if period == first_paid else "resurrected"
     return "churned" if previous > 0 else "no_revenue"
@@ -275,7 +275,7 @@ def _accounting_row(period, rows):
         "churned_customers": states.count("churned"),
         "retained_customers": sum(1 for r in rows if r["revenue"] > 0
                                   and r["previous_revenue"] > 0),
-        "flat_customers": states.count("retained-flat"),
+        "flat_customers": states.count("retained_flat"),
         "quick_ratio": _ratio(new + res + exp, churn + con),
         "gross_revenue_retention": _ratio(prev - churn - con, prev),
         "net_revenue_retention": _ratio(prev - churn - con + exp, prev),
