@@ -96,6 +96,9 @@ VIEWS: tuple[View, ...] = (
          ("invalid_rows", "subscriptions kept by `where` but left out: an unknown interval or "
                           "an end not after the start (always 0 for charges)"),
          ("counted_rows", "rows counted"),
+         ("no_run_rate_rows", "subscriptions with `measure: run_rate` only: counted rows that "
+                              "start and end inside one period, so in force at no period's "
+                              "end and in no period's run rate"),
          ("first_date", "earliest local date counted: a charge's date or a subscription's "
                         "start (DATE)"),
          ("last_date", "newest local date counted: a charge's date, or a subscription's start "
@@ -122,8 +125,10 @@ VIEWS: tuple[View, ...] = (
                                  "shrank"),
          ("churned_revenue", "previous_revenue of a customer without revenue now"),
          ("retained_revenue", "the part of previous_revenue kept: the smaller of the two"),
-         ("period_amount", "total of the customer's charges (or subscription shares) in the "
-                           "period before the zero/negative rule; NULL when it has none"),
+         ("period_amount", "total of the customer's charges in the period, or of its "
+                           "subscriptions' monthly amounts in force at the period's end "
+                           "(run rate) or shares of the period (recognized), before the "
+                           "zero/negative rule; NULL when it has none"),
          ("counted_as_zero", "1 when period_amount is zero or negative and counts as no "
                              "revenue, else 0")),
         personal_data=True, enabled=lambda spec: spec.revenue is not None),
