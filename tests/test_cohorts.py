@@ -250,8 +250,7 @@ def test_revenue_cohorts_hand_example(engines, engine_name, target):
 
 
 @pytest.mark.parametrize("engine_name,target", PAIRS)
-@pytest.mark.parametrize("fixture", sorted(rr.REVENUE_FIXTURES))
-@pytest.mark.parametrize("grain,week_start", GRAINS)
+@pytest.mark.parametrize("fixture,grain,week_start", rr.fixture_cases(GRAINS))
 def test_revenue_fixture_matches_reference(engines, engine_name, target, fixture, grain,
                                            week_start):
     shape, measure = rr.REVENUE_FIXTURES[fixture][0], rr.REVENUE_FIXTURES[fixture][3]

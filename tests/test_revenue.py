@@ -236,8 +236,7 @@ def _fixture_spec_args(name):
 
 
 @pytest.mark.parametrize("engine_name,target", PAIRS)
-@pytest.mark.parametrize("fixture", sorted(rr.REVENUE_FIXTURES))
-@pytest.mark.parametrize("grain,week_start", GRAINS)
+@pytest.mark.parametrize("fixture,grain,week_start", rr.fixture_cases(GRAINS))
 def test_fixture_matches_reference(engines, engine_name, target, fixture, grain, week_start):
     shape, kind = _fixture_spec_args(fixture)
     measure = rr.REVENUE_FIXTURES[fixture][3]
