@@ -27,6 +27,7 @@ WEEKDAYS = ("monday", "tuesday", "wednesday", "thursday", "friday", "saturday", 
 TIMESTAMP_TYPES = ("timestamp", "timestamptz", "date")
 REVENUE_SHAPES = ("charges", "subscriptions")
 INTERVALS = ("month", "quarter", "year")
+MEASURES = ("run_rate", "recognized")
 MAX_SCALE = 6
 MAX_WINDOW_DAYS = 366
 
@@ -100,6 +101,11 @@ KEYS: tuple[Key, ...] = (
         "Subscriptions: column holding each row's billing interval instead: `month`, "
         "`quarter` or `year` (or `monthly`, `quarterly`, `yearly`; any case).",
         example="billing_interval"),
+    Key("revenue.measure", "choice",
+        "Subscriptions: what a period's revenue is. `run_rate`: the monthly amount (amount / "
+        "months in the interval) of every subscription in force at the period's end, at "
+        "every grain; `recognized`: each subscription apportioned to the days it covers in "
+        "the period (see docs/revenue.md).", default="run_rate", choices=MEASURES),
     Key("revenue.timestamp_type", "choice",
         "Type of the timestamp, start and end columns, as for `activity.timestamp_type`.",
         default="timestamp", choices=TIMESTAMP_TYPES),
@@ -154,7 +160,8 @@ class RevenueSource:
     """Where recurring revenue comes from: a charges or a subscriptions table.
 
     Charges use ``timestamp``; subscriptions use ``start``, ``end`` (optional) and either a
-    fixed ``interval`` or an ``interval_column``. ``scale`` is the amount's DECIMAL scale.
+    fixed ``interval`` or an ``interval_column``, and a ``measure`` (None for charges).
+    ``scale`` is the amount's DECIMAL scale.
     """
 
     shape: str
@@ -170,6 +177,7 @@ class RevenueSource:
     timestamp_type: str
     where: str | None
     timezone: str | None
+    measure: str | None = None  # subscriptions only: run_rate or recognized
 
 
 @dataclass(frozen=True)
@@ -218,6 +226,8 @@ class Spec:
         data = {name: asdict(v) if is_dataclass(v) else v for name, v in data.items()}
         if data.get("revenue") is None:
             data.pop("revenue", None)  # specs without revenue keep their earlier hash
+        elif data["revenue"]["measure"] in (None, "recognized"):
+            data["revenue"].pop("measure")  # nor do charges, nor recognized (as before)
         for name, off in (("cohorts", False), ("engagement", False), ("trailing_windows", [])):
             if data.get(name) == off:
                 data.pop(name)  # nor do specs without these views
@@ -296,7 +306,7 @@ def _date_zone_check(checker: _Checker, section: Node, name: str, v: dict[str, A
 
 
 _SHAPE_KEYS = {"charges": ("timestamp",), "subscriptions": ("start", "end", "interval",
-                                                            "interval_column")}
+                                                            "interval_column", "measure")}
 _SHAPE_NEEDS = {"charges": "timestamp", "subscriptions": "start"}
 
 
@@ -351,7 +361,8 @@ def _build_revenue(v: dict[str, Any]) -> RevenueSource | None:
         interval=v["revenue.interval"],
         interval_column=None if charges else v["revenue.interval_column"],
         timestamp_type=v["revenue.timestamp_type"], where=v["revenue.where"],
-        timezone=v["revenue.timezone"])
+        timezone=v["revenue.timezone"],
+        measure=None if charges else v["revenue.measure"])
 
 
 def _suggest(word: str, options: list[str] | tuple[str, ...]) -> str:

@@ -103,6 +103,9 @@ VIEWS: tuple[View, ...] = (
          ("invalid_rows", "subscriptions kept by `where` but left out: an unknown interval or "
                           "an end not after the start (always 0 for charges)"),
          ("counted_rows", "rows counted"),
+         ("no_run_rate_rows", "subscriptions with `measure: run_rate` only: counted rows that "
+                              "start and end inside one period, so in force at no period's "
+                              "end and in no period's run rate"),
          ("first_date", "earliest local date counted: a charge's date or a subscription's "
                         "start (DATE)"),
          ("last_date", "newest local date counted: a charge's date, or a subscription's start "
@@ -120,7 +123,7 @@ VIEWS: tuple[View, ...] = (
          ("revenue", "revenue counted in the period: the customer's period total when "
                      "positive, else 0 (DECIMAL, the amount's scale)"),
          ("previous_revenue", "revenue counted in the previous period"),
-         ("state", "new, expansion, contraction, retained-flat, resurrected or churned; "
+         ("state", "new, expansion, contraction, retained_flat, resurrected or churned; "
                    "no_revenue for a zero or negative total after a period without revenue"),
          ("new_revenue", "revenue of a customer paying for the first time"),
          ("expansion_revenue", "revenue - previous_revenue when both are positive and it grew"),
@@ -129,8 +132,10 @@ VIEWS: tuple[View, ...] = (
                                  "shrank"),
          ("churned_revenue", "previous_revenue of a customer without revenue now"),
          ("retained_revenue", "the part of previous_revenue kept: the smaller of the two"),
-         ("period_amount", "total of the customer's charges (or subscription shares) in the "
-                           "period before the zero/negative rule; NULL when it has none"),
+         ("period_amount", "total of the customer's charges in the period, or of its "
+                           "subscriptions' monthly amounts in force at the period's end "
+                           "(run rate) or shares of the period (recognized), before the "
+                           "zero/negative rule; NULL when it has none"),
          ("counted_as_zero", "1 when period_amount is zero or negative and counts as no "
                              "revenue, else 0")),
         personal_data=True, enabled=lambda spec: spec.revenue is not None, reads="revenue"),

@@ -69,7 +69,7 @@ WITH {{ r.source_rows() }}, counted AS (
         CASE
           WHEN current_amount > previous_amount THEN 'expansion'
           WHEN current_amount < previous_amount THEN 'contraction'
-          ELSE 'retained-flat'
+          ELSE 'retained_flat'
         END
       WHEN current_amount > 0 AND revenue_key = first_paid_key THEN 'new'
       WHEN current_amount > 0 THEN 'resurrected'

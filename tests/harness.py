@@ -138,8 +138,10 @@ def revenue_table(target: str, shape: str) -> str:
 def revenue_spec_text(target: str, shape: str = "charges", grain: str = "month",
                       week_start: str = "monday", kind: str = "timestamp",
                       timezone: str | None = None, where: str | None = None,
-                      interval: str | None = None, scale: int = 2, extra: str = "") -> str:
-    """A revenue-only spec over the test table of ``shape`` (see load_revenue)."""
+                      interval: str | None = None, scale: int = 2, extra: str = "",
+                      measure: str | None = None) -> str:
+    """A revenue-only spec over the test table of ``shape`` (see load_revenue); ``measure``
+    (subscriptions) is left to its default when None."""
     lines = ["version: 1", "revenue:", f"  shape: {shape}",
              f"  table: {revenue_table(target, shape)}", "  customer: account_id",
              "  amount: amount", f"  scale: {scale}", f"  timestamp_type: {kind}"]
@@ -148,6 +150,8 @@ def revenue_spec_text(target: str, shape: str = "charges", grain: str = "month",
     else:
         lines += ["  start: started_at", "  end: ended_at",
                   f"  interval: {interval}" if interval else "  interval_column: billing_interval"]
+        if measure:
+            lines.append(f"  measure: {measure}")
     if where:
         lines.append(f"  where: \"{where}\"")
     if timezone:

@@ -179,9 +179,11 @@ def test_fader_hardie_table(engines, engine_name, target):
 REVENUE_KEYS = ("cohort_start", "age")
 
 
-def expected_revenue_cohorts(rows, shape, grain, week_start="monday", keep_currency=None):
+def expected_revenue_cohorts(rows, shape, grain, week_start="monday", keep_currency=None,
+                             measure="run_rate"):
     """The reference: tests/reference_revenue.py's customer revenue, then cohorts of it."""
-    views = rr.revenue_views(rows, shape, grain, week_start, keep_currency=keep_currency)
+    views = rr.revenue_views(rows, shape, grain, week_start, keep_currency=keep_currency,
+                             measure=measure)
     last_date = views["revenue_source_summary"][0]["last_date"]
     return rc.revenue_cohorts(views["customer_revenue"], last_date, grain, week_start)
 
@@ -248,16 +250,17 @@ def test_revenue_cohorts_hand_example(engines, engine_name, target):
 
 
 @pytest.mark.parametrize("engine_name,target", PAIRS)
-@pytest.mark.parametrize("fixture", sorted(rr.REVENUE_FIXTURES))
-@pytest.mark.parametrize("grain,week_start", GRAINS)
+@pytest.mark.parametrize("fixture,grain,week_start", rr.fixture_cases(GRAINS))
 def test_revenue_fixture_matches_reference(engines, engine_name, target, fixture, grain,
                                            week_start):
-    shape = rr.REVENUE_FIXTURES[fixture][0]
+    shape, measure = rr.REVENUE_FIXTURES[fixture][0], rr.REVENUE_FIXTURES[fixture][3]
     rows = rr.read_fixture_rows(fixture)
     kind = "timestamp" if shape == "charges" else "date"
     cells = run_revenue_cohorts(engines(engine_name), target, rows, shape=shape, kind=kind,
-                                grain=grain, week_start=week_start, where="currency = 'EUR'")
-    expected = expected_revenue_cohorts(rows, shape, grain, week_start, rr.KEEP_CURRENCY)
+                                grain=grain, week_start=week_start, where="currency = 'EUR'",
+                                measure=measure)
+    expected = expected_revenue_cohorts(rows, shape, grain, week_start, rr.KEEP_CURRENCY,
+                                        measure)
     assert_rows_match(cells, expected, REVENUE_KEYS, rc.REVENUE_COHORT_COLUMNS)
     assert_revenue_cohorts_consistent(cells)
 

@@ -37,7 +37,8 @@ output:
   schema: growth
 """
 
-# Revenue: the subscriptions shape at every grain (revenue_<grain>), charges at month grain.
+# Revenue: the subscriptions shape at every grain, pro rata (revenue_<grain>) and run rate
+# (revenue_run_rate_<grain>), and charges at month grain.
 REVENUE_SPEC = """\
 version: 1
 revenue:
@@ -48,6 +49,7 @@ revenue:
   end: ended_at
   amount: amount
   interval_column: billing_interval
+  measure: recognized
   where: "currency = 'EUR'"
 grain: {grain}
 cohorts: true
@@ -59,9 +61,12 @@ output:
 CHARGES_SPEC = REVENUE_SPEC.replace("  shape: subscriptions\n", "").replace(
     "billing.subscriptions", "billing.invoice_lines").replace(
     "  start: started_at\n  end: ended_at\n", "  timestamp: invoiced_at\n").replace(
-    "  interval_column: billing_interval\n", "")
+    "  interval_column: billing_interval\n", "").replace("  measure: recognized\n", "")
+RUN_RATE_SPEC = REVENUE_SPEC.replace("  measure: recognized\n", "")
 SPECS = {label: (SPEC, grain) for label, grain in GRAINS.items()}
 SPECS.update({f"revenue_{label}": (REVENUE_SPEC, grain) for label, grain in GRAINS.items()})
+SPECS.update({f"revenue_run_rate_{label}": (RUN_RATE_SPEC, grain)
+              for label, grain in GRAINS.items()})
 SPECS["revenue_charges_month"] = (CHARGES_SPEC, GRAINS["month"])
 
 

@@ -37,7 +37,7 @@ CASES = [
      ["s.yml:3:3: revenue.amount: required key is missing from revenue; e.g. amount: amount",
       "s.yml:6:3: revenue.amonut: unknown key. Did you mean 'amount'? Allowed here: shape, "
       "table, customer, timestamp, amount, scale, start, end, interval, interval_column, "
-      "timestamp_type, where, timezone"]),
+      "measure, timestamp_type, where, timezone"]),
     ("shape", CHARGES.replace("revenue:\n", "revenue:\n  shape: subscription\n"),
      ["s.yml:3:10: revenue.shape: 'subscription' is not one of charges, subscriptions. "
       "Did you mean 'subscriptions'?"]),
@@ -57,6 +57,13 @@ CASES = [
                                              "  interval: yearly"),
      ["s.yml:9:13: revenue.interval: 'yearly' is not one of month, quarter, year. "
       "Did you mean 'year'?"]),
+    ("measure on charges", CHARGES.replace("  amount: amount",
+                                           "  amount: amount\n  measure: recognized"),
+     ["s.yml:7:3: revenue.measure: only used with shape: subscriptions; remove it or set "
+      "shape: subscriptions"]),
+    ("measure spelling", SUBSCRIPTIONS.replace("grain:", "  measure: recognised\ngrain:"),
+     ["s.yml:10:12: revenue.measure: 'recognised' is not one of run_rate, recognized. "
+      "Did you mean 'recognized'?"]),
     ("scale", CHARGES.replace("  amount: amount", "  amount: amount\n  scale: 2.5"),
      ["s.yml:7:10: revenue.scale: expected a whole number of decimal places from 0 to 6, "
       "got 2.5"]),
@@ -101,6 +108,25 @@ def test_subscriptions_spec_model():
     assert (revenue.shape, revenue.start, revenue.end, revenue.interval_column,
             revenue.timestamp) == ("subscriptions", ("started_at", False), ("ended_at", False),
                                    ("billing_interval", False), None)
+
+
+def test_subscriptions_measure():
+    """Run rate by default; recognized on request; charges have no measure."""
+    assert parse_spec(SUBSCRIPTIONS, "s.yml").revenue.measure == "run_rate"
+    text = SUBSCRIPTIONS.replace("grain:", "  measure: recognized\ngrain:")
+    assert parse_spec(text, "s.yml").revenue.measure == "recognized"
+    assert parse_spec(CHARGES, "s.yml").revenue.measure is None
+
+
+def test_charges_spec_hash_unchanged_by_measure():
+    """The measure key came after specs were hashed. Charges specs and `measure: recognized`
+    (what subscriptions meant before) keep the digest they had (the values below are
+    CHARGES' and SUBSCRIPTIONS' digests before the key existed); the run-rate default
+    changes a subscriptions spec's digest, since it changes its output."""
+    assert parse_spec(CHARGES, "s.yml").digest() == "ac5e607ca8c1bbbd"
+    text = SUBSCRIPTIONS.replace("grain:", "  measure: recognized\ngrain:")
+    assert parse_spec(text, "s.yml").digest() == "b0386c1d420564c7"
+    assert parse_spec(SUBSCRIPTIONS, "s.yml").digest() != "b0386c1d420564c7"
 
 
 def test_activity_only_spec_hash_ignores_revenue(monkeypatch):

@@ -31,7 +31,7 @@ WITH tallies AS (
     COUNT(CASE WHEN state = 'contraction' THEN 1 END) AS contraction_count,
     COUNT(CASE WHEN state = 'churned' THEN 1 END) AS churned_count,
     COUNT(CASE WHEN revenue > 0 AND previous_revenue > 0 THEN 1 END) AS retained_count,
-    COUNT(CASE WHEN state = 'retained-flat' THEN 1 END) AS flat_count,
+    COUNT(CASE WHEN state = 'retained_flat' THEN 1 END) AS flat_count,
     COUNT(CASE WHEN counted_as_zero = 1 THEN 1 END) AS zeroed_count
   FROM "finance".customer_revenue
   GROUP BY

@@ -246,7 +246,7 @@ WITH sqlgen_source AS (
         THEN 'expansion'
         WHEN current_amount < previous_amount
         THEN 'contraction'
-        ELSE 'retained-flat'
+        ELSE 'retained_flat'
       END
       WHEN current_amount > 0 AND revenue_key = first_paid_key
       THEN 'new'
