@@ -58,9 +58,12 @@ class SpecError(SqlgenError):
 class UnsupportedError(SqlgenError):
     """A spec option that a target dialect cannot express correctly."""
 
-    def __init__(self, dialect: str, key: str, reason: str):
+    def __init__(self, dialect: str, key: str, reason: str, at: str = ""):
         self.dialect, self.key, self.reason = dialect, key, reason
-        super().__init__(f"dialect {dialect!r} cannot generate {key}: {reason}")
+        if at:  # a spec value's file:line:col (a where filter's)
+            super().__init__(f"{at}: {key}: dialect {dialect!r} cannot express {reason}")
+        else:
+            super().__init__(f"dialect {dialect!r} cannot generate {key}: {reason}")
 
 
 class OutputError(SqlgenError):

@@ -17,7 +17,7 @@ from typing import Any, Callable
 from . import names
 from .dialects import TARGETS, target_names
 from .errors import Problem, SpecError
-from .filters import parse_filter
+from .filters import known_function, parse_filter
 from .source import Node, parse_yaml, read_spec_text
 
 GRAINS = ("day", "week", "month", "quarter", "year")
@@ -58,7 +58,8 @@ KEYS: tuple[Key, ...] = (
         default="timestamp", choices=TIMESTAMP_TYPES),
     Key("activity.where", "filter",
         "Optional condition selecting which rows count as activity; one boolean SQL expression "
-        "over the table's columns, in the spec's dialect.",
+        "over the table's columns, in the spec's dialect, using only the operations listed in "
+        "docs/filters.md.",
         example="event_name <> 'push_received'"),
     Key("activity.timezone", "timezone",
         "Optional reporting time zone (IANA name). Timestamps are converted to local time in "
@@ -130,6 +131,12 @@ KEYS: tuple[Key, ...] = (
         f"Window lengths in days for `trailing_activity`: distinct whole numbers from 1 to "
         f"{MAX_WINDOW_DAYS}, e.g. `[7, 28]`; leave out (or `[]`) for no such view.",
         example="[7, 28]"),
+    Key("allow_functions", "functions",
+        "Optional list of further function names the `where` filters may call, e.g. "
+        "`[is_internal_account]`: a trust decision. These functions run with the privileges of "
+        "whoever creates the views and are read by everyone who queries them; sqlgen passes "
+        "them through verbatim and cannot check that every target has them.",
+        example="[is_internal_account]"),
 )
 
 KEYS_BY_PATH = {key.path: key for key in KEYS}
@@ -190,11 +197,21 @@ class Spec:
     trailing_windows: tuple[int, ...] = ()
     file: str = field(default="spec.yml", compare=False)
     revenue: RevenueSource | None = None
+    allow_functions: tuple[str, ...] = ()
+    # (spec key, "file:line:col") of each where filter, for messages; not part of its meaning
+    where_at: tuple[tuple[str, str], ...] = field(default=(), compare=False)
+
+    def located(self, key: str) -> str:
+        """``file:line:col`` of a filter key's value, or the file alone."""
+        return dict(self.where_at).get(key, self.file)
 
     def digest(self) -> str:
         """A short stable hash of the spec's meaning (not its formatting)."""
         data = asdict(self)
         data.pop("file")
+        data.pop("where_at")
+        if not data.get("allow_functions"):
+            data.pop("allow_functions")  # specs without it keep their earlier hash
         if data.get("revenue") is None:
             data.pop("revenue", None)  # specs without revenue keep their earlier hash
         for name, off in (("cohorts", False), ("engagement", False), ("trailing_windows", [])):
@@ -218,7 +235,7 @@ def parse_spec(text: str, filename: str = "spec.yml") -> Spec:
     _cross_checks(checker, root, values)
     if checker.problems:
         raise SpecError(checker.problems)
-    return _build(values, filename)
+    return _build(values, filename, checker.where_at)
 
 
 def _cross_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
@@ -285,7 +302,7 @@ def _revenue_shape_checks(checker: _Checker, section: Node, v: dict[str, Any]) -
                        "give interval (one value for every row) or interval_column, not both")
 
 
-def _build(v: dict[str, Any], filename: str) -> Spec:
+def _build(v: dict[str, Any], filename: str, where_at: list[tuple[str, str]]) -> Spec:
     activity = None
     if v.get("activity"):
         activity = ActivitySource(
@@ -297,7 +314,8 @@ def _build(v: dict[str, Any], filename: str) -> Spec:
     return Spec(version=v["version"], activity=activity, grain=v["grain"],
                 week_start=v["week_start"], output=output, cohorts=v["cohorts"],
                 engagement=v["engagement"], trailing_windows=tuple(v["trailing_windows"] or ()),
-                file=os.path.basename(filename), revenue=_build_revenue(v))
+                file=os.path.basename(filename), revenue=_build_revenue(v),
+                allow_functions=tuple(v["allow_functions"] or ()), where_at=tuple(where_at))
 
 
 def _build_revenue(v: dict[str, Any]) -> RevenueSource | None:
@@ -329,6 +347,8 @@ class _Checker:
         self.problems: list[Problem] = []
         self.values: dict[str, Any] = {}
         self.dialect = "duckdb"
+        self.allow_functions: tuple[str, ...] = ()
+        self.where_at: list[tuple[str, str]] = []
 
     def report(self, node_pos: tuple[int, int], key: str, message: str) -> None:
         self.problems.append(Problem(self.filename, node_pos[0], node_pos[1], key, message))
@@ -345,8 +365,10 @@ class _Checker:
                 path = f"{prefix}.{name}" if prefix else name
                 self.report(pos, path, f"unknown key.{_suggest(name, allowed)} "
                             f"Allowed here: {', '.join(allowed)}")
-        dialect_key = [k for k in children if k.path == "output.dialect"]
-        for key in dialect_key + [k for k in children if k.path != "output.dialect"]:
+        # The dialect and allow_functions first: the where filters are read with them.
+        first = sorted((k for k in children if k.path in _READ_FIRST),
+                       key=lambda k: _READ_FIRST.index(k.path))
+        for key in first + [k for k in children if k.path not in _READ_FIRST]:
             self.key(node, key)
         if prefix == "" and "output" not in node.value:
             self.section(Node({}, node.line, node.col), "output")
@@ -369,11 +391,16 @@ class _Checker:
             self.values[key.path] = True  # the section is present
             self.section(child, key.path)
             return
+        if key.kind == "filter":
+            self.where_at.append((key.path, f"{self.filename}:{child.line}:{child.col}"))
         try:
             self.values[key.path] = _CHECKS[key.kind](self, key, child.value)
         except ValueError as err:
             self.values[key.path] = key.default
             self.report((child.line, child.col), key.path, str(err))
+
+
+_READ_FIRST = ("output", "output.dialect", "allow_functions")
 
 
 def _requires_keys(section: str) -> bool:
@@ -431,8 +458,28 @@ def _check_column(c: _Checker, key: Key, value: Any) -> names.Part:
 
 def _check_filter(c: _Checker, _key: Key, value: Any) -> str:
     text = _text(value, "an SQL condition as text").strip()
-    parse_filter(text, c.dialect)
+    parse_filter(text, c.dialect, c.allow_functions)
     return text
+
+
+def _check_functions(c: _Checker, _key: Key, value: Any) -> tuple[str, ...]:
+    if not isinstance(value, list):
+        raise ValueError(f"expected a list of function names, e.g. [is_internal_account]; "
+                         f"got {value!r}")
+    found: list[str] = []
+    for item in value:
+        name = item.value
+        if not isinstance(name, str) or not names.BARE.fullmatch(name):
+            raise ValueError(f"{name!r} is not a function name (letters, digits and _)")
+        if name.lower() in found:
+            raise ValueError(f"{name!r} appears more than once")
+        if known_function(name, c.dialect):
+            raise ValueError(f"{name!r} is a function sqlgen's parser knows, and it is not on "
+                             "the list in docs/filters.md; allow_functions admits only "
+                             "functions it does not know")
+        found.append(name.lower())
+    c.allow_functions = tuple(found)
+    return tuple(found)
 
 
 def _check_timezone(_c: _Checker, _key: Key, value: Any) -> str:
@@ -498,4 +545,5 @@ _CHECKS: dict[str, Callable[[_Checker, Key, Any], Any]] = {
     "scale": _check_scale,
     "boolean": _check_boolean,
     "windows": _check_windows,
+    "functions": _check_functions,
 }

@@ -6,8 +6,12 @@ supports, executed on a real engine in the tests when ``Target.engine`` is set.
 
 from __future__ import annotations
 
-from .dialects import Target
+from sqlglot import exp
+from sqlglot.errors import ErrorLevel, UnsupportedError as SqlglotUnsupported
+
+from .dialects import Target, filter_feature, rewrites
 from .errors import UnsupportedError
+from .render import filter_tree
 from .spec import Spec
 from .views import VIEWS
 
@@ -71,3 +75,26 @@ def require_support(spec: Spec, target: Target, views: list[str]) -> None:
         status, reason = support(target, feature)
         if status == "unsupported":
             raise UnsupportedError(target.name, key, reason)
+    for key, text in (("activity.where", spec.activity and spec.activity.where),
+                      ("revenue.where", spec.revenue and spec.revenue.where)):
+        if text:
+            require_filter_support(spec, target, key, text)
+
+
+def require_filter_support(spec: Spec, target: Target, key: str, text: str) -> None:
+    """Raise UnsupportedError, located at the filter, for an operation the target lacks
+    (``Target.filter_gaps``) or one sqlglot cannot spell for it."""
+    tree = filter_tree(text, spec)
+    for node in tree.walk():
+        reason = target.filter_gaps.get(filter_feature(node))
+        if reason:
+            raise UnsupportedError(target.name, key, f"{filter_feature(node)}: {reason}",
+                                   at=spec.located(key))
+    for rewrite in rewrites(target):
+        tree = rewrite(tree)
+    try:
+        exp.select("1").where(tree).sql(dialect=target.sqlglot_dialect, copy=False,
+                                         unsupported_level=ErrorLevel.RAISE)
+    except SqlglotUnsupported as err:
+        raise UnsupportedError(target.name, key, str(err).strip().splitlines()[0],
+                               at=spec.located(key)) from None
