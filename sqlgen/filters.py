@@ -121,6 +121,9 @@ _REFUSED: tuple[tuple[type[exp.Expression], str], ...] = (
 )
 
 _KINDS = tuple(a.kind for a in ALLOWED)
+_CAST_TYPES = tuple(exp.DataType.NUMERIC_TYPES | exp.DataType.TEXT_TYPES
+                    | exp.DataType.TEMPORAL_TYPES | {exp.DataType.Type.BOOLEAN})
+_UNIT_HOLDERS = (exp.Interval, exp.Extract, exp.TimestampTrunc, exp.DateTrunc)
 DATE_UNITS = ("DAY", "WEEK", "MONTH", "QUARTER", "YEAR")
 TIME_UNITS = ("HOUR", "MINUTE", "SECOND")
 EXTRACT_UNITS = ("YEAR", "MONTH", "DAY", "HOUR", "MINUTE", "SECOND")
@@ -137,7 +140,8 @@ def parse_filter(text: str, dialect: str, allow_functions: tuple[str, ...] = ())
     except ParseError as err:
         raise ValueError(f"not a valid {dialect} expression: {_first_error(err)}") from None
     except RecursionError:
-        raise ValueError(f"nested too deeply; at most {MAX_DEPTH} levels") from None
+        raise ValueError("nested too deeply for the parser; write it with fewer levels of "
+                         "NOT, CASE or parentheses") from None
     trees = [t for t in trees if t is not None]
     if len(trees) != 1 or any(t.token_type == TokenType.SEMICOLON for t in tokens[:-1]):
         raise ValueError("must be a single expression, not several statements")
@@ -166,13 +170,21 @@ def _tokens(text: str, dialect: str) -> list:
 
 
 def _normalized(tree: exp.Expression) -> exp.Expression:
-    """Spellings of the same operation made one node: ``NOW()`` is CURRENT_TIMESTAMP."""
-    def rewrite(node: exp.Expression) -> exp.Expression:
+    """Spellings of the same operation made one node: ``NOW()`` is CURRENT_TIMESTAMP, and
+    MySQL's ``DATE_SUB(d, INTERVAL 1 DAY)`` is ``d - INTERVAL 1 DAY`` (checked as such)."""
+    def arithmetic(node: exp.Expression) -> exp.Expression:
+        if type(node) in (exp.DateAdd, exp.DateSub) and node.args.get("unit") is not None:
+            interval = exp.Interval(this=node.expression, unit=node.unit)
+            kind = exp.Add if isinstance(node, exp.DateAdd) else exp.Sub
+            return exp.paren(kind(this=node.this, expression=interval), copy=False)
+        return node
+
+    def clock(node: exp.Expression) -> exp.Expression:
         if isinstance(node, exp.Anonymous) and node.name.lower() == "now" \
                 and not node.expressions:
             return exp.CurrentTimestamp()
         return node
-    return tree.transform(rewrite, copy=False)
+    return tree.transform(arithmetic, copy=False).transform(clock, copy=False)
 
 
 def _check(tree: exp.Expression, extra: set[str]) -> exp.Expression:
@@ -194,6 +206,10 @@ def _check_node(node: exp.Expression, extra: set[str]) -> None:
     for kind, what in _REFUSED:
         if isinstance(node, kind):
             raise ValueError(f"{what} is not allowed in a filter{_named(node)}; {_SUGGEST}")
+    if isinstance(node, exp.Div):
+        raise ValueError("division is not allowed in a filter: engines differ (7 / 2 is 3 on "
+                         "Postgres, 3.5 on MySQL); compare a product instead, e.g. "
+                         "amount > 2 * 50 rather than amount / 2 > 50")
     if not isinstance(node, _KINDS + _STRUCTURE):
         raise ValueError(f"{_describe(node)} is not on the list of operations a filter may use "
                          "(docs/filters.md)")
@@ -201,6 +217,12 @@ def _check_node(node: exp.Expression, extra: set[str]) -> None:
         _check_column(node)
     elif isinstance(node, exp.Interval):
         _check_interval(node)
+    elif isinstance(node, exp.Var) and not isinstance(node.parent, _UNIT_HOLDERS):
+        raise ValueError(f"{node.name} is not a column, literal or function; quote a name "
+                         "with special characters")
+    elif isinstance(node, exp.DataType) and not node.is_type(*_CAST_TYPES):
+        raise ValueError(f"a cast to {node.sql()} is not allowed in a filter; cast to a number, "
+                         "text, a date, a timestamp or a boolean")
     elif isinstance(node, exp.Extract):
         _check_unit(node, node.this, EXTRACT_UNITS)
     elif isinstance(node, (exp.TimestampTrunc, exp.DateTrunc)):

@@ -22,6 +22,7 @@ from harness import load_events, names_for, read_view, view_statements
 from hostile import EXIT_SPEC, assert_refused, run_cli
 from sqlgen import cli, compile_spec, parse_spec
 from sqlgen.dialects import TARGETS
+from sqlgen.filters import parse_filter
 from sqlgen.support import require_support
 
 SPEC = """\
@@ -95,8 +96,19 @@ FUNCTIONS = [
     ("unnest", "unnest([1, 2]) = 1", "duckdb", ("table function",)),
     ("explode", "explode(array(1, 2)) = 1", "spark", ("table function", "EXPLODE()")),
     ("greatest", "greatest(amount, 1) > 1", "duckdb", ("GREATEST()",)),
-    ("date_sub-mysql", "occurred_at > DATE_SUB(NOW(), INTERVAL 1 DAY)", "mysql",
-     ("DATE_SUB()",)),
+    ("session-variable-mysql", "@@version = '1'", "mysql", ("SESSIONPARAMETER",)),
+    ("server-variable-tsql", "user_id = @@SPID", "tsql", ("parameter",)),
+    ("current_user", "user_id = current_user", "duckdb", ("CURRENT_USER()",)),
+    ("user-mysql", "user_id = user()", "mysql", ("user()",)),
+    ("version-mysql", "version() = '1'", "mysql", ("VERSION()",)),
+    ("current_schema", "current_schema() = 'x'", "duckdb", ("CURRENT_SCHEMA()",)),
+    ("qualified-function", "pg_catalog.pg_sleep(1) IS NULL", "postgres", ("DOT",)),
+    ("regclass-cast", "'pg_authid'::regclass IS NULL", "postgres", ("a cast to REGCLASS",)),
+    ("array-cast", "CAST(amount AS INT[]) IS NULL", "duckdb", ("a cast to ARRAY",)),
+    ("json-arrow", "payload -> 'a' = 1", "duckdb", ("JSON",)),
+    ("collate", "event_name = 'a' COLLATE NOCASE", "duckdb", ("COLLATE",)),
+    ("struct", "payload = {'a': 1}", "duckdb", ("STRUCT()",)),
+    ("regexp-postgres", "event_name ~ 'a.*'", "postgres", ("REGEXP_LIKE()",)),
 ]
 
 INJECTIONS = [
@@ -136,7 +148,10 @@ INJECTIONS = [
     ("extract-dow", "EXTRACT(DOW FROM occurred_at) = 1", "duckdb", ("takes one of",)),
     ("trunc-week", "date_trunc('week', occurred_at) = DATE '2024-01-01'", "duckdb",
      ("takes one of",)),
-    ("division", "amount / 2 > 1", "duckdb", ("DIV",)),
+    ("division", "amount / 2 > 1", "duckdb", ("division is not allowed",)),
+    ("division-mysql", "amount / 2 > 1", "mysql", ("division is not allowed",)),
+    ("date_sub-on-column-mysql", "DATE_SUB(occurred_at, INTERVAL 1 DAY) > NOW()", "mysql",
+     ("may only be added",)),
 ]
 
 NESTING = [
@@ -236,21 +251,37 @@ def test_refused_by_the_installed_command(tmp_path, where, dialect):
     assert not (tmp_path / "out").exists()
 
 
-# Accepted: each is one string literal. (id, where, spec dialect, the literal's value)
+# Accepted: each is one string literal. (id, literal in the spec's dialect, that dialect,
+# the literal's value)
 LITERALS = [
-    ("mysql-backslash-quote", "event_name = 'x\\' OR 1=1 -- '", "mysql", "x' OR 1=1 -- "),
-    ("doubled-quote", "event_name = 'x'' OR 1=1 -- '", "duckdb", "x' OR 1=1 -- "),
-    ("statement-in-string", "event_name = '; DROP TABLE app_events; --'", "duckdb",
+    ("mysql-backslash-quote", "'x\\' OR 1=1 -- '", "mysql", "x' OR 1=1 -- "),
+    ("mysql-backslash-backslash", "'a\\\\b'", "mysql", "a\\b"),
+    ("doubled-quote", "'x'' OR 1=1 -- '", "duckdb", "x' OR 1=1 -- "),
+    ("statement-in-string", "'; DROP TABLE app_events; --'", "duckdb",
      "; DROP TABLE app_events; --"),
-    ("comment-in-string", "event_name = '*/ DROP TABLE app_events /*'", "postgres",
+    ("unicode-quote-in-string", "'\u2019) OR (1=1'", "duckdb", "\u2019) OR (1=1"),
+    ("comment-in-string", "'*/ DROP TABLE app_events /*'", "postgres",
      "*/ DROP TABLE app_events /*"),
-    ("unicode-quote-in-string", "event_name = '\u2019) OR (1=1'", "duckdb", "\u2019) OR (1=1"),
-    ("backslash-in-standard-string", "event_name = 'a\\b'", "postgres", "a\\b"),
-    ("mysql-backslash-backslash", "event_name = 'a\\\\b'", "mysql", "a\\b"),
+    ("backslash-in-standard-string", "'a\\b'", "postgres", "a\\b"),
 ]
 HOSTILE_ROWS = [(f"u{i}", f"2024-01-0{i + 1} 10:00:00", value)
                 for i, value in enumerate(sorted({v for *_, v in LITERALS}))]
 HOSTILE_ROWS.append(("u9", "2024-01-09 10:00:00", "x"))
+
+
+def _literal_filters() -> list[tuple[str, str, set[str]]]:
+    """One filter per spec dialect, ``event_name IN (...)`` of its literals: (where,
+    dialect, the values it must keep). A literal read as anything but its one value loses
+    its row (or, read as code, keeps others)."""
+    dialects = sorted({dialect for _, _, dialect, _ in LITERALS})
+    return [(f"event_name IN ({', '.join(lit for _, lit, d, _ in LITERALS if d == dialect)})",
+             dialect, {v for _, _, d, v in LITERALS if d == dialect}) for dialect in dialects]
+
+
+def test_each_literal_is_one_string_value():
+    for name, literal, dialect, value in LITERALS:
+        tree = parse_filter(f"event_name = {literal}", dialect)
+        assert tree.expression.this == value, name
 
 
 @pytest.mark.parametrize("engine_name,target", engine_target_pairs())
@@ -264,11 +295,37 @@ def test_accepted_literals_execute_as_one_string(engines, engine_name, target):
     table, schema = names_for(target)
     if schema:
         engine._ensure_schema(schema)
-    for number, (name, where, dialect, value) in enumerate(LITERALS):
+    for number, (where, dialect, values) in enumerate(_literal_filters()):
         text = SPEC.format(where="'" + where.replace("'", "''") + "'", dialect=dialect,
                            extra="grain: day\n").replace("table: app_events", f"table: {table}")
         text += f"  prefix: h{number}_\n" + (f"  schema: {schema}\n" if schema else "")
         engine.execute(list(view_statements(text, target, "user_activity", "s.yml")))
         users = [r["user_id"] for r in read_view(engine, f"h{number}_user_activity", target)]
-        assert users == [u for u, _ts, v in rows if v == value], name
+        assert sorted(users) == [u for u, _ts, v in rows if v in values], where
     assert len(engine.query(f"SELECT user_id FROM {engine.qualified(table)}")) == len(rows)
+
+
+REVENUE_SPEC = """\
+version: 1
+revenue:
+  table: charges
+  customer: account_id
+  timestamp: charged_at
+  amount: amount
+  where: {where}
+output:
+  dialect: duckdb
+"""
+
+
+@pytest.mark.parametrize("where,args,mentions", [
+    ("pg_sleep(1) IS NULL", (), ("s.yml:7:10: revenue.where: ", "pg_sleep()")),
+    ("starts_with(currency, 'E')", ("--dialect", "sqlite"),
+     ("s.yml:7:10: revenue.where: dialect 'sqlite' cannot express STARTS_WITH",)),
+])
+def test_revenue_filter_is_checked_the_same_way(tmp_path, where, args, mentions):
+    quoted = "'" + where.replace("'", "''") + "'"
+    (tmp_path / "s.yml").write_text(REVENUE_SPEC.format(where=quoted))
+    result = run_main("build", "s.yml", "--out", "out", "--jobs", "1", *args, cwd=tmp_path)
+    assert_refused(result, EXIT_SPEC, mentions=mentions)
+    assert not (tmp_path / "out").exists()

@@ -101,6 +101,8 @@ FILTERS = [
      lambda r: _name(r) is not None and _name(r).lower().startswith("page"), ()),
     ("mysql-escaped-literal", "event_name = 'x\\' OR 1=1 -- '", "mysql",
      lambda r: _name(r) == INJECTION, ()),
+    ("mysql-date-sub", "occurred_at >= DATE_SUB(DATE '2024-03-10', INTERVAL 2 DAY) AND "
+     "occurred_at < NOW()", "mysql", lambda r: dt.datetime(2024, 3, 8) <= _ts(r) < NOW, ()),
     ("doubled-quote", "event_name <> 'x'' OR 1=1 -- '", "duckdb",
      lambda r: _name(r) is not None and _name(r) != INJECTION, ()),
     ("starts-with", "starts_with(event_name, 'pur')", "duckdb",
@@ -110,6 +112,13 @@ FILTERS = [
     ("date-trunc", "date_trunc('month', occurred_at) = DATE '2024-03-01'", "duckdb",
      _mar, ("sqlite", "mysql")),
 ]
+
+# Spark plans each view read as a job of several seconds: there, one filter per kind of
+# operation (its spellings of the rest are pinned by tests/test_dialects.py and goldens).
+SLOW_ENGINES = ("spark",)
+ON_SLOW_ENGINES = ("timestamp-plus-hours", "date-minus-week", "clock-window", "clock-date",
+                   "length-substring", "not-in-list", "like-wildcards", "case",
+                   "coalesce-is-null", "ilike", "mysql-escaped-literal", "date-trunc")
 
 
 def filter_spec(target: str, where: str, dialect: str, prefix: str) -> str:
@@ -141,6 +150,8 @@ def test_filters_keep_the_rows_python_keeps(engines, engine_name, target):
     checked = []
     for number, (name, where, dialect, keep, refusing) in enumerate(FILTERS):
         prefix = f"w{number}_"
+        if engine_name in SLOW_ENGINES and name not in ON_SLOW_ENGINES:
+            continue
         if target in refusing:
             with pytest.raises(UnsupportedError, match=rf"^where.yml:6:10: activity.where: "
                                                        rf"dialect '{target}' cannot express "):
@@ -149,14 +160,15 @@ def test_filters_keep_the_rows_python_keeps(engines, engine_name, target):
         engine.execute(_user_activity(target, where, dialect, prefix))
         users = sorted(row["user_id"] for row in read_view(engine, f"{prefix}user_activity",
                                                            target))
-        expected = sorted(row[0] for row in ROWS if keep(row))
-        assert users == expected, (name, where)
+        assert users == sorted(row[0] for row in ROWS if keep(row)), (name, where)
         checked.append(name)
-    assert len(checked) >= len(FILTERS) - 5
+    assert len(checked) >= (len(ON_SLOW_ENGINES) if engine_name in SLOW_ENGINES
+                            else len(FILTERS)) - 5
 
 
 def test_every_filter_keeps_some_rows_and_drops_some():
     """A filter that keeps every row (or none) would prove nothing on the engines."""
+    assert set(ON_SLOW_ENGINES) <= {f[0] for f in FILTERS}
     for name, _where, _dialect, keep, _refusing in FILTERS:
         kept = [row for row in ROWS if keep(row)]
         assert 0 < len(kept) < len(ROWS), name
