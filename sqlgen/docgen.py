@@ -81,8 +81,10 @@ def filters_reference() -> str:
              "them (MySQL's backslash escapes included).\n",
              "`allow_functions: [name, ...]` admits further functions sqlglot does not know. "
              "That is a trust decision: they run with the privileges of whoever creates the "
-             "views and are read by everyone who queries them, and they are passed through "
-             "verbatim, unchecked for any target.\n",
+             "views and are read by everyone who queries them. They are passed through "
+             "unchecked for any target, their names in capitals (sqlglot's spelling of an "
+             "unknown function: a problem only where function names are case-sensitive, "
+             "as in ClickHouse).\n",
              "| operation | written | note |", "| --- | --- | --- |"]
     for allowed in ALLOWED:
         spelling = allowed.spelling.replace("|", "\\|")  # a table cell

@@ -135,7 +135,7 @@ KEYS: tuple[Key, ...] = (
         "Optional list of further function names the `where` filters may call, e.g. "
         "`[is_internal_account]`: a trust decision. These functions run with the privileges of "
         "whoever creates the views and are read by everyone who queries them; sqlgen passes "
-        "them through verbatim and cannot check that every target has them.",
+        "them through (names in capitals) and cannot check that every target has them.",
         example="[is_internal_account]"),
 )
 
