@@ -14,6 +14,8 @@ from typing import Callable
 from sqlglot import exp
 from sqlglot.dialects.dialect import Dialect, NormalizationStrategy
 
+from .filters import date_operand, interval_parts
+
 SOURCE_DIALECT = "duckdb"
 
 Transform = Callable[[exp.Expression], exp.Expression]
@@ -42,6 +44,8 @@ class Target:
     # XACT_ABORT is on. create_all.sql then runs each statement through sp_executesql
     # in one batch.
     exec_batch: bool = False
+    # Operations of a where filter (filter_feature names) it cannot express -> reason
+    filter_gaps: dict[str, str] = field(default_factory=dict)
 
     def dialect(self) -> Dialect:
         return Dialect.get_or_raise(self.sqlglot_dialect)
@@ -150,7 +154,8 @@ def _zones_tsql(ts, source, target):
 def sqlite_date_parts(tree: exp.Expression) -> exp.Expression:
     """SQLite has no EXTRACT: ``EXTRACT(YEAR FROM d)`` becomes ``CAST(STRFTIME('%Y', d) AS
     INTEGER)`` (sqlglot passes EXTRACT through unchanged, which SQLite rejects)."""
-    formats = {"YEAR": "%Y", "MONTH": "%m", "DAY": "%d"}
+    formats = {"YEAR": "%Y", "MONTH": "%m", "DAY": "%d", "HOUR": "%H", "MINUTE": "%M",
+               "SECOND": "%S"}
 
     def rewrite(node: exp.Expression) -> exp.Expression:
         if isinstance(node, exp.Extract) and node.this.name.upper() in formats:
@@ -165,7 +170,7 @@ def int_date_offsets(tree: exp.Expression) -> exp.Expression:
     """Spark: ``date_add(d, n)`` and ``add_months(d, n)`` take INT, and period keys are BIGINT
     (``date_add(DATE '1970-01-05', period_key)`` fails with DATATYPE_MISMATCH)."""
     def rewrite(node: exp.Expression) -> exp.Expression:
-        if isinstance(node, exp.DateAdd) and not isinstance(node.expression, exp.Literal):
+        if isinstance(node, exp.DateAdd) and not node.expression.is_int:
             node.set("expression", exp.Cast(this=node.expression,
                                             to=exp.DataType.build("INT")))
         return node
@@ -240,6 +245,73 @@ _SQLITE_BAIL = ("run it with `sqlite3 -bail` (or Python's executescript): withou
 _TSQL_BATCH = ("the file is one batch (no GO): each view runs through sp_executesql, and "
                "XACT_ABORT ON rolls the whole transaction back on an error")
 
+
+def timestamp_offsets(spell: Callable[[exp.DateAdd, str], exp.Expression]) -> Transform:
+    """A transform spelling every DateAdd of a timestamp (a filter's ``CURRENT_TIMESTAMP -
+    INTERVAL 2 HOUR``) for one target; DateAdds of dates keep sqlglot's spelling."""
+    def rewrite(node: exp.Expression) -> exp.Expression:
+        if isinstance(node, exp.DateAdd) and node.meta.get("sqlgen_operand") == "timestamp":
+            return spell(node, node.unit.name.upper())
+        return node
+    return lambda tree: tree.transform(rewrite, copy=False)
+
+
+def _offset_sqlite(node: exp.DateAdd, unit: str) -> exp.Expression:
+    """SQLite: sqlglot spells every DateAdd ``DATE(x, '-2 HOUR')``, which drops the time of
+    day; a timestamp needs ``DATETIME(x, '-2 HOUR')``."""
+    amount = node.expression
+    modifier = (exp.Literal.string(f"{amount.to_py()} {unit}") if amount.is_int
+                else exp.DPipe(this=exp.paren(amount, copy=False),
+                               expression=exp.Literal.string(f" {unit}")))
+    return _fn("DATETIME", node.this, modifier)
+
+
+def _offset_spark(node: exp.DateAdd, unit: str) -> exp.Expression:
+    """Spark: sqlglot spells a DateAdd ``DATE_ADD(ts, n)``, which counts days whatever the
+    unit and returns a DATE; ``TIMESTAMPADD(HOUR, n, ts)`` keeps both."""
+    return _fn("TIMESTAMPADD", exp.var(unit), node.expression, node.this)
+
+
+def _offset_bigquery(node: exp.DateAdd, unit: str) -> exp.Expression:
+    """BigQuery: DATE_ADD takes a DATE only; CURRENT_TIMESTAMP() (a TIMESTAMP) needs
+    TIMESTAMP_ADD, a TIMESTAMP '...' literal (a DATETIME there) DATETIME_ADD."""
+    kind = exp.TimestampAdd if isinstance(node.this, exp.CurrentTimestamp) else exp.DatetimeAdd
+    return kind(this=node.this, expression=node.expression, unit=exp.var(unit))
+
+
+def tsql_current_date(tree: exp.Expression) -> exp.Expression:
+    """T-SQL: sqlglot spells CURRENT_DATE as ``GETDATE()``, a datetime with the time of day
+    (``ts >= CURRENT_DATE`` would drop today's morning); ``CAST(GETDATE() AS DATE)`` is the
+    date."""
+    def rewrite(node: exp.Expression) -> exp.Expression:
+        if isinstance(node, exp.CurrentDate):
+            return exp.Cast(this=exp.CurrentTimestamp(), to=exp.DataType.build("DATE"))
+        return node
+    return tree.transform(rewrite, copy=False)
+
+
+_NO_TRY_CAST = ("sqlglot writes TRY_CAST as a plain CAST here, which fails on an unreadable "
+                "value instead of giving NULL (SQLite and MySQL: silently 0)")
+_NO_STARTS_WITH = "no STARTS_WITH function; write s LIKE 'prefix%'"
+_NO_TRUNC = "no DATE_TRUNC function; compare with a date range instead"
+_SQLITE_MONTHS = ("SQLite's date(d, '+1 MONTH') rolls 31 March over to 1 May; write the "
+                  "interval in days")
+_SQLITE_GAPS = {"STARTS_WITH": _NO_STARTS_WITH, "TRY_CAST": _NO_TRY_CAST,
+                "CONCAT": "CONCAT needs SQLite 3.44; write a || b (NULL if either is NULL)",
+                "LEFT": "no LEFT function; write SUBSTRING(s, 1, n)",
+                "RIGHT": "no RIGHT function; write SUBSTRING(s, -n)",
+                "TIMESTAMP_TRUNC": _NO_TRUNC, "DATE_TRUNC": _NO_TRUNC,
+                "INTERVAL MONTH": _SQLITE_MONTHS, "INTERVAL QUARTER": _SQLITE_MONTHS,
+                "INTERVAL YEAR": _SQLITE_MONTHS}
+_MYSQL_GAPS = {"STARTS_WITH": _NO_STARTS_WITH, "TRY_CAST": _NO_TRY_CAST,
+               "TIMESTAMP_TRUNC": _NO_TRUNC, "DATE_TRUNC": _NO_TRUNC}
+_TSQL_GAPS = {"ILIKE": "no ILIKE; write LOWER(s) LIKE 'x%'",
+              "STARTS_WITH": _NO_STARTS_WITH,
+              "LENGTH": "LEN ignores trailing blanks, so lengths would differ from other "
+                        "targets"}
+_TRY_CAST_GAP = {"TRY_CAST": _NO_TRY_CAST}
+
+
 _PG_NOTE = ("CREATE OR REPLACE VIEW cannot change an existing view's columns on this engine: "
             "after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, "
             "which does so).")
@@ -250,39 +322,46 @@ TARGETS: dict[str, Target] = {
         Target("duckdb", "duckdb", "duckdb", "replace",
                (_zone_rewrite(_zones_at_time_zone),)),
         Target("postgres", "postgres", "postgres", "replace",
-               (_zone_rewrite(_zones_at_time_zone),), ddl_note=_PG_NOTE, schema_catalog=False),
+               (_zone_rewrite(_zones_at_time_zone),), ddl_note=_PG_NOTE, schema_catalog=False,
+               filter_gaps=_TRY_CAST_GAP),
         Target("spark", "spark", "spark", "replace",
-               (_zone_rewrite(_zones_spark), int_date_offsets, constant_unions_as_values),
+               (_zone_rewrite(_zones_spark), timestamp_offsets(_offset_spark), int_date_offsets,
+                constant_unions_as_values),
                no_ddl_transaction=_NO_TX_SPARK),
         Target("databricks", "databricks", "spark", "replace",
-               (_zone_rewrite(_zones_spark), int_date_offsets, constant_unions_as_values),
+               (_zone_rewrite(_zones_spark), timestamp_offsets(_offset_spark), int_date_offsets,
+                constant_unions_as_values),
                executed=_DATABRICKS_EXECUTED, no_ddl_transaction=_NO_TX_SPARK),
         # drop_create: ClickHouse's CREATE OR REPLACE VIEW silently replaces a *table* of
         # that name (its data gone), while DROP VIEW refuses one ("is not a View").
         Target("clickhouse", "clickhouse", "clickhouse", "drop_create",
                (_zone_rewrite(_zones_clickhouse),), no_ddl_transaction=_NO_TX_CLICKHOUSE,
-               schema_catalog=False),
+               schema_catalog=False, filter_gaps=_TRY_CAST_GAP),
         Target("mysql", "mysql", "mysql", "replace",
                (_zone_rewrite(_zones_mysql), window_keys_nulls_default),
-               no_ddl_transaction=_NO_TX_MYSQL, schema_catalog=False),
+               no_ddl_transaction=_NO_TX_MYSQL, schema_catalog=False, filter_gaps=_MYSQL_GAPS),
         Target("sqlite", "sqlite", "sqlite", "drop_create",
-               (_zone_rewrite(_zones_utc_only), sqlite_date_parts),
+               (_zone_rewrite(_zones_utc_only), timestamp_offsets(_offset_sqlite),
+                sqlite_date_parts),
                unsupported={"activity.timezone": _NO_IANA_SQLITE,
                             "qualified names": _NO_QUALIFIED_SQLITE},
-               transaction_note=_SQLITE_BAIL),
+               transaction_note=_SQLITE_BAIL, filter_gaps=_SQLITE_GAPS),
         Target("bigquery", "bigquery", None, "replace",
-               (_zone_rewrite(_zones_bigquery), window_keys_nulls_default),
+               (_zone_rewrite(_zones_bigquery), timestamp_offsets(_offset_bigquery),
+                window_keys_nulls_default),
                no_ddl_transaction=_NO_TX_BIGQUERY),
         Target("snowflake", "snowflake", None, "replace", (_zone_rewrite(_zones_snowflake),),
-               no_ddl_transaction=_NO_TX_SNOWFLAKE),
+               no_ddl_transaction=_NO_TX_SNOWFLAKE, filter_gaps=_TRY_CAST_GAP),
         Target("redshift", "redshift", None, "replace", (_zone_rewrite(_zones_snowflake),),
-               ddl_note=_PG_NOTE, schema_catalog=False),
+               ddl_note=_PG_NOTE, schema_catalog=False,
+               filter_gaps={"STARTS_WITH": "sqlglot writes it as LIKE prefix || '%', wrong "
+                                           "for a prefix holding % or _"}),
         Target("trino", "trino", None, "replace", (_zone_rewrite(_zones_trino),),
                no_ddl_transaction=_NO_TX_TRINO),
         Target("tsql", "tsql", None, "create_or_alter",
-               (_zone_rewrite(_zones_tsql), window_keys_nulls_default),
+               (_zone_rewrite(_zones_tsql), tsql_current_date, window_keys_nulls_default),
                unsupported={"activity.timezone": _NO_IANA_TSQL}, schema_catalog=False,
-               exec_batch=True, transaction_note=_TSQL_BATCH),
+               exec_batch=True, transaction_note=_TSQL_BATCH, filter_gaps=_TSQL_GAPS),
     )
 }
 
@@ -292,21 +371,62 @@ def target_names() -> list[str]:
 
 
 def interval_add_to_date_add(tree: exp.Expression) -> exp.Expression:
-    """``d + INTERVAL (n) DAY`` in a template becomes a DateAdd node, spelled per target.
+    """``d + INTERVAL (n) DAY`` (a template's) and ``CURRENT_DATE - INTERVAL '7 days'`` (a
+    filter's) become DateAdd nodes, spelled per target.
 
-    Written as text the sum survives only in DuckDB; as a node it becomes ``DATEADD`` on
-    T-SQL, ``DATE(d, n || ' DAY')`` on SQLite, ``ADD_MONTHS`` on Spark, and so on.
+    Written as text the sum survives only in DuckDB (``NOW() - INTERVAL '400' DAY`` is a
+    syntax error on SQLite and T-SQL); as a node it becomes ``DATEADD`` on T-SQL,
+    ``DATE(d, n || ' DAY')`` on SQLite, ``ADD_MONTHS`` on Spark, and so on. A subtraction
+    adds the negated amount; WEEK and QUARTER become 7 days and 3 months (SQLite has
+    neither). The node remembers whether it offsets a date or a timestamp, for the targets
+    that spell the two differently (``timestamp_offsets``).
     """
     def rewrite(node: exp.Expression) -> exp.Expression:
-        if isinstance(node, exp.Add) and isinstance(node.expression, exp.Interval):
-            interval = node.expression
-            amount = interval.this.unnest() if isinstance(interval.this, exp.Paren) else interval.this
-            if isinstance(amount, exp.Literal) and amount.is_string:
-                amount = exp.Literal.number(amount.this)
-            unit = exp.var(interval.unit.name.upper())
-            return exp.DateAdd(this=node.this, expression=amount, unit=unit)
+        if isinstance(node, (exp.Add, exp.Sub)) and isinstance(node.expression, exp.Interval):
+            amount, unit = _amount_and_unit(node.expression)
+            if isinstance(node, exp.Sub):
+                amount = _negated(amount)
+            added = exp.DateAdd(this=node.this, expression=amount, unit=exp.var(unit))
+            added.meta["sqlgen_operand"] = date_operand(node.this)
+            return added
         return node
     return tree.transform(rewrite, copy=False)
+
+
+_UNIT_STEPS = {"WEEK": (7, "DAY"), "QUARTER": (3, "MONTH")}
+
+
+def _amount_and_unit(interval: exp.Interval) -> tuple[exp.Expression, str]:
+    parts = interval_parts(interval)
+    if parts is not None:
+        count, unit = parts
+        factor, unit = _UNIT_STEPS.get(unit, (1, unit))
+        return exp.Literal.number(count * factor), unit
+    amount = interval.this.unnest() if isinstance(interval.this, exp.Paren) else interval.this
+    unit = interval.unit.name.upper()
+    if unit in _UNIT_STEPS:
+        factor, unit = _UNIT_STEPS[unit]
+        amount = exp.Mul(this=exp.paren(amount, copy=False),
+                         expression=exp.Literal.number(factor))
+    return amount, unit
+
+
+def _negated(amount: exp.Expression) -> exp.Expression:
+    if isinstance(amount, exp.Literal) and not amount.is_string:
+        text = amount.this
+        return exp.Literal.number(text[1:] if text.startswith("-") else f"-{text}")
+    return exp.Neg(this=exp.paren(amount, copy=False))
+
+
+def filter_feature(node: exp.Expression) -> str:
+    """The name of a filter's operation that ``Target.filter_gaps`` lists: ``STARTS_WITH``,
+    ``ILIKE``, ``INTERVAL MONTH`` (WEEK and QUARTER count as DAY and MONTH)..."""
+    if isinstance(node, exp.Interval):
+        parts = interval_parts(node)
+        return f"INTERVAL {parts[1] if parts else node.unit.name.upper()}"
+    if isinstance(node, exp.Func):
+        return node.sql_name()
+    return node.key.upper()
 
 
 def spec_identifiers(target: Target) -> Transform:

@@ -96,9 +96,41 @@ def create_all_matrix() -> str:
     return "\n".join(lines) + "\n\n" + "\n".join(notes) + "\n"
 
 
+def filters_reference() -> str:
+    """docs/filters.md: what a ``where`` filter may use, from filters.ALLOWED and the gaps of
+    each target (Target.filter_gaps)."""
+    from .filters import ALLOWED, MAX_DEPTH
+
+    lines = [NOTE + "# What a `where` filter may use\n",
+             "A filter is one condition over the source table's own columns, written in the "
+             "spec's `output.dialect` and translated for each target. It may use only the "
+             "side-effect-free operations below; anything else (a subquery, an aggregate, a "
+             "window, a table function, a function that reads files, sleeps or asks the "
+             "server, or any function not listed) is refused with its name and the filter's "
+             f"`file:line:col`, as are comments and nesting deeper than {MAX_DEPTH} "
+             "parentheses. Strings are single-quoted literals, as the spec's dialect reads "
+             "them (MySQL's backslash escapes included).\n",
+             "`allow_functions: [name, ...]` admits further functions sqlglot does not know. "
+             "That is a trust decision: they run with the privileges of whoever creates the "
+             "views and are read by everyone who queries them. They are passed through "
+             "unchecked for any target, their names in capitals (sqlglot's spelling of an "
+             "unknown function: a problem only where function names are case-sensitive, "
+             "as in ClickHouse).\n",
+             "| operation | written | note |", "| --- | --- | --- |"]
+    for allowed in ALLOWED:
+        spelling = allowed.spelling.replace("|", "\\|")  # a table cell
+        lines.append(f"| {allowed.group} | `{spelling}` | {allowed.note} |")
+    lines += ["", "## Not on every target\n",
+              "`sqlgen build` refuses these for the targets named, with the reason:\n"]
+    for target in TARGETS.values():
+        for feature, reason in target.filter_gaps.items():
+            lines.append(f"- **{target.name}**, `{feature}`: {reason}")
+    return "\n".join(lines) + "\n"
+
+
 def documents() -> dict[str, str]:
     return {"spec.md": spec_reference(), "views.md": views_reference(),
-            "support-matrix.md": support_matrix()}
+            "support-matrix.md": support_matrix(), "filters.md": filters_reference()}
 
 
 def main() -> int:

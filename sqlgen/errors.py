@@ -71,9 +71,11 @@ class Gap:
     reason: str
     where: str = ""
     spec_key: str = ""  # the spec key that asks for it (``cohorts`` for a view), when known
+    verb: str = "generate"  # "express" for a part of a where filter (``key`` names the part)
 
     def __str__(self) -> str:
-        text = f"dialect {self.dialect!r} cannot generate {self.key}: {self.reason}"
+        text = f"dialect {self.dialect!r} cannot {self.verb} {self.key}"
+        text += f": {self.reason}" if self.reason else ""
         return f"{self.where}: {self.spec_key or self.key}: {text}" if self.where else text
 
 
@@ -93,7 +95,10 @@ class UnsupportedError(SqlgenError):
     def of(cls, gaps: list[Gap]) -> UnsupportedError:
         """One error listing every gap (at least one)."""
         first, *rest = gaps
-        return cls(first.dialect, first.key, first.reason, first.where, tuple(rest))
+        error = cls(first.dialect, first.key, first.reason, first.where, tuple(rest))
+        error.gaps = tuple(gaps)
+        error.args = ("\n".join(str(gap) for gap in gaps),)
+        return error
 
     def located(self, place: Callable[[str], tuple[str, str]]) -> UnsupportedError:
         """The same gaps, each without a place given one: ``place(key)`` returns the

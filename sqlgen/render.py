@@ -163,7 +163,7 @@ def filter_tree(text: str, spec: Spec) -> exp.Expression:
     """A spec's ``where`` text as a tree, its column names marked like other spec names."""
     from .dialects import TARGETS
 
-    tree = parse_filter(text, TARGETS[spec.output.dialect].sqlglot_dialect)
+    tree = parse_filter(text, TARGETS[spec.output.dialect].sqlglot_dialect, spec.allow_functions)
 
     def mark(node: exp.Expression) -> exp.Expression:
         if isinstance(node, exp.Identifier) and isinstance(node.parent, exp.Column):

@@ -19,7 +19,7 @@ from . import names
 from .comments import MESSAGE_LIMIT, cut, printable, shown, unsafe
 from .dialects import TARGETS, target_names
 from .errors import Problem, SpecError
-from .filters import parse_filter
+from .filters import known_function, parse_filter
 from .source import Node, parse_yaml, read_spec_text
 
 GRAINS = ("day", "week", "month", "quarter", "year")
@@ -61,7 +61,8 @@ KEYS: tuple[Key, ...] = (
         default="timestamp", choices=TIMESTAMP_TYPES),
     Key("activity.where", "filter",
         "Optional condition selecting which rows count as activity; one boolean SQL expression "
-        "over the table's columns, in the spec's dialect.",
+        "over the table's columns, in the spec's dialect, using only the operations listed in "
+        "docs/filters.md.",
         example="event_name <> 'push_received'"),
     Key("activity.timezone", "timezone",
         "Optional reporting time zone (IANA name). Timestamps are converted to local time in "
@@ -140,6 +141,12 @@ KEYS: tuple[Key, ...] = (
         f"Window lengths in days for `trailing_activity`: distinct whole numbers from 1 to "
         f"{MAX_WINDOW_DAYS}, e.g. `[7, 28]`; leave out (or `[]`) for no such view.",
         example="[7, 28]"),
+    Key("allow_functions", "functions",
+        "Optional list of further function names the `where` filters may call, e.g. "
+        "`[is_internal_account]`: a trust decision. These functions run with the privileges of "
+        "whoever creates the views and are read by everyone who queries them; sqlgen passes "
+        "them through (names in capitals) and cannot check that every target has them.",
+        example="[is_internal_account]"),
 )
 
 KEYS_BY_PATH = {key.path: key for key in KEYS}
@@ -202,6 +209,7 @@ class Spec:
     trailing_windows: tuple[int, ...] = ()
     file: str = field(default="spec.yml", compare=False)
     revenue: RevenueSource | None = None
+    allow_functions: tuple[str, ...] = ()
     # Where each key's value was written: key path -> (line, col), filled by the checker;
     # ``path`` is the spec file as the user named it. Neither is part of the meaning.
     positions: dict[str, tuple[int, int]] = field(default_factory=dict, compare=False,
@@ -224,6 +232,8 @@ class Spec:
         """
         data = {f.name: getattr(self, f.name) for f in fields(self) if f.compare}
         data = {name: asdict(v) if is_dataclass(v) else v for name, v in data.items()}
+        if not data.get("allow_functions"):
+            data.pop("allow_functions")  # specs without it keep their earlier hash
         if data.get("revenue") is None:
             data.pop("revenue", None)  # specs without revenue keep their earlier hash
         elif data["revenue"]["measure"] in (None, "recognized"):
@@ -345,7 +355,8 @@ def _build(v: dict[str, Any], filename: str) -> Spec:
     return Spec(version=v["version"], activity=activity, grain=v["grain"],
                 week_start=v["week_start"], output=output, cohorts=v["cohorts"],
                 engagement=v["engagement"], trailing_windows=tuple(v["trailing_windows"] or ()),
-                file=os.path.basename(filename), revenue=_build_revenue(v))
+                file=os.path.basename(filename), revenue=_build_revenue(v),
+                allow_functions=tuple(v["allow_functions"] or ()))
 
 
 def _build_revenue(v: dict[str, Any]) -> RevenueSource | None:
@@ -379,6 +390,7 @@ class _Checker:
         self.values: dict[str, Any] = {}
         self.positions: dict[str, tuple[int, int]] = {}
         self.dialect = "duckdb"
+        self.allow_functions: tuple[str, ...] = ()
 
     def report(self, node_pos: tuple[int, int], key: str, message: str) -> None:
         self.problems.append(Problem(self.filename, node_pos[0], node_pos[1], key, message))
@@ -395,8 +407,10 @@ class _Checker:
                 path = f"{prefix}.{name}" if prefix else name
                 self.report(pos, path, f"unknown key.{_suggest(name, allowed)} "
                             f"Allowed here: {', '.join(allowed)}")
-        dialect_key = [k for k in children if k.path == "output.dialect"]
-        for key in dialect_key + [k for k in children if k.path != "output.dialect"]:
+        # The dialect and allow_functions first: the where filters are read with them.
+        first = sorted((k for k in children if k.path in _READ_FIRST),
+                       key=lambda k: _READ_FIRST.index(k.path))
+        for key in first + [k for k in children if k.path not in _READ_FIRST]:
             self.key(node, key)
         if prefix == "" and "output" not in node.value:
             self.section(Node({}, node.line, node.col), "output")
@@ -432,6 +446,9 @@ class _Checker:
         except ValueError as err:
             self.values[key.path] = key.default
             self.report((child.line, child.col), key.path, str(err))
+
+
+_READ_FIRST = ("output", "output.dialect", "allow_functions")
 
 
 def _requires_keys(section: str) -> bool:
@@ -516,8 +533,29 @@ def _refuse_control(text: str, allowed: str = "") -> None:
 def _check_filter(c: _Checker, _key: Key, value: Any) -> str:
     text = _text(value, "an SQL condition as text").strip()
     _refuse_control(text, allowed="\t\n\r")  # a condition may span lines
-    parse_filter(text, c.dialect)
+    parse_filter(text, c.dialect, c.allow_functions)
     return text
+
+
+def _check_functions(c: _Checker, _key: Key, value: Any) -> tuple[str, ...]:
+    if not isinstance(value, list):
+        raise ValueError(f"expected a list of function names, e.g. [is_internal_account]; "
+                         f"got {_describe(value)}")
+    found: list[str] = []
+    for item in value:
+        name = item.value
+        if not isinstance(name, str) or not names.BARE.fullmatch(name):
+            raise ValueError(f"{_describe(name)} is not a function name (letters, digits and _); "
+                             "expected a list of names, e.g. [is_internal_account]")
+        if name.lower() in found:
+            raise ValueError(f"{shown(name)} appears more than once")
+        if known_function(name, c.dialect):
+            raise ValueError(f"{shown(name)} is a function sqlgen's parser knows, and it is not on "
+                             "the list in docs/filters.md; allow_functions admits only "
+                             "functions it does not know")
+        found.append(name.lower())
+    c.allow_functions = tuple(found)
+    return tuple(found)
 
 
 def _check_timezone(_c: _Checker, _key: Key, value: Any) -> str:
@@ -598,4 +636,5 @@ _CHECKS: dict[str, Callable[[_Checker, Key, Any], Any]] = {
     "scale": _check_scale,
     "boolean": _check_boolean,
     "windows": _check_windows,
+    "functions": _check_functions,
 }

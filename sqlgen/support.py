@@ -6,8 +6,12 @@ supports, executed on a real engine in the tests when ``Target.engine`` is set.
 
 from __future__ import annotations
 
-from .dialects import Target
+from sqlglot import exp
+from sqlglot.errors import ErrorLevel, UnsupportedError as SqlglotUnsupported
+
+from .dialects import Target, filter_feature, rewrites
 from .errors import Gap, UnsupportedError
+from .render import filter_tree
 from .spec import Spec
 from .views import VIEWS, VIEWS_BY_NAME
 
@@ -73,6 +77,10 @@ def gaps(spec: Spec, target: Target, views: list[str]) -> list[Gap]:
         status, reason = support(target, feature)
         if status == "unsupported":
             found.append(Gap(target.name, key, reason, spec.where(spec_key(key)), spec_key(key)))
+    for key, text in (("activity.where", spec.activity and spec.activity.where),
+                      ("revenue.where", spec.revenue and spec.revenue.where)):
+        if text:
+            found += filter_gaps(spec, target, key, text)
     return found
 
 
@@ -87,3 +95,26 @@ def require_support(spec: Spec, target: Target, views: list[str]) -> None:
     found = gaps(spec, target, views)
     if found:
         raise UnsupportedError.of(found)
+
+
+def filter_gaps(spec: Spec, target: Target, key: str, text: str) -> list[Gap]:
+    """What of a filter the target cannot express, located at the filter: an operation it
+    lacks (``Target.filter_gaps``), or one sqlglot cannot spell for it."""
+    tree = filter_tree(text, spec)
+    found = []
+    for node in tree.walk():
+        reason = target.filter_gaps.get(filter_feature(node))
+        if reason:
+            found.append(Gap(target.name, filter_feature(node), reason, spec.where(key), key,
+                             "express"))
+    if found:
+        return found
+    for rewrite in rewrites(target):
+        tree = rewrite(tree)
+    try:
+        exp.select("1").where(tree).sql(dialect=target.sqlglot_dialect, copy=False,
+                                         unsupported_level=ErrorLevel.RAISE)
+    except SqlglotUnsupported as err:
+        return [Gap(target.name, str(err).strip().splitlines()[0], "", spec.where(key), key,
+                    "express")]
+    return []

@@ -66,6 +66,23 @@ def create_views(engine, text: str, target: str) -> list:
     return compiled
 
 
+def view_statements(text: str, target: str, view_name: str,
+                    filename: str = "test.yml") -> tuple[str, ...]:
+    """The statements creating one view of a spec, after the checks a build makes (a
+    dialect that cannot express the spec raises UnsupportedError); other views are not
+    compiled, so a suite can create one view per spec cheaply."""
+    from sqlgen.compiler import ddl_statements
+    from sqlgen.dialects import TARGETS
+    from sqlgen.support import require_support
+    from sqlgen.views import planned_views
+
+    spec = parse_spec(text, filename)
+    views = planned_views(spec)
+    require_support(spec, TARGETS[target], [v.name for v in views])
+    view = next(v for v in views if v.name == view_name)
+    return ddl_statements(view, spec, TARGETS[target])
+
+
 def read_view(engine, name: str, target: str = "duckdb") -> list[dict]:
     """Every row of a generated view as a dict, dates as datetime.date."""
     schema = names_for(target)[1]

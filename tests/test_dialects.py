@@ -241,3 +241,73 @@ def test_no_alias_shadows_an_input_column(target, grain):
         for tree in sqlglot.parse(text, read=TARGETS[target].sqlglot_dialect):
             for select in tree.find_all(exp.Select):
                 assert not _aliases_shadowing_inputs(select), (name, select.sql()[:200])
+
+
+# A where filter goes through the same rewrites as the templates: interval arithmetic on the
+# clock and on literals (subtraction, WEEK as days, a unit inside the string) becomes a
+# DateAdd spelled per target; NOW() is CURRENT_TIMESTAMP; T-SQL's CURRENT_DATE is a date,
+# not GETDATE()'s datetime. Never `NOW() - INTERVAL '400' DAY` text (a syntax error on
+# SQLite and T-SQL).
+FILTER = ("occurred_at > now() - INTERVAL 400 DAY AND occurred_at >= CURRENT_DATE - "
+          "INTERVAL '2 weeks' AND occurred_at < TIMESTAMP '2030-01-01 00:00:00' + "
+          "INTERVAL 90 MINUTE")
+FILTER_SQL = {
+    "duckdb": (
+        '"occurred_at" > (CURRENT_TIMESTAMP + INTERVAL (-400) DAY) AND '
+        '"occurred_at" >= (CURRENT_DATE + INTERVAL (-14) DAY) AND '
+        '"occurred_at" < (CAST(\'2030-01-01 00:00:00\' AS TIMESTAMP) + INTERVAL 90 MINUTE)'),
+    "postgres": (
+        '"occurred_at" > (CURRENT_TIMESTAMP + INTERVAL \'-400 DAY\') AND '
+        '"occurred_at" >= (CURRENT_DATE + INTERVAL \'-14 DAY\') AND '
+        '"occurred_at" < (CAST(\'2030-01-01 00:00:00\' AS TIMESTAMP) + INTERVAL \'90 MINUTE\')'),
+    "spark": (
+        "`occurred_at` > TIMESTAMPADD(DAY, -400, CURRENT_TIMESTAMP()) AND "
+        "`occurred_at` >= DATE_ADD(CURRENT_DATE, -14) AND "
+        "`occurred_at` < TIMESTAMPADD(MINUTE, 90, CAST('2030-01-01 00:00:00' AS TIMESTAMP_NTZ))"),
+    "databricks": (
+        "`occurred_at` > TIMESTAMPADD(DAY, -400, CURRENT_TIMESTAMP()) AND "
+        "`occurred_at` >= DATEADD(DAY, -14, CURRENT_DATE) AND "
+        "`occurred_at` < TIMESTAMPADD(MINUTE, 90, CAST('2030-01-01 00:00:00' AS TIMESTAMP_NTZ))"),
+    "clickhouse": (
+        '"occurred_at" > DATE_ADD(DAY, -400, CURRENT_TIMESTAMP()) AND '
+        '"occurred_at" >= DATE_ADD(DAY, -14, CURRENT_DATE()) AND '
+        '"occurred_at" < DATE_ADD(MINUTE, 90, '
+        "CAST('2030-01-01 00:00:00' AS Nullable(DateTime)))"),
+    "mysql": (
+        "`occurred_at` > DATE_ADD(CURRENT_TIMESTAMP(), INTERVAL -400 DAY) AND "
+        "`occurred_at` >= DATE_ADD(CURRENT_DATE, INTERVAL -14 DAY) AND "
+        "`occurred_at` < DATE_ADD(CAST('2030-01-01 00:00:00' AS DATETIME), INTERVAL 90 MINUTE)"),
+    "sqlite": (
+        '"occurred_at" > DATETIME(CURRENT_TIMESTAMP, \'-400 DAY\') AND '
+        '"occurred_at" >= DATE(CURRENT_DATE, \'-14 DAY\') AND '
+        '"occurred_at" < DATETIME(DATETIME(\'2030-01-01 00:00:00\'), \'90 MINUTE\')'),
+    "bigquery": (
+        "`occurred_at` > TIMESTAMP_ADD(CURRENT_TIMESTAMP(), INTERVAL -400 DAY) AND "
+        "`occurred_at` >= DATE_ADD(CURRENT_DATE, INTERVAL -14 DAY) AND "
+        "`occurred_at` < DATETIME_ADD(CAST('2030-01-01 00:00:00' AS DATETIME), "
+        "INTERVAL 90 MINUTE)"),
+    "snowflake": (
+        '"OCCURRED_AT" > DATEADD(DAY, -400, CURRENT_TIMESTAMP()) AND '
+        '"OCCURRED_AT" >= DATEADD(DAY, -14, CURRENT_DATE) AND '
+        '"OCCURRED_AT" < DATEADD(MINUTE, 90, CAST(\'2030-01-01 00:00:00\' AS TIMESTAMPNTZ))'),
+    "redshift": (
+        '"occurred_at" > DATEADD(DAY, -400, GETDATE()) AND '
+        '"occurred_at" >= DATEADD(DAY, -14, CURRENT_DATE) AND '
+        '"occurred_at" < DATEADD(MINUTE, 90, CAST(\'2030-01-01 00:00:00\' AS TIMESTAMP))'),
+    "trino": (
+        '"occurred_at" > DATE_ADD(\'DAY\', -400, CURRENT_TIMESTAMP) AND '
+        '"occurred_at" >= DATE_ADD(\'DAY\', -14, CURRENT_DATE) AND '
+        '"occurred_at" < DATE_ADD(\'MINUTE\', 90, CAST(\'2030-01-01 00:00:00\' AS TIMESTAMP))'),
+    "tsql": (
+        "[occurred_at] > DATEADD(DAY, -400, GETDATE()) AND "
+        "[occurred_at] >= DATEADD(DAY, -14, CAST(GETDATE() AS DATE)) AND "
+        "[occurred_at] < DATEADD(MINUTE, 90, CAST('2030-01-01 00:00:00' AS DATETIME2))"),
+}
+
+
+@pytest.mark.parametrize("target", TARGETS)
+def test_where_filter_date_arithmetic(target):
+    text = flat(sql_for(target, table="app_events", extra=f'  where: "{FILTER}"\n')
+                ["user_activity"])
+    assert FILTER_SQL[target] in text
+    assert "NOW()" not in text.upper() and "INTERVAL '400'" not in text

@@ -24,7 +24,7 @@ CASES = [
       "s.yml:4:3: activity.usr: unknown key. Did you mean 'user'? Allowed here: table, user, "
       "timestamp, timestamp_type, where, timezone",
       "s.yml:7:1: outptu: unknown key. Did you mean 'output'? Allowed here: version, "
-      "activity, revenue, grain, week_start, output, cohorts, engagement, trailing_windows"]),
+      "activity, revenue, grain, week_start, output, cohorts, engagement, trailing_windows, allow_functions"]),
     ("dialect", GOOD + "output:\n  dialect: snowflak\n",
      ["s.yml:8:12: output.dialect: 'snowflak' is not one of duckdb, postgres, spark, "
       "databricks, clickhouse, mysql, sqlite, bigquery, snowflake, redshift, trino, tsql. "
@@ -67,10 +67,12 @@ FILTER_CASES = [
     ("a = 1; DROP TABLE t", "must be a single expression, not several statements"),
     ("x IN (SELECT id FROM admins)", "a subquery is not allowed in a filter; use a plain "
      "condition on the table's own columns, e.g. event_name <> 'push_received'"),
-    ("a = 1 -- AND b = 2", "comments are not allowed in a filter; remove the -- or /* */ part"),
-    ("a /* ; DROP */ = 1", "comments are not allowed in a filter; remove the -- or /* */ part"),
-    ("count(*) > 1", "an aggregate function is not allowed in a filter; use a plain condition "
-     "on the table's own columns, e.g. event_name <> 'push_received'"),
+    ("a = 1 -- AND b = 2", "comments are not allowed in a filter; remove the -- , # or /* */ "
+     "part"),
+    ("a /* ; DROP */ = 1", "comments are not allowed in a filter; remove the -- , # or /* */ "
+     "part"),
+    ("count(*) > 1", "an aggregate function is not allowed in a filter: COUNT(); use a plain "
+     "condition on the table's own columns, e.g. event_name <> 'push_received'"),
     ("other.a = 1", "column other.a names a table; write the column alone"),
     ("42", "must be a condition (true or false for each row), e.g. event_name <> "
      "'push_received'"),
