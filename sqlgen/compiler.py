@@ -330,7 +330,7 @@ def build_inputs(spec: Spec, target_name: str) -> list[str]:
     Two builds with the same lines write the same bytes (output is deterministic), so a
     folder whose files match what a build with these lines wrote is up to date.
     """
-    spec_text = json.dumps(asdict(spec), sort_keys=True, separators=(",", ":"))
+    spec_text = json.dumps(asdict(spec), sort_keys=True, separators=(",", ":"), default=str)
     return [f"sqlgen {__version__}", f"target {target_name}",
             f"spec {hashlib.sha256(spec_text.encode()).hexdigest()}",
             f"generator {generator_digest()}"]

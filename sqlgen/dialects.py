@@ -211,6 +211,10 @@ _NO_IANA_TSQL = ("T-SQL's AT TIME ZONE takes Windows zone names, not IANA names;
                  "time or a datetimeoffset already in the reporting zone")
 
 
+_NARROW_DATES_CLICKHOUSE = (
+    "ClickHouse's Date holds 1970-01-01 to 2149-06-06 and its DateTime 1970-01-01 to "
+    "2106-02-07, and a value outside them wraps or clamps without an error; keep valid_from "
+    "on or after 1970-01-03 and valid_until on or before 2106-01-01")
 _PG_NOTE = ("CREATE OR REPLACE VIEW cannot change an existing view's columns on this engine: "
             "after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, "
             "which does so).")
@@ -228,7 +232,8 @@ TARGETS: dict[str, Target] = {
                (_zone_rewrite(_zones_spark), int_date_offsets, constant_unions_as_values),
                executed=_DATABRICKS_EXECUTED),
         Target("clickhouse", "clickhouse", "clickhouse", "replace",
-               (_zone_rewrite(_zones_clickhouse),)),
+               (_zone_rewrite(_zones_clickhouse),),
+               unsupported={"valid range before 1970 or after 2105": _NARROW_DATES_CLICKHOUSE}),
         Target("mysql", "mysql", "mysql", "replace",
                (_zone_rewrite(_zones_mysql), window_keys_nulls_default)),
         Target("sqlite", "sqlite", "sqlite", "drop_create",

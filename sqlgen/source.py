@@ -80,7 +80,10 @@ def _convert(node: yaml.Node, filename: str) -> Node:
         return _convert_mapping(node, filename, line, col)
     if isinstance(node, yaml.SequenceNode):
         return Node([_convert(item, filename) for item in node.value], line, col)
-    value = yaml.SafeLoader(" ").construct_object(node, deep=True)
+    try:
+        value = yaml.SafeLoader(" ").construct_object(node, deep=True)
+    except ValueError:  # looks like a date but is none (2015-13-01): the key's check says so
+        value = node.value
     return Node(value, line, col)
 
 
