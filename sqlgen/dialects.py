@@ -312,6 +312,12 @@ _TSQL_GAPS = {"ILIKE": "no ILIKE; write LOWER(s) LIKE 'x%'",
 _TRY_CAST_GAP = {"TRY_CAST": _NO_TRY_CAST}
 
 
+
+_NARROW_DATES_CLICKHOUSE = (
+    "ClickHouse's Date holds 1970-01-01 to 2149-06-06 and its DateTime 1970-01-01 to "
+    "2106-02-07, and a value outside them wraps or clamps without an error; keep valid_from "
+    "on or after 1970-01-03 and valid_until on or before 2106-01-01")
+
 _PG_NOTE = ("CREATE OR REPLACE VIEW cannot change an existing view's columns on this engine: "
             "after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, "
             "which does so).")
@@ -336,7 +342,8 @@ TARGETS: dict[str, Target] = {
         # that name (its data gone), while DROP VIEW refuses one ("is not a View").
         Target("clickhouse", "clickhouse", "clickhouse", "drop_create",
                (_zone_rewrite(_zones_clickhouse),), no_ddl_transaction=_NO_TX_CLICKHOUSE,
-               schema_catalog=False, filter_gaps=_TRY_CAST_GAP),
+               schema_catalog=False, filter_gaps=_TRY_CAST_GAP,
+               unsupported={"valid range before 1970 or after 2105": _NARROW_DATES_CLICKHOUSE}),
         Target("mysql", "mysql", "mysql", "replace",
                (_zone_rewrite(_zones_mysql), window_keys_nulls_default),
                no_ddl_transaction=_NO_TX_MYSQL, schema_catalog=False, filter_gaps=_MYSQL_GAPS),

@@ -7,6 +7,7 @@ pasted: templates carry markers (``__user__``, ``__activity_table__``, ``__where
 
 from __future__ import annotations
 
+import datetime as dt
 import functools
 from dataclasses import dataclass
 from importlib import resources
@@ -18,7 +19,7 @@ from sqlglot import exp
 from . import names
 from .dialects import SOURCE_DIALECT
 from .filters import parse_filter
-from .spec import WEEKDAYS, Spec
+from .spec import WEEKDAYS, Spec, range_periods
 from .views import View
 
 VIEW_MARKER = "__view__"
@@ -32,22 +33,33 @@ class Grain:
     family: str  # 'day' or 'month'
     step: int  # key distance between adjacent periods
     week_offset: int  # weekday of the week's first day, 0 = Monday
-    calendar_digits: int  # a calendar of up to 10**digits periods
+    calendar_digits: int  # a calendar of up to 10**digits periods: every period of the range
+    day_digits: int  # ... of days (trailing_activity)
+    month_digits: int  # ... of calendar months, whole first and last periods (subscriptions)
 
 
 _GRAINS = {
-    "day": ("day", 1, 5),
-    "week": ("day", 7, 4),
-    "month": ("month", 1, 4),
-    "quarter": ("month", 3, 3),
-    "year": ("month", 12, 3),
+    "day": ("day", 1),
+    "week": ("day", 7),
+    "month": ("month", 1),
+    "quarter": ("month", 3),
+    "year": ("month", 12),
 }
 
 
 def grain_of(spec: Spec) -> Grain:
-    family, step, digits = _GRAINS[spec.grain]
+    """The grain, with calendars long enough for every source's whole valid range: a view's
+    data lie inside the range, so no real period is ever cut off."""
+    family, step = _GRAINS[spec.grain]
     offset = WEEKDAYS.index(spec.week_start) if spec.grain == "week" else 0
-    return Grain(spec.grain, family, step, offset, digits)
+    ranges = [(s.valid_from, s.valid_until) for s in (spec.activity, spec.revenue) if s]
+
+    def digits(grain: str, spare: int = 0) -> int:
+        longest = max(range_periods(start, end, grain) for start, end in ranges) + spare
+        return len(str(longest - 1))
+
+    return Grain(spec.grain, family, step, offset, digits(spec.grain), digits("day"),
+                 digits("month", 2 * (step - 1)))
 
 
 def templates_dir() -> Path:
@@ -113,6 +125,7 @@ def markers(spec: Spec) -> Markers:
             columns["__where__"] = filter_tree(source.where, spec)
         tables["__activity_table__"] = names.table(source.table)
         literals["__timezone__"] = exp.Literal.string(source.timezone or "UTC")
+        literals.update(_range_markers("activity", source))
     _revenue_markers(spec, columns, tables, literals)
     return Markers(columns, tables, literals)
 
@@ -130,6 +143,21 @@ def _revenue_markers(spec: Spec, columns: dict, tables: dict, literals: dict) ->
         columns["__revenue_where__"] = filter_tree(revenue.where, spec)
     tables["__revenue_table__"] = names.table(revenue.table)
     literals["__revenue_timezone__"] = exp.Literal.string(revenue.timezone or "UTC")
+    literals.update(_range_markers("revenue", revenue))
+
+
+RANGE_MARGIN = dt.timedelta(days=2)  # > a day of zone offset plus a day of session zone
+
+
+def _range_markers(prefix: str, source) -> dict[str, exp.Expression]:
+    """The valid range's bounds as literals (``'__activity_valid_from__'``...), and the
+    pre-check's bounds a margin wider, as text of the raw column's type."""
+    time = "" if source.timestamp_type == "date" else " 00:00:00"
+    bounds = {"valid_from": source.valid_from.isoformat(),
+              "valid_until": source.valid_until.isoformat(),
+              "near_from": (source.valid_from - RANGE_MARGIN).isoformat() + time,
+              "near_until": (source.valid_until + RANGE_MARGIN).isoformat() + time}
+    return {f"__{prefix}_{name}__": exp.Literal.string(text) for name, text in bounds.items()}
 
 
 def bind(tree: exp.Expression, spec: Spec, view_table) -> exp.Expression:

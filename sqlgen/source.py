@@ -158,6 +158,9 @@ def _check_events(text: str, filename: str) -> None:
             depth -= 1
 
 
+_DATE_TAG = "tag:yaml.org,2002:timestamp"
+
+
 class _Converter:
     """yaml nodes -> Nodes; problems that spare the rest of the tree are collected."""
 
@@ -181,6 +184,8 @@ class _Converter:
                         line, col)
         try:
             value = yaml.SafeLoader(" ").construct_object(node, deep=True)
+        except ValueError if node.tag == _DATE_TAG else ():
+            return Node(node.value, line, col)  # 2015-13-01: the key's own check says why
         except (yaml.YAMLError, ValueError, OverflowError) as err:
             problem = getattr(err, "problem", None) or str(err)
             self.report(node.start_mark, path, f"cannot read the value: {shown(problem)}")

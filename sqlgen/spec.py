@@ -10,6 +10,7 @@ import datetime as dt
 import difflib
 import hashlib
 import json
+import datetime as dt
 import os
 import zoneinfo
 from dataclasses import asdict, dataclass, field, fields, is_dataclass, replace
@@ -30,6 +31,14 @@ INTERVALS = ("month", "quarter", "year")
 MEASURES = ("run_rate", "recognized")
 MAX_SCALE = 6
 MAX_WINDOW_DAYS = 366
+# The valid time range of a source's rows (local dates, `valid_from` inclusive, `valid_until`
+# exclusive). The defaults leave out the sentinel dates warehouses use for "unknown" or
+# "never" (common practice): 0001-01-01, 1900-01-01, epoch zero 1970-01-01, 9999-12-31.
+VALID_FROM = dt.date(1990, 1, 1)
+VALID_UNTIL = dt.date(2100, 1, 1)
+EARLIEST_DATE = dt.date(1000, 1, 1)  # MySQL's DATE starts here (from memory of its manual)
+LATEST_DATE = dt.date(9999, 1, 1)  # a margin below 9999-12-31, the largest date most engines hold
+MAX_CALENDAR_PERIODS = 10 ** 6  # the longest calendar of periods (or days) a view may build
 
 
 @dataclass(frozen=True)
@@ -67,6 +76,16 @@ KEYS: tuple[Key, ...] = (
     Key("activity.timezone", "timezone",
         "Optional reporting time zone (IANA name). Timestamps are converted to local time in "
         "this zone before they are assigned to periods.", example="America/New_York"),
+    Key("activity.valid_from", "date",
+        "First local date of a valid row (inclusive), a date like `2015-01-01`. Rows dated "
+        "earlier are left out of every view and counted in `activity_source_summary."
+        "out_of_range_rows`. The default leaves out the common sentinel dates 0001-01-01, "
+        "1900-01-01 and epoch zero 1970-01-01 (see docs/time-range.md).",
+        default=VALID_FROM, example="2015-01-01"),
+    Key("activity.valid_until", "date",
+        "First local date after the valid rows (exclusive). Rows dated on or after it are "
+        "left out and counted like those before `valid_from`; the default leaves out the "
+        "sentinel 9999-12-31.", default=VALID_UNTIL, example="2031-01-01"),
     Key("revenue", "mapping",
         "Where recurring revenue comes from, in one currency (see docs/revenue.md). A spec "
         "needs `activity`, `revenue` or both."),
@@ -116,6 +135,16 @@ KEYS: tuple[Key, ...] = (
     Key("revenue.timezone", "timezone",
         "Optional reporting time zone (IANA name), applied as for `activity.timezone`.",
         example="Europe/Berlin"),
+    Key("revenue.valid_from", "date",
+        "First local date of a valid row (inclusive), as for `activity.valid_from`: a charge "
+        "or a subscription start dated earlier (or a subscription end before it) leaves the "
+        "row out, counted in `revenue_source_summary.out_of_range_rows`.",
+        default=VALID_FROM, example="2015-01-01"),
+    Key("revenue.valid_until", "date",
+        "First local date after the valid rows (exclusive): a charge or a subscription start "
+        "on or after it leaves the row out; a subscription end on or after it (such as "
+        "9999-12-31) means the subscription has no end, like NULL.",
+        default=VALID_UNTIL, example="2031-01-01"),
     Key("grain", "choice", "Length of a period.", default="month", choices=GRAINS),
     Key("week_start", "choice", "First day of a week, for `grain: week`; monday is ISO 8601.",
         default="monday", choices=WEEKDAYS),
@@ -160,6 +189,8 @@ class ActivitySource:
     timestamp_type: str
     where: str | None
     timezone: str | None
+    valid_from: dt.date = VALID_FROM
+    valid_until: dt.date = VALID_UNTIL
 
 
 @dataclass(frozen=True)
@@ -185,6 +216,8 @@ class RevenueSource:
     where: str | None
     timezone: str | None
     measure: str | None = None  # subscriptions only: run_rate or recognized
+    valid_from: dt.date = VALID_FROM
+    valid_until: dt.date = VALID_UNTIL
 
 
 @dataclass(frozen=True)
@@ -241,8 +274,22 @@ class Spec:
         for name, off in (("cohorts", False), ("engagement", False), ("trailing_windows", [])):
             if data.get(name) == off:
                 data.pop(name)  # nor do specs without these views
+        for source in (data.get("activity"), data.get("revenue")):
+            _range_digest(source or {})
         text = json.dumps(data, sort_keys=True, separators=(",", ":"))
         return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+def _range_digest(source: dict[str, Any]) -> None:
+    """A source's valid range in the digest only when set away from the default (specs
+    written before the range existed keep their hash), as ISO text."""
+    for name, default in (("valid_from", VALID_FROM), ("valid_until", VALID_UNTIL)):
+        if name not in source:
+            continue
+        if source[name] == default:
+            source.pop(name)
+        else:
+            source[name] = source[name].isoformat()
 
 
 def load_spec(path: str) -> Spec:
@@ -290,6 +337,7 @@ def _cross_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
         section = root.value.get(name)
         if section is not None and isinstance(section.value, dict):
             _date_zone_check(checker, section, name, v)
+            _range_checks(checker, section, name, v)
     revenue = root.value.get("revenue")
     if revenue is not None and isinstance(revenue.value, dict):
         _revenue_shape_checks(checker, revenue, v)
@@ -313,6 +361,42 @@ def _date_zone_check(checker: _Checker, section: Node, name: str, v: dict[str, A
         checker.report((zone.line, zone.col), f"{name}.timezone",
                        "a date column has no time of day to convert; remove timezone or "
                        "set timestamp_type: timestamp")
+
+
+def _range_checks(checker: _Checker, section: Node, name: str, v: dict[str, Any]) -> None:
+    """valid_from before valid_until, and a range the calendar of periods can hold whole."""
+    start, end = v[f"{name}.valid_from"], v[f"{name}.valid_until"]
+    given = [k for k in ("valid_until", "valid_from") if section.value.get(k) is not None]
+    keys = (f"{name}.valid_from", f"{name}.valid_until")
+    if not given or any(problem.key in keys for problem in checker.problems):
+        return
+    node = section.value[given[0]]
+    key = f"{name}.{given[0]}"
+    if start >= end:
+        checker.report((node.line, node.col), key,
+                       f"valid_from {start} must be before valid_until {end} (valid_until "
+                       "is the first date left out)")
+        return
+    grains = [(v["grain"], v["grain"])] if v.get("grain") in GRAINS else []
+    if name == "activity" and v.get("trailing_windows"):
+        grains.append(("day", "trailing_windows"))
+    for grain, why in grains:
+        count = range_periods(start, end, grain)
+        if count > MAX_CALENDAR_PERIODS:
+            checker.report((node.line, node.col), key,
+                           f"{start} to {end} holds {count:,} {grain} periods (for {why}), "
+                           f"more than the {MAX_CALENDAR_PERIODS:,} a view's calendar can "
+                           "hold; narrow the range or use a longer grain")
+
+
+def range_periods(start: dt.date, end: dt.date, grain: str) -> int:
+    """How many periods of ``grain`` the dates start .. end (exclusive) touch, at most."""
+    last = end - dt.timedelta(days=1)
+    days = (last - start).days
+    months = (last.year * 12 + last.month) - (start.year * 12 + start.month)
+    quarters = (last.year * 4 + (last.month - 1) // 3) - (start.year * 4 + (start.month - 1) // 3)
+    return {"day": days, "week": days // 7 + 1, "month": months, "quarter": quarters,
+            "year": last.year - start.year}[grain] + 1
 
 
 _SHAPE_KEYS = {"charges": ("timestamp",), "subscriptions": ("start", "end", "interval",
@@ -349,7 +433,8 @@ def _build(v: dict[str, Any], filename: str) -> Spec:
         activity = ActivitySource(
             table=v["activity.table"], user=v["activity.user"],
             timestamp=v["activity.timestamp"], timestamp_type=v["activity.timestamp_type"],
-            where=v["activity.where"], timezone=v["activity.timezone"])
+            where=v["activity.where"], timezone=v["activity.timezone"],
+            valid_from=v["activity.valid_from"], valid_until=v["activity.valid_until"])
     output = Output(dialect=v["output.dialect"], schema=v["output.schema"],
                     prefix=v["output.prefix"], folder=v["output.folder"])
     return Spec(version=v["version"], activity=activity, grain=v["grain"],
@@ -373,7 +458,8 @@ def _build_revenue(v: dict[str, Any]) -> RevenueSource | None:
         interval_column=None if charges else v["revenue.interval_column"],
         timestamp_type=v["revenue.timestamp_type"], where=v["revenue.where"],
         timezone=v["revenue.timezone"],
-        measure=None if charges else v["revenue.measure"])
+        measure=None if charges else v["revenue.measure"], valid_from=v["revenue.valid_from"],
+        valid_until=v["revenue.valid_until"])
 
 
 def _suggest(word: str, options: list[str] | tuple[str, ...]) -> str:
@@ -623,6 +709,24 @@ def _check_windows(c: _Checker, key: Key, value: Any) -> tuple[int, ...]:
     return tuple(item.value for item in value)
 
 
+def _check_date(_c: _Checker, _key: Key, value: Any) -> dt.date:
+    if isinstance(value, dt.datetime):
+        raise ValueError(f"expected a date such as 2015-01-01, got the timestamp {value}; "
+                         "write the date alone")
+    if isinstance(value, str):
+        try:
+            value = dt.date.fromisoformat(value.strip())
+        except ValueError:
+            raise ValueError(f"{shown(value)} is not a date; write it as YYYY-MM-DD, "
+                             "e.g. 2015-01-01") from None
+    if not isinstance(value, dt.date):
+        raise ValueError(f"expected a date such as 2015-01-01, got {_describe(value)}")
+    if not EARLIEST_DATE <= value <= LATEST_DATE:
+        raise ValueError(f"{value} is outside the dates sqlgen can compare on every engine, "
+                         f"{EARLIEST_DATE} to {LATEST_DATE}")
+    return value
+
+
 _CHECKS: dict[str, Callable[[_Checker, Key, Any], Any]] = {
     "integer": _check_integer,
     "choice": _check_choice,
@@ -637,4 +741,5 @@ _CHECKS: dict[str, Callable[[_Checker, Key, Any], Any]] = {
     "boolean": _check_boolean,
     "windows": _check_windows,
     "functions": _check_functions,
+    "date": _check_date,
 }

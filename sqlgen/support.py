@@ -6,6 +6,8 @@ supports, executed on a real engine in the tests when ``Target.engine`` is set.
 
 from __future__ import annotations
 
+import datetime as dt
+
 from sqlglot import exp
 from sqlglot.errors import ErrorLevel, UnsupportedError as SqlglotUnsupported
 
@@ -16,7 +18,8 @@ from .spec import Spec
 from .views import VIEWS, VIEWS_BY_NAME
 
 OPTIONS = ("grain: week", "activity.timezone", "timestamp_type: timestamptz", "activity.where",
-           "revenue.timezone", "revenue.where", "shape: subscriptions", "qualified names")
+           "revenue.timezone", "revenue.where", "shape: subscriptions", "qualified names",
+           "valid range before 1970 or after 2105")
 FEATURES: tuple[str, ...] = tuple(v.name for v in VIEWS) + OPTIONS
 # A revenue option needs what the activity option of the same kind needs, unless a target
 # lists it separately.
@@ -50,7 +53,24 @@ def features_used(spec: Spec) -> list[tuple[str, str]]:
     for key, source in (("activity.table", activity), ("revenue.table", spec.revenue)):
         if source is not None and len(source.table) > 1:
             used.append(("qualified names", key))
-    return used + _revenue_features(spec)
+    return used + _revenue_features(spec) + _range_features(spec)
+
+
+# A valid range inside these dates needs date types no wider than 1970 .. 2106 (the range
+# check compares with its bounds two days wider).
+NARROW_RANGE = (dt.date(1970, 1, 3), dt.date(2106, 1, 1))
+
+
+def _range_features(spec: Spec) -> list[tuple[str, str]]:
+    used = []
+    for name, source in (("activity", spec.activity), ("revenue", spec.revenue)):
+        if source is None:
+            continue
+        if source.valid_from < NARROW_RANGE[0]:
+            used.append((OPTIONS[-1], f"{name}.valid_from"))
+        if source.valid_until > NARROW_RANGE[1]:
+            used.append((OPTIONS[-1], f"{name}.valid_until"))
+    return used
 
 
 def _revenue_features(spec: Spec) -> list[tuple[str, str]]:

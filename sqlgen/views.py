@@ -42,11 +42,15 @@ VIEWS: tuple[View, ...] = (
     View(
         "activity_source_summary",
         "One row counting the source rows: all, left out for a NULL user or timestamp, "
-        "filtered out by `where`, not convertible to a local date, and counted as activity.",
+        "filtered out by `where`, outside the valid time range, not convertible to a local "
+        "date, and counted as activity. Each row is in exactly one of these counts.",
         (("source_rows", "rows in the activity table"),
          ("null_user_rows", "rows left out because the user key is NULL"),
          ("null_timestamp_rows", "rows with a user but a NULL timestamp, left out"),
          ("filtered_out_rows", "rows with user and timestamp that `where` does not keep"),
+         ("out_of_range_rows", "kept rows whose local date is before `activity.valid_from` "
+                               "or on or after `activity.valid_until` (sentinel dates such "
+                               "as 0001-01-01 or 9999-12-31); left out"),
          ("unconverted_rows", "kept rows whose local date came out NULL (on MySQL: a time "
                               "zone missing from the server's time zone tables); left out"),
          ("counted_rows", "rows counted as activity")),
@@ -93,13 +97,17 @@ VIEWS: tuple[View, ...] = (
     View(
         "revenue_source_summary",
         "One row counting the revenue table's rows: all, left out (NULL customer, date or "
-        "amount), filtered out by `where`, invalid, counted; and the dates they cover.",
+        "amount), filtered out by `where`, outside the valid time range, invalid, counted; "
+        "and the dates they cover. Each row is in exactly one of these counts.",
         (("source_rows", "rows in the revenue table"),
          ("null_customer_rows", "rows left out because the customer key is NULL"),
          ("null_date_rows", "rows with a customer but a NULL timestamp (charges) or start "
                             "(subscriptions), left out"),
          ("null_amount_rows", "rows with customer and date but a NULL amount, left out"),
          ("filtered_out_rows", "rows with customer, date and amount that `where` does not keep"),
+         ("out_of_range_rows", "kept rows whose local date (a charge's, a subscription's "
+                               "start) is outside `revenue.valid_from` .. `valid_until`, or "
+                               "a subscription ending before `valid_from`; left out"),
          ("invalid_rows", "subscriptions kept by `where` but left out: an unknown interval or "
                           "an end not after the start (always 0 for charges)"),
          ("counted_rows", "rows counted"),

@@ -1,11 +1,11 @@
 {#- Reading the activity table, written once for every view that reads it.
 
-  source_ctes()     the CTEs sqlgen_source and dated: one row per kept activity row, as
-                    (user_id, activity_date) with the local date of the spec's time zone rule;
-                    rows with a NULL user or timestamp are left out
+  source_ctes()     the CTEs sqlgen_source, sqlgen_local and dated: one row per kept activity
+                    row, as (user_id, activity_date) with the local date of the spec's time
+                    zone rule; rows with a NULL user or timestamp, a local date that came out
+                    NULL or one outside the valid range are left out
                     (activity_source_summary counts them).
-  keyed()           source_ctes() and the CTE keyed: (user_id, activity_date, period_key),
-                    rows whose local date came out NULL left out.
+  keyed()           source_ctes() and the CTE keyed: (user_id, activity_date, period_key).
   active_periods()  the CTE active_periods: the distinct (user_id, period_key) pairs, with
                     the last active date of each (the only other column any period view
                     needs, for period_status). This one grouping is the unavoidable pass over
@@ -19,12 +19,16 @@ however often the view refers to it.
 
 {%- macro source_ctes() -%}
 sqlgen_source AS (
-  SELECT __user__ AS sqlgen_user, __timestamp__ AS sqlgen_ts
+  SELECT __user__ AS sqlgen_user, {{ p.near_value('__timestamp__', source.timestamp_type, 'activity') }} AS sqlgen_ts
   FROM __activity_table__
   WHERE __user__ IS NOT NULL AND __timestamp__ IS NOT NULL{% if source.where %} AND (__where__){% endif %}
-), dated AS (
-  SELECT sqlgen_user AS user_id, {{ p.local_date('sqlgen_ts') }} AS activity_date
+), sqlgen_local AS (
+  SELECT sqlgen_user, {{ p.local_date('sqlgen_ts') }} AS sqlgen_date
   FROM sqlgen_source
+), dated AS (
+  SELECT sqlgen_user AS user_id, sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE {{ p.in_range('sqlgen_date', 'activity') }}
 )
 {%- endmacro -%}
 
@@ -32,7 +36,6 @@ sqlgen_source AS (
 {{ source_ctes() }}, keyed AS (
   SELECT user_id, activity_date, {{ p.period_key('activity_date') }} AS period_key
   FROM dated
-  WHERE activity_date IS NOT NULL
 )
 {%- endmacro -%}
 

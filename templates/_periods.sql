@@ -45,8 +45,26 @@ CAST({{ ts }} AS DATE)
 {%- endif -%}
 {%- endmacro -%}
 
+{#- The valid time range of a source (prefix 'activity' or 'revenue'), in two steps so that a
+    sentinel value (0001-01-01, 9999-12-31 23:59:59) never reaches a time zone conversion,
+    which overflows or fails on some engines:
+  near_value(ts)  the raw value when it lies within two days of the range, else NULL: a
+                  comparison with no zone rule (a timestamptz is compared in the session
+                  zone, less than a day off, inside the margin). Convert this, not the raw value.
+  in_range(d)     the exact rule on the local date: valid_from <= d < valid_until.
+A row whose near value is NULL or whose local date fails in_range is out of range. -#}
+{%- macro near_value(ts, kind, prefix) -%}
+{%- set type = 'DATE' if kind == 'date' else 'TIMESTAMP' -%}
+CASE WHEN {{ ts }} >= CAST('__{{ prefix }}_near_from__' AS {{ type }}) AND {{ ts }} < CAST('__{{ prefix }}_near_until__' AS {{ type }}) THEN {{ ts }} END
+{%- endmacro -%}
+
+{%- macro in_range(d, prefix) -%}
+{{ d }} >= CAST('__{{ prefix }}_valid_from__' AS DATE) AND {{ d }} < CAST('__{{ prefix }}_valid_until__' AS DATE)
+{%- endmacro -%}
+
 {#- Integers 0 .. 10^digits - 1 from a cross join of a digits CTE: portable to every target,
-    with no recursion and no series function (a calendar of periods needs no more). -#}
+    with no recursion and no series function. The compiler sizes each calendar from the
+    valid range (render.grain_of), so it holds every period a view's data can reach. -#}
 {%- macro digits_cte() -%}
 digits AS (
   SELECT 0 AS n UNION ALL SELECT 1 UNION ALL SELECT 2 UNION ALL SELECT 3 UNION ALL SELECT 4

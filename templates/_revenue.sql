@@ -61,16 +61,24 @@ END
 
 {#- CTEs sqlgen_source, sqlgen_dated and sqlgen_rows: every row of the revenue table with
     its local date(s) and a row_status (null_customer, null_date, null_amount, filtered_out,
-    invalid or counted). The summary counts them; customer_revenue keeps the counted rows. -#}
-{%- macro source_rows() -%}
+    out_of_range, invalid or counted), tried in that order. The summary counts them;
+    customer_revenue keeps the counted rows. The valid range (see _periods.sql) applies to a
+    charge's date and a subscription's start: outside it the row is out_of_range, whatever
+    its end. A subscription end before valid_from makes the row out_of_range too; an end on
+    or after valid_until (such as 9999-12-31) means no end, like NULL. -#}
+{%- macro source_rows(p) -%}
+{%- set dated_column = '__revenue_timestamp__' if revenue.shape == 'charges' else '__revenue_start__' -%}
+{%- set raw_type = 'DATE' if revenue.timestamp_type == 'date' else 'TIMESTAMP' -%}
 sqlgen_source AS (
   SELECT
     __customer__ AS sqlgen_customer,
-    {{ '__revenue_timestamp__' if revenue.shape == 'charges' else '__revenue_start__' }} AS sqlgen_date_value,
+    {{ dated_column }} AS sqlgen_date_value,
+    {{ p.near_value(dated_column, revenue.timestamp_type, 'revenue') }} AS sqlgen_date_near,
     __amount__ AS sqlgen_amount,
     {% if revenue.where %}CASE WHEN (__revenue_where__) THEN 1 ELSE 0 END{% else %}1{% endif %} AS sqlgen_kept
     {%- if revenue.shape == 'subscriptions' %},
-    {% if revenue.end %}__revenue_end__{% else %}CAST(NULL AS DATE){% endif %} AS sqlgen_end_value,
+    {% if revenue.end %}{{ p.near_value('__revenue_end__', revenue.timestamp_type, 'revenue') }}{% else %}CAST(NULL AS DATE){% endif %} AS sqlgen_end_near,
+    {% if revenue.end %}CASE WHEN __revenue_end__ < CAST('__revenue_near_from__' AS {{ raw_type }}) THEN 1 ELSE 0 END{% else %}0{% endif %} AS sqlgen_end_early,
     {{ interval_months() }} AS sqlgen_months
     {%- endif %}
   FROM __revenue_table__
@@ -79,9 +87,12 @@ sqlgen_source AS (
     sqlgen_customer,
     sqlgen_amount,
     sqlgen_kept,
-    {{ local_date('sqlgen_date_value') }} AS row_date
+    sqlgen_date_value,
+    sqlgen_date_near,
+    {{ local_date('sqlgen_date_near') }} AS row_date
     {%- if revenue.shape == 'subscriptions' %},
-    {% if revenue.end %}{{ local_date('sqlgen_end_value') }}{% else %}sqlgen_end_value{% endif %} AS row_end,
+    {% if revenue.end %}{{ local_date('sqlgen_end_near') }}{% else %}sqlgen_end_near{% endif %} AS sqlgen_end_date,
+    sqlgen_end_early,
     sqlgen_months AS row_months
     {%- endif %}
   FROM sqlgen_source
@@ -91,17 +102,19 @@ sqlgen_source AS (
     sqlgen_amount,
     row_date,
     {%- if revenue.shape == 'subscriptions' %}
-    row_end,
+    CASE WHEN sqlgen_end_date < CAST('__revenue_valid_until__' AS DATE) THEN sqlgen_end_date END AS row_end,
     row_months,
     {%- endif %}
     CASE
       WHEN sqlgen_customer IS NULL THEN 'null_customer'
-      WHEN row_date IS NULL THEN 'null_date'
+      WHEN sqlgen_date_value IS NULL OR (sqlgen_date_near IS NOT NULL AND row_date IS NULL) THEN 'null_date'
       WHEN sqlgen_amount IS NULL THEN 'null_amount'
       WHEN sqlgen_kept = 0 THEN 'filtered_out'
+      WHEN row_date IS NULL OR NOT ({{ p.in_range('row_date', 'revenue') }}) THEN 'out_of_range'
       {%- if revenue.shape == 'subscriptions' %}
+      WHEN sqlgen_end_early = 1 OR sqlgen_end_date < CAST('__revenue_valid_from__' AS DATE) THEN 'out_of_range'
       WHEN row_months IS NULL THEN 'invalid'
-      WHEN row_end IS NOT NULL AND row_end <= row_date THEN 'invalid'
+      WHEN sqlgen_end_date < CAST('__revenue_valid_until__' AS DATE) AND sqlgen_end_date <= row_date THEN 'invalid'
       {%- endif %}
       ELSE 'counted'
     END AS row_status
@@ -249,10 +262,10 @@ spans AS (
 {%- macro segments(p) -%}
 {%- if grain.family == 'month' -%}
 months AS (
-  SELECT d.first_key + {{ p.counting_value(4) }} AS segment_month
+  SELECT d.first_key + {{ p.counting_value(grain.month_digits) }} AS segment_month
   FROM data_range AS d
-  CROSS JOIN {{ p.counting(4) }}
-  WHERE d.first_key + {{ p.counting_value(4) }} <= d.last_key{% if grain.step > 1 %} + {{ grain.step - 1 }}{% endif %}
+  CROSS JOIN {{ p.counting(grain.month_digits) }}
+  WHERE d.first_key + {{ p.counting_value(grain.month_digits) }} <= d.last_key{% if grain.step > 1 %} + {{ grain.step - 1 }}{% endif %}
 ), month_edges AS (
   SELECT
     {% if grain.step == 1 %}segment_month{% else %}segment_month - (segment_month % 12) % {{ grain.step }}{% endif %} AS edge_key,

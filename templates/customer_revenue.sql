@@ -5,7 +5,7 @@
     change from the previous period into exactly one component, so per row
       revenue = previous + new + resurrected + expansion - contraction - churned
       previous = retained + contraction + churned. -#}
-WITH {{ r.source_rows() }}, counted AS (
+WITH {{ r.source_rows(p) }}, counted AS (
   SELECT
     sqlgen_customer AS counted_customer,
     row_date AS counted_date,

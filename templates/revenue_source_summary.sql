@@ -1,12 +1,13 @@
 {%- import '_periods.sql' as p with context -%}
 {%- import '_revenue.sql' as r with context -%}
-WITH {{ r.source_rows() }}
+WITH {{ r.source_rows(p) }}
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,
   COUNT(CASE WHEN row_status = 'null_date' THEN 1 END) AS null_date_rows,
   COUNT(CASE WHEN row_status = 'null_amount' THEN 1 END) AS null_amount_rows,
   COUNT(CASE WHEN row_status = 'filtered_out' THEN 1 END) AS filtered_out_rows,
+  COUNT(CASE WHEN row_status = 'out_of_range' THEN 1 END) AS out_of_range_rows,
   COUNT(CASE WHEN row_status = 'invalid' THEN 1 END) AS invalid_rows,
   COUNT(CASE WHEN row_status = 'counted' THEN 1 END) AS counted_rows,
   {%- if revenue.shape == 'subscriptions' and revenue.measure == 'run_rate' %}

@@ -17,7 +17,6 @@
 WITH {{ a.source_ctes() }}, numbered AS (
   SELECT user_id AS day_user, DATE_DIFF('day', DATE '1970-01-05', activity_date) AS day_number
   FROM dated
-  WHERE activity_date IS NOT NULL
 ), blocked AS (
   SELECT day_user, day_number, day_number - (day_number + {{ 700000 - 700000 % block }}) % {{ block }} AS block_number
   FROM numbered
@@ -91,10 +90,10 @@ WITH {{ a.source_ctes() }}, numbered AS (
   SELECT MIN(first_day) AS first_day, MAX(last_day) AS last_day
   FROM user_blocks
 ), {{ p.digits_cte() }}, calendar AS (
-  SELECT r.first_day + {{ p.counting_value(5) }} AS calendar_day
+  SELECT r.first_day + {{ p.counting_value(grain.day_digits) }} AS calendar_day
   FROM data_range AS r
-  CROSS JOIN {{ p.counting(5) }}
-  WHERE r.first_day + {{ p.counting_value(5) }} <= r.last_day
+  CROSS JOIN {{ p.counting(grain.day_digits) }}
+  WHERE r.first_day + {{ p.counting_value(grain.day_digits) }} <= r.last_day
 ), running AS (
   SELECT
     c.calendar_day AS grid_day,

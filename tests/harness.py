@@ -212,3 +212,18 @@ def run_revenue(engine, target: str, rows, *, shape: str = "charges", kind: str 
                           _date("period_start", v) for c, v in row.items()}
                          for row in read_view(engine, name, target)]
     return results
+
+
+def storable_rows(engine_name: str, rows):
+    """The rows an engine can load: ClickHouse's Date holds 1970-01-01 .. 2149-06-06 only
+    (see strategies.CLICKHOUSE_DATES), so date-typed sentinels outside it are dropped there;
+    every other engine, and ClickHouse's DateTime64, loads them all (year 1 to 9999)."""
+    from strategies import CLICKHOUSE_DATES
+
+    if engine_name != "clickhouse":
+        return list(rows)
+
+    def fits(value) -> bool:
+        return (not isinstance(value, dt.date) or isinstance(value, dt.datetime)
+                or CLICKHOUSE_DATES[0] <= value <= CLICKHOUSE_DATES[1])
+    return [row for row in rows if all(fits(v) for v in row)]

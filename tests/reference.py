@@ -7,7 +7,9 @@ line by line.
 
 Input events are ``(user, ts)`` pairs: ``user`` is a str, an int or None;
 ``ts`` is a ``datetime.date``, a naive or aware ``datetime.datetime``, or
-None. Rows with a None user or a None ts are left out of every output.
+None. Rows with a None user or a None ts are left out of every output, and so are rows
+whose local date lies outside the valid range (``valid``: the spec's ``valid_from``
+inclusive, ``valid_until`` exclusive; by default 1990-01-01 and 2100-01-01).
 
 Regenerate the fixture expectations with ``python tests/reference.py``.
 """
@@ -55,6 +57,7 @@ _INT_COLUMNS = {
     "null_timestamp",
 }
 _FLOAT_COLUMNS = {"quick_ratio", "retention_rate", "churn_rate"}
+VALID_RANGE = (date(1990, 1, 1), date(2100, 1, 1))  # the spec's default valid_from, valid_until
 
 
 # --------------------------------------------------------------------------
@@ -82,6 +85,29 @@ def local_date(ts, timezone=None):
             raise ValueError(f"date value {ts} cannot be converted to timezone {timezone!r}")
         return ts
     raise TypeError(f"expected a date or datetime, got {type(ts).__name__}")
+
+
+def range_side(ts, timezone=None, valid=VALID_RANGE):
+    """-1, 0 or 1: the local date of ``ts`` is before, in or after ``valid`` = (first date,
+    first date after).
+
+    A local date is less than a day from the stored date, so a value stored more than a day
+    outside the range is outside it in every zone; it is never converted (a sentinel such as
+    0001-01-01 would leave the years Python can hold).
+    """
+    first, after = valid
+    stored = ts.date() if isinstance(ts, datetime) else ts
+    if stored < first - timedelta(days=1):
+        return -1
+    if stored >= after + timedelta(days=1):
+        return 1
+    day = local_date(ts, timezone)
+    return -1 if day < first else 1 if day >= after else 0
+
+
+def in_valid_range(ts, timezone=None, valid=VALID_RANGE):
+    """True when the local date of ``ts`` lies in the valid range."""
+    return range_side(ts, timezone, valid) == 0
 
 
 def _check_calendar_args(d, grain, week_start):
@@ -163,24 +189,31 @@ def excluded_counts(events):
     return counts
 
 
-def _included(events):
-    """Return the events that have both a user and a timestamp."""
-    return [(user, ts) for user, ts in events if user is not None and ts is not None]
+def out_of_range_count(events, timezone=None, valid=VALID_RANGE):
+    """Count the rows with a user and a timestamp whose local date is outside ``valid``."""
+    return sum(1 for user, ts in events if user is not None and ts is not None
+               and not in_valid_range(ts, timezone, valid))
 
 
-def user_activity(events, grain, week_start="monday", timezone=None):
+def _included(events, timezone=None, valid=VALID_RANGE):
+    """Return the events that have a user and a timestamp whose local date is in ``valid``."""
+    return [(user, ts) for user, ts in events if user is not None and ts is not None
+            and in_valid_range(ts, timezone, valid)]
+
+
+def user_activity(events, grain, week_start="monday", timezone=None, valid=VALID_RANGE):
     """Return ``{(user, period_start): number_of_events}`` for active user-periods.
 
     Duplicate events are counted separately.
     """
     activity = Counter()
-    for user, ts in _included(events):
+    for user, ts in _included(events, timezone, valid):
         day = local_date(ts, timezone)
         activity[(user, period_start(day, grain, week_start))] += 1
     return dict(activity)
 
 
-def user_states(events, grain, week_start="monday", timezone=None):
+def user_states(events, grain, week_start="monday", timezone=None, valid=VALID_RANGE):
     """Return the set of ``(user, period_start, state)`` rows.
 
     Each active user-period is 'new' (the user's first active period),
@@ -189,7 +222,7 @@ def user_states(events, grain, week_start="monday", timezone=None):
     period Q gets ``(user, Q, 'churned')`` when Q is not after the last
     period that has any activity.
     """
-    activity = user_activity(events, grain, week_start, timezone)
+    activity = user_activity(events, grain, week_start, timezone, valid)
     if not activity:
         return set()
     last_period = max(p for _, p in activity)
@@ -244,19 +277,19 @@ def _growth_row(p, active, previous, state_counts):
     }
 
 
-def growth_accounting(events, grain, week_start="monday", timezone=None):
+def growth_accounting(events, grain, week_start="monday", timezone=None, valid=VALID_RANGE):
     """Return one dict per period, ascending, from the first to the last active period.
 
     Periods without activity inside the range are included. Keys are
     GROWTH_COLUMNS. The last period is 'complete' only when the newest
     event's local date is the last day of that period, else 'in_progress'.
     """
-    events = _included(events)
-    activity = user_activity(events, grain, week_start, timezone)
+    events = _included(events, timezone, valid)
+    activity = user_activity(events, grain, week_start, timezone, valid)
     if not activity:
         return []
     state_counts = Counter(
-        (p, state) for _, p, state in user_states(events, grain, week_start, timezone)
+        (p, state) for _, p, state in user_states(events, grain, week_start, timezone, valid)
     )
     active_users = Counter(p for _, p in activity)
     first_period = min(active_users)

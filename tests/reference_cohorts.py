@@ -29,7 +29,7 @@ TRAILING_COLUMNS = ("day", "window_days", "active_users", "previous_active_users
 def active_dates(events, timezone=None):
     """Return ``{user: set of local dates with activity}``."""
     dates = defaultdict(set)
-    for user, ts in _included(events):
+    for user, ts in _included(events, timezone):
         dates[user].add(local_date(ts, timezone))
     return dict(dates)
 

@@ -24,6 +24,10 @@ out step by step, differently from the SQL (which works on integer units and seg
   interval) / 365 per covered day. A share is one subscription's days in one period and
   (for month-family grains) one month; each share is rounded to the scale, half away from
   zero; shares are summed.
+- The valid range (the spec's valid_from inclusive, valid_until exclusive; by default
+  1990-01-01 and 2100-01-01) applies to the local date of a charge or of a subscription's
+  start: outside it the row is out_of_range. A subscription ending before valid_from is
+  out_of_range too; one ending on or after valid_until has no end, like one whose end is None.
 - Periods run from the period of the first counted date to the period of the last (a
   charge's date, a subscription's start or end), empty periods included.
 
@@ -41,12 +45,14 @@ from pathlib import Path
 
 from reference import (
     GRAIN_LABELS,
+    VALID_RANGE,
     csv_text,
     local_date,
     next_period_start,
     period_end,
     period_start,
     previous_period_start,
+    range_side,
 )
 
 MONEY = ("revenue", "previous_revenue", "new_revenue", "expansion_revenue",
@@ -62,8 +68,8 @@ ACCOUNTING_COLUMNS = ("period_start", *MONEY, "customers", "previous_customers",
                       "net_revenue_retention", "zeroed_customers", "zeroed_amount",
                       "amount_total", "period_status")
 SUMMARY_COLUMNS = ("source_rows", "null_customer_rows", "null_date_rows", "null_amount_rows",
-                   "filtered_out_rows", "invalid_rows", "counted_rows", "first_date",
-                   "last_date")
+                   "filtered_out_rows", "out_of_range_rows", "invalid_rows", "counted_rows",
+                   "first_date", "last_date")
 MONEY_COLUMNS = set(MONEY) | {"period_amount", "zeroed_amount", "amount_total"}
 FLOAT_COLUMNS = {"quick_ratio", "gross_revenue_retention", "net_revenue_retention"}
 INTERVAL_MONTHS = {"month": 1, "monthly": 1, "quarter": 3, "quarterly": 3, "year": 12,
@@ -75,30 +81,35 @@ ZERO = Decimal(0)
 # --------------------------------------------------------------------------- source rows
 
 
-def _status(customer, day, amount, currency, keep_currency):
+def _status(customer, value, amount, currency, keep_currency, side):
+    """The row's status from its raw date ``value`` and that date's range_side ``side``."""
     if customer is None:
         return "null_customer"
-    if day is None:
+    if value is None:
         return "null_date"
     if amount is None:
         return "null_amount"
     if keep_currency is not None and currency != keep_currency:
         return "filtered_out"  # SQL: currency = 'EUR' is not true for NULL either
+    if side != 0:
+        return "out_of_range"
     return "counted"
 
 
 def _summary(statuses, counted_dates, last_dates):
     count = {s: statuses.count(s) for s in ("null_customer", "null_date", "null_amount",
-                                            "filtered_out", "invalid", "counted")}
+                                            "filtered_out", "out_of_range", "invalid",
+                                            "counted")}
     return {"source_rows": len(statuses), "null_customer_rows": count["null_customer"],
             "null_date_rows": count["null_date"], "null_amount_rows": count["null_amount"],
-            "filtered_out_rows": count["filtered_out"], "invalid_rows": count["invalid"],
+            "filtered_out_rows": count["filtered_out"],
+            "out_of_range_rows": count["out_of_range"], "invalid_rows": count["invalid"],
             "counted_rows": count["counted"],
             "first_date": min(counted_dates, default=None),
             "last_date": max(last_dates, default=None)}
 
 
-def charges_source(charges, timezone=None, keep_currency=None):
+def charges_source(charges, timezone=None, keep_currency=None, valid=VALID_RANGE):
     """(summary dict, counted [(customer, local date, amount)]) for charge tuples.
 
     A charge is ``(customer, ts, amount[, currency])``; currency defaults to 'EUR'.
@@ -107,28 +118,34 @@ def charges_source(charges, timezone=None, keep_currency=None):
     for row in charges:
         customer, ts, amount = row[:3]
         currency = row[3] if len(row) > 3 else "EUR"
-        day = None if ts is None else local_date(ts, timezone)
-        status = _status(customer, day, amount, currency, keep_currency)
+        side = None if ts is None else range_side(ts, timezone, valid)
+        status = _status(customer, ts, amount, currency, keep_currency, side)
         statuses.append(status)
         if status == "counted":
-            counted.append((customer, day, amount))
+            counted.append((customer, local_date(ts, timezone), amount))
     days = [d for _, d, _ in counted]
     return _summary(statuses, days, days), counted
 
 
-def subscriptions_source(subscriptions, timezone=None, keep_currency=None):
+def subscriptions_source(subscriptions, timezone=None, keep_currency=None, valid=VALID_RANGE):
     """(summary, counted [(customer, start, end or None, amount, months)]).
 
-    A subscription is ``(customer, start, end, amount, interval[, currency])``. It is invalid
-    (counted in invalid_rows, left out) when the interval is unknown or end <= start.
+    A subscription is ``(customer, start, end, amount, interval[, currency])``. It is out of
+    range when its start is outside the valid range or its end before it; an end after the
+    range counts as no end. It is invalid (counted in invalid_rows, left out) when the
+    interval is unknown or end <= start.
     """
     statuses, counted = [], []
     for row in subscriptions:
         customer, start, end, amount, interval = row[:5]
         currency = row[5] if len(row) > 5 else "EUR"
-        first = None if start is None else local_date(start, timezone)
-        last = None if end is None else local_date(end, timezone)
-        status = _status(customer, first, amount, currency, keep_currency)
+        side = None if start is None else range_side(start, timezone, valid)
+        end_side = None if end is None else range_side(end, timezone, valid)
+        first = local_date(start, timezone) if side == 0 else None
+        last = local_date(end, timezone) if end_side == 0 else None
+        status = _status(customer, start, amount, currency, keep_currency, side)
+        if status == "counted" and end_side == -1:
+            status = "out_of_range"
         months = INTERVAL_MONTHS.get(interval.lower()) if interval is not None else None
         if status == "counted" and (months is None or (last is not None and last <= first)):
             status = "invalid"
@@ -316,17 +333,17 @@ def _accounting_row(period, rows):
 
 
 def revenue_views(rows, shape, grain, week_start="monday", timezone=None,
-                  keep_currency=None, scale=2, measure="run_rate"):
+                  keep_currency=None, scale=2, measure="run_rate", valid=VALID_RANGE):
     """{'revenue_source_summary': [..], 'customer_revenue': [..], 'revenue_accounting': [..]}.
 
     ``measure`` ('run_rate' or 'recognized') applies to subscriptions only; with run_rate
     the summary has ``no_run_rate_rows`` too.
     """
     if shape == "charges":
-        summary, counted = charges_source(rows, timezone, keep_currency)
+        summary, counted = charges_source(rows, timezone, keep_currency, valid)
         totals = charge_totals(counted, grain, week_start, scale)
     else:
-        summary, counted = subscriptions_source(rows, timezone, keep_currency)
+        summary, counted = subscriptions_source(rows, timezone, keep_currency, valid)
         totals = {}
         if measure == "run_rate":
             never = 0

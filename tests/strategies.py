@@ -5,7 +5,9 @@ small pool of users so that users recur across periods. Dates cluster in
 a window that often starts on a calendar edge: year ends, leap days,
 ISO week 53 years (2020, 2026), month and quarter boundaries, and the
 2021 New York DST change days. Times favour exact midnight and the last
-microsecond of a day.
+microsecond of a day. A few rows carry sentinel timestamps outside the spec's default
+valid range (0001-01-01, 1900-01-01, epoch zero, 9999-12-31 and the instants just
+outside its bounds): the views must leave them out and the summary count them.
 """
 
 from __future__ import annotations
@@ -64,6 +66,21 @@ USER_NAMES = ("ann", "bob", "cat", "dan", "eve", "fin", "gil", "hana", "ivo", "j
 TIMEZONE_NAMES = ("UTC", "America/New_York", "Europe/Berlin", "Asia/Kolkata", "Pacific/Auckland")
 
 EVENT_KINDS = ("timestamp", "timestamptz", "date")
+
+# Sentinels warehouses store for "unknown" or "never" (common practice), and the last
+# microsecond before the default valid_from (1990-01-01) and the default valid_until itself
+# (2100-01-01, exclusive): all outside the default valid range in UTC.
+SENTINELS = (
+    datetime(1, 1, 1),
+    datetime(1900, 1, 1),
+    datetime(1970, 1, 1),
+    datetime(9999, 12, 31, 23, 59, 59),
+    datetime(1989, 12, 31, 23, 59, 59, 999999),
+    datetime(2100, 1, 1),
+)
+# ClickHouse's Date holds 1970-01-01 .. 2149-06-06 (its manual, from memory): date-typed
+# sentinels outside it cannot even be loaded there.
+CLICKHOUSE_DATES = (date(1970, 1, 1), date(2149, 6, 6))
 
 _TIMES = st.one_of(st.just(time(0, 0)), st.just(time(23, 59, 59, 999999)), st.times())
 
@@ -131,14 +148,29 @@ def _maybe_none(values, allow_none):
     return st.tuples(st.integers(0, 9), values).map(lambda pair: None if pair[0] == 0 else pair[1])
 
 
+def sentinel_values(kind="timestamp", engine=None):
+    """The sentinels as values of ``kind``; on ClickHouse, date-typed ones it can store."""
+    if kind == "date":
+        days = sorted({ts.date() for ts in SENTINELS})
+        if engine == "clickhouse":
+            days = [d for d in days if CLICKHOUSE_DATES[0] <= d <= CLICKHOUSE_DATES[1]]
+        return days
+    if kind == "timestamptz":
+        return [ts.replace(tzinfo=UTC) for ts in SENTINELS]
+    return list(SENTINELS)
+
+
 @st.composite
-def events(draw, kind="timestamp", max_size=60, allow_none=True, user_type=str):
+def events(draw, kind="timestamp", max_size=60, allow_none=True, user_type=str,
+           sentinels=None):
     """Strategy for a list of ``(user, ts)`` events.
 
     ``kind``: 'timestamp' (naive datetimes), 'timestamptz' (UTC-aware
     datetimes) or 'date'. ``user_type``: str or int. With ``allow_none``
     about one user and one timestamp in ten is None. Some rows are repeated
-    exactly to make duplicate events. At most ``max_size`` rows.
+    exactly to make duplicate events. Up to three more rows carry a sentinel
+    timestamp (``sentinels``, by default sentinel_values(kind)). At most
+    ``max_size`` rows before the sentinels.
     """
     if user_type is str:
         pool = draw(st.lists(st.sampled_from(USER_NAMES), min_size=1, max_size=6, unique=True))
@@ -156,4 +188,8 @@ def events(draw, kind="timestamp", max_size=60, allow_none=True, user_type=str):
             st.lists(st.integers(0, len(rows) - 1), max_size=min(10, max_size - len(rows)))
         )
         rows += [rows[i] for i in repeats]
+    values = sentinel_values(kind) if sentinels is None else list(sentinels)
+    if values:
+        rows += draw(st.lists(st.tuples(st.sampled_from(pool), st.sampled_from(values)),
+                              max_size=3))
     return draw(st.permutations(rows))

@@ -181,7 +181,7 @@ HOSTILE_YAML = [
     ("date-version", GOOD.replace("version: 1", "version: 2020-01-01"),
      ("version:", "the date 2020-01-01")),
     ("impossible-date", GOOD.replace("version: 1", "version: 2020-13-45"),
-     ("1:10: version: cannot read the value",)),
+     ("1:10: version: expected 1", "'2020-13-45'")),
     ("nan-version", GOOD.replace("version: 1", "version: .nan"), ("version:", "nan")),
     ("string-version", GOOD.replace("version: 1", "version: '1'"), ("version:", "'1'")),
     ("bool-version", GOOD.replace("version: 1", "version: true"), ("version:", "got true")),
@@ -542,17 +542,16 @@ week_start: sunday
     assert "activity table" in both and "revenue table" in both
 
 
-def test_header_shows_the_valid_range_when_the_spec_has_one():
-    """The range keys (activity.valid_from / valid_until) arrive with another change; the
-    header shows them as soon as the source carries them."""
+def test_header_shows_the_valid_range():
+    """The valid range decides which rows count: the header states it, default or not."""
     spec = parse_spec(GOOD, "g.yml")
-    fields = {f.name: getattr(spec.activity, f.name) for f in dataclasses.fields(spec.activity)}
-    ranged = types.SimpleNamespace(**fields, valid_from=dt.date(1990, 1, 1),
-                                   valid_until=dt.date(2100, 1, 1))
-    lines = deciding_lines(dataclasses.replace(spec, activity=ranged), None)
     assert ("activity valid range: 1990-01-01 to 2100-01-01; rows outside it are left out"
-            in lines)
-    assert not any("valid range" in line for line in deciding_lines(spec, None))
+            in deciding_lines(spec, None))
+    ranged = parse_spec(GOOD.replace("  timestamp: occurred_at\n",
+                                     "  timestamp: occurred_at\n  valid_from: 2015-03-01\n"),
+                        "g.yml")
+    assert ("activity valid range: 2015-03-01 to 2100-01-01; rows outside it are left out"
+            in deciding_lines(ranged, None))
 
 
 def test_every_view_names_the_spec_key_that_asks_for_it():

@@ -22,8 +22,10 @@ from reference import (
     fixture_events,
     fixture_expectations,
     growth_accounting,
+    in_valid_range,
     local_date,
     next_period_start,
+    out_of_range_count,
     period_end,
     period_start,
     read_expected,
@@ -142,7 +144,9 @@ def check_generated(data, grain, week_start="monday", tz=None):
     """Identities and internal consistency of the reference on one dataset."""
     rows = growth_accounting(data, grain, week_start, tz)
     assert_identities(rows)
-    included = [(u, ts) for u, ts in data if u is not None and ts is not None]
+    present = [(u, ts) for u, ts in data if u is not None and ts is not None]
+    included = [(u, ts) for u, ts in present if in_valid_range(ts, tz)]
+    assert len(included) + out_of_range_count(data, tz) == len(present)
     activity = user_activity(data, grain, week_start, tz)
     assert sum(activity.values()) == len(included)
     assert sum(r["new_users"] for r in rows) == len({u for u, _ in included})

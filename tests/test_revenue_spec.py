@@ -37,7 +37,7 @@ CASES = [
      ["s.yml:3:3: revenue.amount: required key is missing from revenue; e.g. amount: amount",
       "s.yml:6:3: revenue.amonut: unknown key. Did you mean 'amount'? Allowed here: shape, "
       "table, customer, timestamp, amount, scale, start, end, interval, interval_column, "
-      "measure, timestamp_type, where, timezone"]),
+      "measure, timestamp_type, where, timezone, valid_from, valid_until"]),
     ("shape", CHARGES.replace("revenue:\n", "revenue:\n  shape: subscription\n"),
      ["s.yml:3:10: revenue.shape: 'subscription' is not one of charges, subscriptions. "
       "Did you mean 'subscriptions'?"]),

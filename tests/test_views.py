@@ -81,14 +81,17 @@ def test_fixture_matches_reference(engines, engine_name, target, fixture, grain,
 
 
 def expected_summary(raw, drop) -> dict:
-    """The source row counts, straight from the rows (a NULL event_name fails `<>`)."""
+    """The source row counts, straight from the rows (a NULL event_name fails `<>`); the
+    valid range is tried on the rows `where` keeps."""
     excluded = ref.excluded_counts([(u, ts) for u, ts, _name in raw])
-    present = [name for u, ts, name in raw if u is not None and ts is not None]
-    kept = [name for name in present if drop is None or (name is not None and name != drop)]
+    present = [(u, ts, name) for u, ts, name in raw if u is not None and ts is not None]
+    kept = [(u, ts) for u, ts, name in present
+            if drop is None or (name is not None and name != drop)]
+    outside = ref.out_of_range_count(kept)
     return {"source_rows": len(raw), "null_user_rows": excluded["null_user"],
             "null_timestamp_rows": excluded["null_timestamp"],
-            "filtered_out_rows": len(present) - len(kept), "unconverted_rows": 0,
-            "counted_rows": len(kept)}
+            "filtered_out_rows": len(present) - len(kept), "out_of_range_rows": outside,
+            "unconverted_rows": 0, "counted_rows": len(kept) - outside}
 
 
 @pytest.mark.parametrize("engine_name,target", engine_target_pairs(only=("duckdb",)))

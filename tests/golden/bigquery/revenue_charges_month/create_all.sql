@@ -4,6 +4,7 @@
 --   revenue table: billing.invoice_lines (charges)
 --   revenue time: timestamps without zone, used as stored (no time zone conversion)
 --   revenue where: currency = 'EUR'
+--   revenue valid range: 1990-01-01 to 2100-01-01; rows outside it are left out
 --   grain: month
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
@@ -17,6 +18,11 @@ WITH sqlgen_source AS (
   SELECT
     `account_id` AS sqlgen_customer,
     `invoiced_at` AS sqlgen_date_value,
+    CASE
+      WHEN `invoiced_at` >= CAST('1989-12-30 00:00:00' AS DATETIME)
+      AND `invoiced_at` < CAST('2100-01-03 00:00:00' AS DATETIME)
+      THEN `invoiced_at`
+    END AS sqlgen_date_near,
     `amount` AS sqlgen_amount,
     CASE WHEN (
       `currency` = 'EUR'
@@ -27,7 +33,9 @@ WITH sqlgen_source AS (
     sqlgen_customer,
     sqlgen_amount,
     sqlgen_kept,
-    CAST(sqlgen_date_value AS DATE) AS row_date
+    sqlgen_date_value,
+    sqlgen_date_near,
+    CAST(sqlgen_date_near AS DATE) AS row_date
   FROM sqlgen_source
 ), sqlgen_rows AS (
   SELECT
@@ -37,12 +45,20 @@ WITH sqlgen_source AS (
     CASE
       WHEN sqlgen_customer IS NULL
       THEN 'null_customer'
-      WHEN row_date IS NULL
+      WHEN sqlgen_date_value IS NULL
+      OR (
+        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+      )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
       THEN 'null_amount'
       WHEN sqlgen_kept = 0
       THEN 'filtered_out'
+      WHEN row_date IS NULL
+      OR NOT (
+        row_date >= CAST('1990-01-01' AS DATE) AND row_date < CAST('2100-01-01' AS DATE)
+      )
+      THEN 'out_of_range'
       ELSE 'counted'
     END AS row_status
   FROM sqlgen_dated
@@ -53,6 +69,7 @@ SELECT
   COUNT(CASE WHEN row_status = 'null_date' THEN 1 END) AS null_date_rows,
   COUNT(CASE WHEN row_status = 'null_amount' THEN 1 END) AS null_amount_rows,
   COUNT(CASE WHEN row_status = 'filtered_out' THEN 1 END) AS filtered_out_rows,
+  COUNT(CASE WHEN row_status = 'out_of_range' THEN 1 END) AS out_of_range_rows,
   COUNT(CASE WHEN row_status = 'invalid' THEN 1 END) AS invalid_rows,
   COUNT(CASE WHEN row_status = 'counted' THEN 1 END) AS counted_rows,
   MIN(CASE WHEN row_status = 'counted' THEN row_date END) AS first_date,
@@ -65,6 +82,11 @@ WITH sqlgen_source AS (
   SELECT
     `account_id` AS sqlgen_customer,
     `invoiced_at` AS sqlgen_date_value,
+    CASE
+      WHEN `invoiced_at` >= CAST('1989-12-30 00:00:00' AS DATETIME)
+      AND `invoiced_at` < CAST('2100-01-03 00:00:00' AS DATETIME)
+      THEN `invoiced_at`
+    END AS sqlgen_date_near,
     `amount` AS sqlgen_amount,
     CASE WHEN (
       `currency` = 'EUR'
@@ -75,7 +97,9 @@ WITH sqlgen_source AS (
     sqlgen_customer,
     sqlgen_amount,
     sqlgen_kept,
-    CAST(sqlgen_date_value AS DATE) AS row_date
+    sqlgen_date_value,
+    sqlgen_date_near,
+    CAST(sqlgen_date_near AS DATE) AS row_date
   FROM sqlgen_source
 ), sqlgen_rows AS (
   SELECT
@@ -85,12 +109,20 @@ WITH sqlgen_source AS (
     CASE
       WHEN sqlgen_customer IS NULL
       THEN 'null_customer'
-      WHEN row_date IS NULL
+      WHEN sqlgen_date_value IS NULL
+      OR (
+        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+      )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
       THEN 'null_amount'
       WHEN sqlgen_kept = 0
       THEN 'filtered_out'
+      WHEN row_date IS NULL
+      OR NOT (
+        row_date >= CAST('1990-01-01' AS DATE) AND row_date < CAST('2100-01-01' AS DATE)
+      )
+      THEN 'out_of_range'
       ELSE 'counted'
     END AS row_status
   FROM sqlgen_dated

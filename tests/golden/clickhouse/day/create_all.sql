@@ -4,6 +4,7 @@
 --   activity table: raw.app_events
 --   activity time: timestamps without zone, used as stored (no time zone conversion)
 --   activity where: event_name <> 'push_received'
+--   activity valid range: 1990-01-01 to 2100-01-01; rows outside it are left out
 --   grain: day
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
@@ -19,6 +20,11 @@ WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts,
+    CASE
+      WHEN "occurred_at" >= CAST('1989-12-30 00:00:00' AS Nullable(DateTime))
+      AND "occurred_at" < CAST('2100-01-03 00:00:00' AS Nullable(DateTime))
+      THEN "occurred_at"
+    END AS sqlgen_near_ts,
     CASE WHEN (
       "event_name" <> 'push_received'
     ) THEN 1 ELSE 0 END AS sqlgen_kept
@@ -27,55 +33,39 @@ WITH sqlgen_source AS (
   SELECT
     sqlgen_user,
     sqlgen_ts,
+    sqlgen_near_ts,
     sqlgen_kept,
-    CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_local_date
+    CAST(sqlgen_near_ts AS Nullable(DATE)) AS sqlgen_local_date
   FROM sqlgen_source
+), sqlgen_sorted AS (
+  SELECT
+    CASE
+      WHEN sqlgen_user IS NULL
+      THEN 'null_user'
+      WHEN sqlgen_ts IS NULL
+      THEN 'null_timestamp'
+      WHEN sqlgen_kept = 0
+      THEN 'filtered_out'
+      WHEN sqlgen_near_ts IS NULL
+      THEN 'out_of_range'
+      WHEN sqlgen_local_date IS NULL
+      THEN 'unconverted'
+      WHEN sqlgen_local_date >= CAST('1990-01-01' AS Nullable(DATE))
+      AND sqlgen_local_date < CAST('2100-01-01' AS Nullable(DATE))
+      THEN 'counted'
+      ELSE 'out_of_range'
+    END AS row_status
+  FROM sqlgen_dated
 )
 SELECT
   COUNT(*) AS source_rows,
-  COUNT(CASE WHEN sqlgen_user IS NULL THEN 1 END) AS null_user_rows,
-  COUNT(CASE WHEN NOT (
-    sqlgen_user IS NULL
-  ) AND sqlgen_ts IS NULL THEN 1 END) AS null_timestamp_rows,
-  COUNT(
-    CASE
-      WHEN NOT (
-        sqlgen_user IS NULL
-      ) AND NOT (
-        sqlgen_ts IS NULL
-      ) AND sqlgen_kept = 0
-      THEN 1
-    END
-  ) AS filtered_out_rows,
-  COUNT(
-    CASE
-      WHEN NOT (
-        sqlgen_user IS NULL
-      )
-      AND NOT (
-        sqlgen_ts IS NULL
-      )
-      AND sqlgen_kept = 1
-      AND sqlgen_local_date IS NULL
-      THEN 1
-    END
-  ) AS unconverted_rows,
-  COUNT(
-    CASE
-      WHEN NOT (
-        sqlgen_user IS NULL
-      )
-      AND NOT (
-        sqlgen_ts IS NULL
-      )
-      AND sqlgen_kept = 1
-      AND NOT (
-        sqlgen_local_date IS NULL
-      )
-      THEN 1
-    END
-  ) AS counted_rows
-FROM sqlgen_dated;
+  COUNT(CASE WHEN row_status = 'null_user' THEN 1 END) AS null_user_rows,
+  COUNT(CASE WHEN row_status = 'null_timestamp' THEN 1 END) AS null_timestamp_rows,
+  COUNT(CASE WHEN row_status = 'filtered_out' THEN 1 END) AS filtered_out_rows,
+  COUNT(CASE WHEN row_status = 'out_of_range' THEN 1 END) AS out_of_range_rows,
+  COUNT(CASE WHEN row_status = 'unconverted' THEN 1 END) AS unconverted_rows,
+  COUNT(CASE WHEN row_status = 'counted' THEN 1 END) AS counted_rows
+FROM sqlgen_sorted;
 
 -- user_activity
 DROP VIEW IF EXISTS "growth".user_activity;
@@ -84,7 +74,11 @@ CREATE VIEW "growth".user_activity AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= CAST('1989-12-30 00:00:00' AS Nullable(DateTime))
+      AND "occurred_at" < CAST('2100-01-03 00:00:00' AS Nullable(DateTime))
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
     NOT (
@@ -96,21 +90,25 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS Nullable(DATE)) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS Nullable(DATE))
+    AND sqlgen_date < CAST('2100-01-01' AS Nullable(DATE))
 ), keyed AS (
   SELECT
     user_id,
     activity_date,
     DATE_DIFF(DAY, CAST('1970-01-05' AS Nullable(DATE)), activity_date) AS period_key
   FROM dated
-  WHERE
-    NOT (
-      activity_date IS NULL
-    )
 ), user_periods AS (
   SELECT
     user_id,
@@ -141,7 +139,11 @@ CREATE VIEW "growth".user_states AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= CAST('1989-12-30 00:00:00' AS Nullable(DateTime))
+      AND "occurred_at" < CAST('2100-01-03 00:00:00' AS Nullable(DateTime))
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
     NOT (
@@ -153,21 +155,25 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS Nullable(DATE)) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS Nullable(DATE))
+    AND sqlgen_date < CAST('2100-01-01' AS Nullable(DATE))
 ), keyed AS (
   SELECT
     user_id,
     activity_date,
     DATE_DIFF(DAY, CAST('1970-01-05' AS Nullable(DATE)), activity_date) AS period_key
   FROM dated
-  WHERE
-    NOT (
-      activity_date IS NULL
-    )
 ), active_periods AS (
   SELECT
     user_id,
@@ -227,7 +233,11 @@ CREATE VIEW "growth".growth_accounting AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= CAST('1989-12-30 00:00:00' AS Nullable(DateTime))
+      AND "occurred_at" < CAST('2100-01-03 00:00:00' AS Nullable(DateTime))
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
     NOT (
@@ -239,21 +249,25 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS Nullable(DATE)) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS Nullable(DATE))
+    AND sqlgen_date < CAST('2100-01-01' AS Nullable(DATE))
 ), keyed AS (
   SELECT
     user_id,
     activity_date,
     DATE_DIFF(DAY, CAST('1970-01-05' AS Nullable(DATE)), activity_date) AS period_key
   FROM dated
-  WHERE
-    NOT (
-      activity_date IS NULL
-    )
 ), active_periods AS (
   SELECT
     user_id,
@@ -399,7 +413,11 @@ CREATE VIEW "growth".cohort_retention AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= CAST('1989-12-30 00:00:00' AS Nullable(DateTime))
+      AND "occurred_at" < CAST('2100-01-03 00:00:00' AS Nullable(DateTime))
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
     NOT (
@@ -411,21 +429,25 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS Nullable(DATE)) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS Nullable(DATE))
+    AND sqlgen_date < CAST('2100-01-01' AS Nullable(DATE))
 ), keyed AS (
   SELECT
     user_id,
     activity_date,
     DATE_DIFF(DAY, CAST('1970-01-05' AS Nullable(DATE)), activity_date) AS period_key
   FROM dated
-  WHERE
-    NOT (
-      activity_date IS NULL
-    )
 ), active_periods AS (
   SELECT
     user_id,
@@ -536,7 +558,11 @@ CREATE VIEW "growth".engagement_depth AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= CAST('1989-12-30 00:00:00' AS Nullable(DateTime))
+      AND "occurred_at" < CAST('2100-01-03 00:00:00' AS Nullable(DateTime))
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
     NOT (
@@ -548,21 +574,25 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS Nullable(DATE)) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS Nullable(DATE))
+    AND sqlgen_date < CAST('2100-01-01' AS Nullable(DATE))
 ), keyed AS (
   SELECT
     user_id,
     activity_date,
     DATE_DIFF(DAY, CAST('1970-01-05' AS Nullable(DATE)), activity_date) AS period_key
   FROM dated
-  WHERE
-    NOT (
-      activity_date IS NULL
-    )
 ), user_periods AS (
   SELECT
     user_id,
@@ -690,7 +720,11 @@ CREATE VIEW "growth".trailing_activity AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= CAST('1989-12-30 00:00:00' AS Nullable(DateTime))
+      AND "occurred_at" < CAST('2100-01-03 00:00:00' AS Nullable(DateTime))
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
     NOT (
@@ -702,20 +736,24 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS Nullable(DATE)) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS Nullable(DATE))
+    AND sqlgen_date < CAST('2100-01-01' AS Nullable(DATE))
 ), numbered AS (
   SELECT
     user_id AS day_user,
     DATE_DIFF(DAY, CAST('1970-01-05' AS Nullable(DATE)), activity_date) AS day_number
   FROM dated
-  WHERE
-    NOT (
-      activity_date IS NULL
-    )
 ), blocked AS (
   SELECT
     day_user,

@@ -6,6 +6,7 @@
 --   revenue table: billing.subscriptions (subscriptions)
 --   revenue time: timestamps without zone, used as stored (no time zone conversion)
 --   revenue where: currency = 'EUR'
+--   revenue valid range: 1990-01-01 to 2100-01-01; rows outside it are left out
 --   grain: week, weeks start on sunday
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
@@ -16,11 +17,25 @@ WITH sqlgen_source AS (
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
+    CASE
+      WHEN "started_at" >= CAST('1989-12-30 00:00:00' AS Nullable(DateTime))
+      AND "started_at" < CAST('2100-01-03 00:00:00' AS Nullable(DateTime))
+      THEN "started_at"
+    END AS sqlgen_date_near,
     "amount" AS sqlgen_amount,
     CASE WHEN (
       "currency" = 'EUR'
     ) THEN 1 ELSE 0 END AS sqlgen_kept,
-    "ended_at" AS sqlgen_end_value,
+    CASE
+      WHEN "ended_at" >= CAST('1989-12-30 00:00:00' AS Nullable(DateTime))
+      AND "ended_at" < CAST('2100-01-03 00:00:00' AS Nullable(DateTime))
+      THEN "ended_at"
+    END AS sqlgen_end_near,
+    CASE
+      WHEN "ended_at" < CAST('1989-12-30 00:00:00' AS Nullable(DateTime))
+      THEN 1
+      ELSE 0
+    END AS sqlgen_end_early,
     CASE LOWER("billing_interval")
       WHEN 'month'
       THEN 1
@@ -41,8 +56,11 @@ WITH sqlgen_source AS (
     sqlgen_customer,
     sqlgen_amount,
     sqlgen_kept,
-    CAST(sqlgen_date_value AS Nullable(DATE)) AS row_date,
-    CAST(sqlgen_end_value AS Nullable(DATE)) AS row_end,
+    sqlgen_date_value,
+    sqlgen_date_near,
+    CAST(sqlgen_date_near AS Nullable(DATE)) AS row_date,
+    CAST(sqlgen_end_near AS Nullable(DATE)) AS sqlgen_end_date,
+    sqlgen_end_early,
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
@@ -50,22 +68,37 @@ WITH sqlgen_source AS (
     sqlgen_customer,
     sqlgen_amount,
     row_date,
-    row_end,
+    CASE
+      WHEN sqlgen_end_date < CAST('2100-01-01' AS Nullable(DATE))
+      THEN sqlgen_end_date
+    END AS row_end,
     row_months,
     CASE
       WHEN sqlgen_customer IS NULL
       THEN 'null_customer'
-      WHEN row_date IS NULL
+      WHEN sqlgen_date_value IS NULL
+      OR (
+        NOT (
+          sqlgen_date_near IS NULL
+        ) AND row_date IS NULL
+      )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
       THEN 'null_amount'
       WHEN sqlgen_kept = 0
       THEN 'filtered_out'
+      WHEN row_date IS NULL
+      OR NOT (
+        row_date >= CAST('1990-01-01' AS Nullable(DATE))
+        AND row_date < CAST('2100-01-01' AS Nullable(DATE))
+      )
+      THEN 'out_of_range'
+      WHEN sqlgen_end_early = 1 OR sqlgen_end_date < CAST('1990-01-01' AS Nullable(DATE))
+      THEN 'out_of_range'
       WHEN row_months IS NULL
       THEN 'invalid'
-      WHEN NOT (
-        row_end IS NULL
-      ) AND row_end <= row_date
+      WHEN sqlgen_end_date < CAST('2100-01-01' AS Nullable(DATE))
+      AND sqlgen_end_date <= row_date
       THEN 'invalid'
       ELSE 'counted'
     END AS row_status

@@ -5,6 +5,7 @@
 --   activity table: raw.app_events
 --   activity time: timestamps without zone, used as stored (no time zone conversion)
 --   activity where: event_name <> 'push_received'
+--   activity valid range: 1990-01-01 to 2100-01-01; rows outside it are left out
 --   grain: week, weeks start on monday
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
@@ -14,7 +15,11 @@ CREATE VIEW "growth".engagement_depth AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= CAST('1989-12-30 00:00:00' AS Nullable(DateTime))
+      AND "occurred_at" < CAST('2100-01-03 00:00:00' AS Nullable(DateTime))
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
     NOT (
@@ -26,11 +31,19 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS Nullable(DATE)) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS Nullable(DATE))
+    AND sqlgen_date < CAST('2100-01-01' AS Nullable(DATE))
 ), keyed AS (
   SELECT
     user_id,
@@ -41,10 +54,6 @@ WITH sqlgen_source AS (
       ) % 7
     ) AS period_key
   FROM dated
-  WHERE
-    NOT (
-      activity_date IS NULL
-    )
 ), user_periods AS (
   SELECT
     user_id,

@@ -4,6 +4,7 @@
 --   revenue table: billing.subscriptions (subscriptions)
 --   revenue time: timestamps without zone, used as stored (no time zone conversion)
 --   revenue where: currency = 'EUR'
+--   revenue valid range: 1990-01-01 to 2100-01-01; rows outside it are left out
 --   grain: day
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
@@ -17,11 +18,21 @@ WITH sqlgen_source AS (
   SELECT
     `account_id` AS sqlgen_customer,
     `started_at` AS sqlgen_date_value,
+    CASE
+      WHEN `started_at` >= CAST('1989-12-30 00:00:00' AS DATETIME)
+      AND `started_at` < CAST('2100-01-03 00:00:00' AS DATETIME)
+      THEN `started_at`
+    END AS sqlgen_date_near,
     `amount` AS sqlgen_amount,
     CASE WHEN (
       `currency` = 'EUR'
     ) THEN 1 ELSE 0 END AS sqlgen_kept,
-    `ended_at` AS sqlgen_end_value,
+    CASE
+      WHEN `ended_at` >= CAST('1989-12-30 00:00:00' AS DATETIME)
+      AND `ended_at` < CAST('2100-01-03 00:00:00' AS DATETIME)
+      THEN `ended_at`
+    END AS sqlgen_end_near,
+    CASE WHEN `ended_at` < CAST('1989-12-30 00:00:00' AS DATETIME) THEN 1 ELSE 0 END AS sqlgen_end_early,
     CASE LOWER(`billing_interval`)
       WHEN 'month'
       THEN 1
@@ -42,8 +53,11 @@ WITH sqlgen_source AS (
     sqlgen_customer,
     sqlgen_amount,
     sqlgen_kept,
-    CAST(sqlgen_date_value AS DATE) AS row_date,
-    CAST(sqlgen_end_value AS DATE) AS row_end,
+    sqlgen_date_value,
+    sqlgen_date_near,
+    CAST(sqlgen_date_near AS DATE) AS row_date,
+    CAST(sqlgen_end_near AS DATE) AS sqlgen_end_date,
+    sqlgen_end_early,
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
@@ -51,20 +65,30 @@ WITH sqlgen_source AS (
     sqlgen_customer,
     sqlgen_amount,
     row_date,
-    row_end,
+    CASE WHEN sqlgen_end_date < CAST('2100-01-01' AS DATE) THEN sqlgen_end_date END AS row_end,
     row_months,
     CASE
       WHEN sqlgen_customer IS NULL
       THEN 'null_customer'
-      WHEN row_date IS NULL
+      WHEN sqlgen_date_value IS NULL
+      OR (
+        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+      )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
       THEN 'null_amount'
       WHEN sqlgen_kept = 0
       THEN 'filtered_out'
+      WHEN row_date IS NULL
+      OR NOT (
+        row_date >= CAST('1990-01-01' AS DATE) AND row_date < CAST('2100-01-01' AS DATE)
+      )
+      THEN 'out_of_range'
+      WHEN sqlgen_end_early = 1 OR sqlgen_end_date < CAST('1990-01-01' AS DATE)
+      THEN 'out_of_range'
       WHEN row_months IS NULL
       THEN 'invalid'
-      WHEN NOT row_end IS NULL AND row_end <= row_date
+      WHEN sqlgen_end_date < CAST('2100-01-01' AS DATE) AND sqlgen_end_date <= row_date
       THEN 'invalid'
       ELSE 'counted'
     END AS row_status
@@ -76,6 +100,7 @@ SELECT
   COUNT(CASE WHEN row_status = 'null_date' THEN 1 END) AS null_date_rows,
   COUNT(CASE WHEN row_status = 'null_amount' THEN 1 END) AS null_amount_rows,
   COUNT(CASE WHEN row_status = 'filtered_out' THEN 1 END) AS filtered_out_rows,
+  COUNT(CASE WHEN row_status = 'out_of_range' THEN 1 END) AS out_of_range_rows,
   COUNT(CASE WHEN row_status = 'invalid' THEN 1 END) AS invalid_rows,
   COUNT(CASE WHEN row_status = 'counted' THEN 1 END) AS counted_rows,
   MIN(CASE WHEN row_status = 'counted' THEN row_date END) AS first_date,
@@ -93,11 +118,21 @@ WITH sqlgen_source AS (
   SELECT
     `account_id` AS sqlgen_customer,
     `started_at` AS sqlgen_date_value,
+    CASE
+      WHEN `started_at` >= CAST('1989-12-30 00:00:00' AS DATETIME)
+      AND `started_at` < CAST('2100-01-03 00:00:00' AS DATETIME)
+      THEN `started_at`
+    END AS sqlgen_date_near,
     `amount` AS sqlgen_amount,
     CASE WHEN (
       `currency` = 'EUR'
     ) THEN 1 ELSE 0 END AS sqlgen_kept,
-    `ended_at` AS sqlgen_end_value,
+    CASE
+      WHEN `ended_at` >= CAST('1989-12-30 00:00:00' AS DATETIME)
+      AND `ended_at` < CAST('2100-01-03 00:00:00' AS DATETIME)
+      THEN `ended_at`
+    END AS sqlgen_end_near,
+    CASE WHEN `ended_at` < CAST('1989-12-30 00:00:00' AS DATETIME) THEN 1 ELSE 0 END AS sqlgen_end_early,
     CASE LOWER(`billing_interval`)
       WHEN 'month'
       THEN 1
@@ -118,8 +153,11 @@ WITH sqlgen_source AS (
     sqlgen_customer,
     sqlgen_amount,
     sqlgen_kept,
-    CAST(sqlgen_date_value AS DATE) AS row_date,
-    CAST(sqlgen_end_value AS DATE) AS row_end,
+    sqlgen_date_value,
+    sqlgen_date_near,
+    CAST(sqlgen_date_near AS DATE) AS row_date,
+    CAST(sqlgen_end_near AS DATE) AS sqlgen_end_date,
+    sqlgen_end_early,
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
@@ -127,20 +165,30 @@ WITH sqlgen_source AS (
     sqlgen_customer,
     sqlgen_amount,
     row_date,
-    row_end,
+    CASE WHEN sqlgen_end_date < CAST('2100-01-01' AS DATE) THEN sqlgen_end_date END AS row_end,
     row_months,
     CASE
       WHEN sqlgen_customer IS NULL
       THEN 'null_customer'
-      WHEN row_date IS NULL
+      WHEN sqlgen_date_value IS NULL
+      OR (
+        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+      )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
       THEN 'null_amount'
       WHEN sqlgen_kept = 0
       THEN 'filtered_out'
+      WHEN row_date IS NULL
+      OR NOT (
+        row_date >= CAST('1990-01-01' AS DATE) AND row_date < CAST('2100-01-01' AS DATE)
+      )
+      THEN 'out_of_range'
+      WHEN sqlgen_end_early = 1 OR sqlgen_end_date < CAST('1990-01-01' AS DATE)
+      THEN 'out_of_range'
       WHEN row_months IS NULL
       THEN 'invalid'
-      WHEN NOT row_end IS NULL AND row_end <= row_date
+      WHEN sqlgen_end_date < CAST('2100-01-01' AS DATE) AND sqlgen_end_date <= row_date
       THEN 'invalid'
       ELSE 'counted'
     END AS row_status

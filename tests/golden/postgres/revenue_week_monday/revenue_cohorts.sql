@@ -5,6 +5,7 @@
 --   revenue table: billing.subscriptions (subscriptions)
 --   revenue time: timestamps without zone, used as stored (no time zone conversion)
 --   revenue where: currency = 'EUR'
+--   revenue valid range: 1990-01-01 to 2100-01-01; rows outside it are left out
 --   grain: week, weeks start on monday
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- CREATE OR REPLACE VIEW cannot change an existing view's columns on this engine: after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, which does so).

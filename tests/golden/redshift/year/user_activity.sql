@@ -6,6 +6,7 @@
 --   activity table: raw.app_events
 --   activity time: timestamps without zone, used as stored (no time zone conversion)
 --   activity where: event_name <> 'push_received'
+--   activity valid range: 1990-01-01 to 2100-01-01; rows outside it are left out
 --   grain: year
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- CREATE OR REPLACE VIEW cannot change an existing view's columns on this engine: after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, which does so).
@@ -14,7 +15,11 @@ CREATE OR REPLACE VIEW "growth".user_activity AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= CAST('1989-12-30 00:00:00' AS TIMESTAMP)
+      AND "occurred_at" < CAST('2100-01-03 00:00:00' AS TIMESTAMP)
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
     NOT "user_id" IS NULL
@@ -22,11 +27,19 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS DATE) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS DATE)
+    AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
   SELECT
     user_id,
@@ -37,8 +50,6 @@ WITH sqlgen_source AS (
       ) % 12
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), user_periods AS (
   SELECT
     user_id,

@@ -6,6 +6,7 @@
 --   activity table: raw.app_events
 --   activity time: timestamps without zone, used as stored (no time zone conversion)
 --   activity where: event_name <> 'push_received'
+--   activity valid range: 1990-01-01 to 2100-01-01; rows outside it are left out
 --   grain: day
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
@@ -13,7 +14,11 @@ CREATE OR REPLACE VIEW "growth".user_states AS
 WITH sqlgen_source AS (
   SELECT
     "USER_ID" AS sqlgen_user,
-    "OCCURRED_AT" AS sqlgen_ts
+    CASE
+      WHEN "OCCURRED_AT" >= CAST('1989-12-30 00:00:00' AS TIMESTAMPNTZ)
+      AND "OCCURRED_AT" < CAST('2100-01-03 00:00:00' AS TIMESTAMPNTZ)
+      THEN "OCCURRED_AT"
+    END AS sqlgen_ts
   FROM "RAW"."APP_EVENTS"
   WHERE
     NOT "USER_ID" IS NULL
@@ -21,19 +26,25 @@ WITH sqlgen_source AS (
     AND (
       "EVENT_NAME" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS DATE) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS DATE)
+    AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
   SELECT
     user_id,
     activity_date,
     DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), active_periods AS (
   SELECT
     user_id,

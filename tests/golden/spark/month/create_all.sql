@@ -4,6 +4,7 @@
 --   activity table: raw.app_events
 --   activity time: timestamps without zone, used as stored (no time zone conversion)
 --   activity where: event_name <> 'push_received'
+--   activity valid range: 1990-01-01 to 2100-01-01; rows outside it are left out
 --   grain: month
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
@@ -17,6 +18,11 @@ WITH sqlgen_source AS (
   SELECT
     `user_id` AS sqlgen_user,
     `occurred_at` AS sqlgen_ts,
+    CASE
+      WHEN `occurred_at` >= CAST('1989-12-30 00:00:00' AS TIMESTAMP_NTZ)
+      AND `occurred_at` < CAST('2100-01-03 00:00:00' AS TIMESTAMP_NTZ)
+      THEN `occurred_at`
+    END AS sqlgen_near_ts,
     CASE WHEN (
       `event_name` <> 'push_received'
     ) THEN 1 ELSE 0 END AS sqlgen_kept
@@ -25,46 +31,50 @@ WITH sqlgen_source AS (
   SELECT
     sqlgen_user,
     sqlgen_ts,
+    sqlgen_near_ts,
     sqlgen_kept,
-    CAST(sqlgen_ts AS DATE) AS sqlgen_local_date
+    CAST(sqlgen_near_ts AS DATE) AS sqlgen_local_date
   FROM sqlgen_source
+), sqlgen_sorted AS (
+  SELECT
+    CASE
+      WHEN sqlgen_user IS NULL
+      THEN 'null_user'
+      WHEN sqlgen_ts IS NULL
+      THEN 'null_timestamp'
+      WHEN sqlgen_kept = 0
+      THEN 'filtered_out'
+      WHEN sqlgen_near_ts IS NULL
+      THEN 'out_of_range'
+      WHEN sqlgen_local_date IS NULL
+      THEN 'unconverted'
+      WHEN sqlgen_local_date >= CAST('1990-01-01' AS DATE)
+      AND sqlgen_local_date < CAST('2100-01-01' AS DATE)
+      THEN 'counted'
+      ELSE 'out_of_range'
+    END AS row_status
+  FROM sqlgen_dated
 )
 SELECT
   COUNT(*) AS source_rows,
-  COUNT(CASE WHEN sqlgen_user IS NULL THEN 1 END) AS null_user_rows,
-  COUNT(CASE WHEN NOT sqlgen_user IS NULL AND sqlgen_ts IS NULL THEN 1 END) AS null_timestamp_rows,
-  COUNT(
-    CASE
-      WHEN NOT sqlgen_user IS NULL AND NOT sqlgen_ts IS NULL AND sqlgen_kept = 0
-      THEN 1
-    END
-  ) AS filtered_out_rows,
-  COUNT(
-    CASE
-      WHEN NOT sqlgen_user IS NULL
-      AND NOT sqlgen_ts IS NULL
-      AND sqlgen_kept = 1
-      AND sqlgen_local_date IS NULL
-      THEN 1
-    END
-  ) AS unconverted_rows,
-  COUNT(
-    CASE
-      WHEN NOT sqlgen_user IS NULL
-      AND NOT sqlgen_ts IS NULL
-      AND sqlgen_kept = 1
-      AND NOT sqlgen_local_date IS NULL
-      THEN 1
-    END
-  ) AS counted_rows
-FROM sqlgen_dated;
+  COUNT(CASE WHEN row_status = 'null_user' THEN 1 END) AS null_user_rows,
+  COUNT(CASE WHEN row_status = 'null_timestamp' THEN 1 END) AS null_timestamp_rows,
+  COUNT(CASE WHEN row_status = 'filtered_out' THEN 1 END) AS filtered_out_rows,
+  COUNT(CASE WHEN row_status = 'out_of_range' THEN 1 END) AS out_of_range_rows,
+  COUNT(CASE WHEN row_status = 'unconverted' THEN 1 END) AS unconverted_rows,
+  COUNT(CASE WHEN row_status = 'counted' THEN 1 END) AS counted_rows
+FROM sqlgen_sorted;
 
 -- user_activity
 CREATE OR REPLACE VIEW `growth`.user_activity AS
 WITH sqlgen_source AS (
   SELECT
     `user_id` AS sqlgen_user,
-    `occurred_at` AS sqlgen_ts
+    CASE
+      WHEN `occurred_at` >= CAST('1989-12-30 00:00:00' AS TIMESTAMP_NTZ)
+      AND `occurred_at` < CAST('2100-01-03 00:00:00' AS TIMESTAMP_NTZ)
+      THEN `occurred_at`
+    END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
     NOT `user_id` IS NULL
@@ -72,11 +82,19 @@ WITH sqlgen_source AS (
     AND (
       `event_name` <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS DATE) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS DATE)
+    AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
   SELECT
     user_id,
@@ -85,8 +103,6 @@ WITH sqlgen_source AS (
       EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), user_periods AS (
   SELECT
     user_id,
@@ -115,7 +131,11 @@ CREATE OR REPLACE VIEW `growth`.user_states AS
 WITH sqlgen_source AS (
   SELECT
     `user_id` AS sqlgen_user,
-    `occurred_at` AS sqlgen_ts
+    CASE
+      WHEN `occurred_at` >= CAST('1989-12-30 00:00:00' AS TIMESTAMP_NTZ)
+      AND `occurred_at` < CAST('2100-01-03 00:00:00' AS TIMESTAMP_NTZ)
+      THEN `occurred_at`
+    END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
     NOT `user_id` IS NULL
@@ -123,11 +143,19 @@ WITH sqlgen_source AS (
     AND (
       `event_name` <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS DATE) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS DATE)
+    AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
   SELECT
     user_id,
@@ -136,8 +164,6 @@ WITH sqlgen_source AS (
       EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), active_periods AS (
   SELECT
     user_id,
@@ -195,7 +221,11 @@ CREATE OR REPLACE VIEW `growth`.growth_accounting AS
 WITH sqlgen_source AS (
   SELECT
     `user_id` AS sqlgen_user,
-    `occurred_at` AS sqlgen_ts
+    CASE
+      WHEN `occurred_at` >= CAST('1989-12-30 00:00:00' AS TIMESTAMP_NTZ)
+      AND `occurred_at` < CAST('2100-01-03 00:00:00' AS TIMESTAMP_NTZ)
+      THEN `occurred_at`
+    END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
     NOT `user_id` IS NULL
@@ -203,11 +233,19 @@ WITH sqlgen_source AS (
     AND (
       `event_name` <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS DATE) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS DATE)
+    AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
   SELECT
     user_id,
@@ -216,8 +254,6 @@ WITH sqlgen_source AS (
       EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), active_periods AS (
   SELECT
     user_id,
@@ -346,7 +382,11 @@ CREATE OR REPLACE VIEW `growth`.cohort_retention AS
 WITH sqlgen_source AS (
   SELECT
     `user_id` AS sqlgen_user,
-    `occurred_at` AS sqlgen_ts
+    CASE
+      WHEN `occurred_at` >= CAST('1989-12-30 00:00:00' AS TIMESTAMP_NTZ)
+      AND `occurred_at` < CAST('2100-01-03 00:00:00' AS TIMESTAMP_NTZ)
+      THEN `occurred_at`
+    END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
     NOT `user_id` IS NULL
@@ -354,11 +394,19 @@ WITH sqlgen_source AS (
     AND (
       `event_name` <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS DATE) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS DATE)
+    AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
   SELECT
     user_id,
@@ -367,8 +415,6 @@ WITH sqlgen_source AS (
       EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), active_periods AS (
   SELECT
     user_id,
@@ -460,7 +506,11 @@ CREATE OR REPLACE VIEW `growth`.engagement_depth AS
 WITH sqlgen_source AS (
   SELECT
     `user_id` AS sqlgen_user,
-    `occurred_at` AS sqlgen_ts
+    CASE
+      WHEN `occurred_at` >= CAST('1989-12-30 00:00:00' AS TIMESTAMP_NTZ)
+      AND `occurred_at` < CAST('2100-01-03 00:00:00' AS TIMESTAMP_NTZ)
+      THEN `occurred_at`
+    END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
     NOT `user_id` IS NULL
@@ -468,11 +518,19 @@ WITH sqlgen_source AS (
     AND (
       `event_name` <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS DATE) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS DATE)
+    AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
   SELECT
     user_id,
@@ -481,8 +539,6 @@ WITH sqlgen_source AS (
       EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), user_periods AS (
   SELECT
     user_id,
@@ -609,7 +665,11 @@ CREATE OR REPLACE VIEW `growth`.trailing_activity AS
 WITH sqlgen_source AS (
   SELECT
     `user_id` AS sqlgen_user,
-    `occurred_at` AS sqlgen_ts
+    CASE
+      WHEN `occurred_at` >= CAST('1989-12-30 00:00:00' AS TIMESTAMP_NTZ)
+      AND `occurred_at` < CAST('2100-01-03 00:00:00' AS TIMESTAMP_NTZ)
+      THEN `occurred_at`
+    END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
     NOT `user_id` IS NULL
@@ -617,18 +677,24 @@ WITH sqlgen_source AS (
     AND (
       `event_name` <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    CAST(sqlgen_ts AS DATE) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST('1990-01-01' AS DATE)
+    AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), numbered AS (
   SELECT
     user_id AS day_user,
     DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) AS day_number
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), blocked AS (
   SELECT
     day_user,

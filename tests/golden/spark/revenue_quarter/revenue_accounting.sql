@@ -5,6 +5,7 @@
 --   revenue table: billing.subscriptions (subscriptions)
 --   revenue time: timestamps without zone, used as stored (no time zone conversion)
 --   revenue where: currency = 'EUR'
+--   revenue valid range: 1990-01-01 to 2100-01-01; rows outside it are left out
 --   grain: quarter
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 

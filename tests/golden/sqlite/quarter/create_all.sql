@@ -4,6 +4,7 @@
 --   activity table: app_events
 --   activity time: timestamps without zone, used as stored (no time zone conversion)
 --   activity where: event_name <> 'push_received'
+--   activity valid range: 1990-01-01 to 2100-01-01; rows outside it are left out
 --   grain: quarter
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
@@ -19,6 +20,11 @@ WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts,
+    CASE
+      WHEN "occurred_at" >= DATETIME('1989-12-30 00:00:00')
+      AND "occurred_at" < DATETIME('2100-01-03 00:00:00')
+      THEN "occurred_at"
+    END AS sqlgen_near_ts,
     CASE WHEN (
       "event_name" <> 'push_received'
     ) THEN 1 ELSE 0 END AS sqlgen_kept
@@ -27,39 +33,39 @@ WITH sqlgen_source AS (
   SELECT
     sqlgen_user,
     sqlgen_ts,
+    sqlgen_near_ts,
     sqlgen_kept,
-    DATE(sqlgen_ts) AS sqlgen_local_date
+    DATE(sqlgen_near_ts) AS sqlgen_local_date
   FROM sqlgen_source
+), sqlgen_sorted AS (
+  SELECT
+    CASE
+      WHEN sqlgen_user IS NULL
+      THEN 'null_user'
+      WHEN sqlgen_ts IS NULL
+      THEN 'null_timestamp'
+      WHEN sqlgen_kept = 0
+      THEN 'filtered_out'
+      WHEN sqlgen_near_ts IS NULL
+      THEN 'out_of_range'
+      WHEN sqlgen_local_date IS NULL
+      THEN 'unconverted'
+      WHEN sqlgen_local_date >= DATE('1990-01-01')
+      AND sqlgen_local_date < DATE('2100-01-01')
+      THEN 'counted'
+      ELSE 'out_of_range'
+    END AS row_status
+  FROM sqlgen_dated
 )
 SELECT
   COUNT(*) AS source_rows,
-  COUNT(CASE WHEN sqlgen_user IS NULL THEN 1 END) AS null_user_rows,
-  COUNT(CASE WHEN NOT sqlgen_user IS NULL AND sqlgen_ts IS NULL THEN 1 END) AS null_timestamp_rows,
-  COUNT(
-    CASE
-      WHEN NOT sqlgen_user IS NULL AND NOT sqlgen_ts IS NULL AND sqlgen_kept = 0
-      THEN 1
-    END
-  ) AS filtered_out_rows,
-  COUNT(
-    CASE
-      WHEN NOT sqlgen_user IS NULL
-      AND NOT sqlgen_ts IS NULL
-      AND sqlgen_kept = 1
-      AND sqlgen_local_date IS NULL
-      THEN 1
-    END
-  ) AS unconverted_rows,
-  COUNT(
-    CASE
-      WHEN NOT sqlgen_user IS NULL
-      AND NOT sqlgen_ts IS NULL
-      AND sqlgen_kept = 1
-      AND NOT sqlgen_local_date IS NULL
-      THEN 1
-    END
-  ) AS counted_rows
-FROM sqlgen_dated;
+  COUNT(CASE WHEN row_status = 'null_user' THEN 1 END) AS null_user_rows,
+  COUNT(CASE WHEN row_status = 'null_timestamp' THEN 1 END) AS null_timestamp_rows,
+  COUNT(CASE WHEN row_status = 'filtered_out' THEN 1 END) AS filtered_out_rows,
+  COUNT(CASE WHEN row_status = 'out_of_range' THEN 1 END) AS out_of_range_rows,
+  COUNT(CASE WHEN row_status = 'unconverted' THEN 1 END) AS unconverted_rows,
+  COUNT(CASE WHEN row_status = 'counted' THEN 1 END) AS counted_rows
+FROM sqlgen_sorted;
 
 -- user_activity
 DROP VIEW IF EXISTS user_activity;
@@ -68,7 +74,11 @@ CREATE VIEW user_activity AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= DATETIME('1989-12-30 00:00:00')
+      AND "occurred_at" < DATETIME('2100-01-03 00:00:00')
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "app_events"
   WHERE
     NOT "user_id" IS NULL
@@ -76,11 +86,18 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    DATE(sqlgen_ts) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    DATE(sqlgen_ts) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= DATE('1990-01-01') AND sqlgen_date < DATE('2100-01-01')
 ), keyed AS (
   SELECT
     user_id,
@@ -91,8 +108,6 @@ WITH sqlgen_source AS (
       ) % 3
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), user_periods AS (
   SELECT
     user_id,
@@ -125,7 +140,11 @@ CREATE VIEW user_states AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= DATETIME('1989-12-30 00:00:00')
+      AND "occurred_at" < DATETIME('2100-01-03 00:00:00')
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "app_events"
   WHERE
     NOT "user_id" IS NULL
@@ -133,11 +152,18 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    DATE(sqlgen_ts) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    DATE(sqlgen_ts) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= DATE('1990-01-01') AND sqlgen_date < DATE('2100-01-01')
 ), keyed AS (
   SELECT
     user_id,
@@ -148,8 +174,6 @@ WITH sqlgen_source AS (
       ) % 3
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), active_periods AS (
   SELECT
     user_id,
@@ -213,7 +237,11 @@ CREATE VIEW growth_accounting AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= DATETIME('1989-12-30 00:00:00')
+      AND "occurred_at" < DATETIME('2100-01-03 00:00:00')
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "app_events"
   WHERE
     NOT "user_id" IS NULL
@@ -221,11 +249,18 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    DATE(sqlgen_ts) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    DATE(sqlgen_ts) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= DATE('1990-01-01') AND sqlgen_date < DATE('2100-01-01')
 ), keyed AS (
   SELECT
     user_id,
@@ -236,8 +271,6 @@ WITH sqlgen_source AS (
       ) % 3
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), active_periods AS (
   SELECT
     user_id,
@@ -387,7 +420,11 @@ CREATE VIEW cohort_retention AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= DATETIME('1989-12-30 00:00:00')
+      AND "occurred_at" < DATETIME('2100-01-03 00:00:00')
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "app_events"
   WHERE
     NOT "user_id" IS NULL
@@ -395,11 +432,18 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    DATE(sqlgen_ts) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    DATE(sqlgen_ts) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= DATE('1990-01-01') AND sqlgen_date < DATE('2100-01-01')
 ), keyed AS (
   SELECT
     user_id,
@@ -410,8 +454,6 @@ WITH sqlgen_source AS (
       ) % 3
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), active_periods AS (
   SELECT
     user_id,
@@ -524,7 +566,11 @@ CREATE VIEW engagement_depth AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= DATETIME('1989-12-30 00:00:00')
+      AND "occurred_at" < DATETIME('2100-01-03 00:00:00')
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "app_events"
   WHERE
     NOT "user_id" IS NULL
@@ -532,11 +578,18 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    DATE(sqlgen_ts) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    DATE(sqlgen_ts) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= DATE('1990-01-01') AND sqlgen_date < DATE('2100-01-01')
 ), keyed AS (
   SELECT
     user_id,
@@ -547,8 +600,6 @@ WITH sqlgen_source AS (
       ) % 3
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), user_periods AS (
   SELECT
     user_id,
@@ -692,7 +743,11 @@ CREATE VIEW trailing_activity AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= DATETIME('1989-12-30 00:00:00')
+      AND "occurred_at" < DATETIME('2100-01-03 00:00:00')
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "app_events"
   WHERE
     NOT "user_id" IS NULL
@@ -700,18 +755,23 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    DATE(sqlgen_ts) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    DATE(sqlgen_ts) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= DATE('1990-01-01') AND sqlgen_date < DATE('2100-01-01')
 ), numbered AS (
   SELECT
     user_id AS day_user,
     CAST((JULIANDAY(activity_date) - JULIANDAY(DATE('1970-01-05'))) AS INTEGER) AS day_number
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), blocked AS (
   SELECT
     day_user,

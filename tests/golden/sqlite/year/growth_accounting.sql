@@ -5,6 +5,7 @@
 --   activity table: app_events
 --   activity time: timestamps without zone, used as stored (no time zone conversion)
 --   activity where: event_name <> 'push_received'
+--   activity valid range: 1990-01-01 to 2100-01-01; rows outside it are left out
 --   grain: year
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
@@ -14,7 +15,11 @@ CREATE VIEW growth_accounting AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= DATETIME('1989-12-30 00:00:00')
+      AND "occurred_at" < DATETIME('2100-01-03 00:00:00')
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "app_events"
   WHERE
     NOT "user_id" IS NULL
@@ -22,11 +27,18 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    DATE(sqlgen_ts) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    DATE(sqlgen_ts) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= DATE('1990-01-01') AND sqlgen_date < DATE('2100-01-01')
 ), keyed AS (
   SELECT
     user_id,
@@ -37,8 +49,6 @@ WITH sqlgen_source AS (
       ) % 12
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), active_periods AS (
   SELECT
     user_id,

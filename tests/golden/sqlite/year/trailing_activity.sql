@@ -5,6 +5,7 @@
 --   activity table: app_events
 --   activity time: timestamps without zone, used as stored (no time zone conversion)
 --   activity where: event_name <> 'push_received'
+--   activity valid range: 1990-01-01 to 2100-01-01; rows outside it are left out
 --   grain: year
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 
@@ -14,7 +15,11 @@ CREATE VIEW trailing_activity AS
 WITH sqlgen_source AS (
   SELECT
     "user_id" AS sqlgen_user,
-    "occurred_at" AS sqlgen_ts
+    CASE
+      WHEN "occurred_at" >= DATETIME('1989-12-30 00:00:00')
+      AND "occurred_at" < DATETIME('2100-01-03 00:00:00')
+      THEN "occurred_at"
+    END AS sqlgen_ts
   FROM "app_events"
   WHERE
     NOT "user_id" IS NULL
@@ -22,18 +27,23 @@ WITH sqlgen_source AS (
     AND (
       "event_name" <> 'push_received'
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user,
+    DATE(sqlgen_ts) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    DATE(sqlgen_ts) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= DATE('1990-01-01') AND sqlgen_date < DATE('2100-01-01')
 ), numbered AS (
   SELECT
     user_id AS day_user,
     CAST((JULIANDAY(activity_date) - JULIANDAY(DATE('1970-01-05'))) AS INTEGER) AS day_number
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), blocked AS (
   SELECT
     day_user,

@@ -4,6 +4,7 @@
 --   activity table: raw.app_events
 --   activity time: timestamps without zone, used as stored (no time zone conversion)
 --   activity where: event_name <> 'push_received'
+--   activity valid range: 1990-01-01 to 2100-01-01; rows outside it are left out
 --   grain: month
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Every view, each after the views it reads.
@@ -21,6 +22,11 @@ WITH sqlgen_source AS (
   SELECT
     [user_id] AS sqlgen_user,
     [occurred_at] AS sqlgen_ts,
+    CASE
+      WHEN [occurred_at] >= CAST(''1989-12-30 00:00:00'' AS DATETIME2)
+      AND [occurred_at] < CAST(''2100-01-03 00:00:00'' AS DATETIME2)
+      THEN [occurred_at]
+    END AS sqlgen_near_ts,
     CASE WHEN (
       [event_name] <> ''push_received''
     ) THEN 1 ELSE 0 END AS sqlgen_kept
@@ -29,46 +35,50 @@ WITH sqlgen_source AS (
   SELECT
     sqlgen_user AS sqlgen_user,
     sqlgen_ts AS sqlgen_ts,
+    sqlgen_near_ts AS sqlgen_near_ts,
     sqlgen_kept AS sqlgen_kept,
-    CAST(sqlgen_ts AS DATE) AS sqlgen_local_date
+    CAST(sqlgen_near_ts AS DATE) AS sqlgen_local_date
   FROM sqlgen_source
+), sqlgen_sorted AS (
+  SELECT
+    CASE
+      WHEN sqlgen_user IS NULL
+      THEN ''null_user''
+      WHEN sqlgen_ts IS NULL
+      THEN ''null_timestamp''
+      WHEN sqlgen_kept = 0
+      THEN ''filtered_out''
+      WHEN sqlgen_near_ts IS NULL
+      THEN ''out_of_range''
+      WHEN sqlgen_local_date IS NULL
+      THEN ''unconverted''
+      WHEN sqlgen_local_date >= CAST(''1990-01-01'' AS DATE)
+      AND sqlgen_local_date < CAST(''2100-01-01'' AS DATE)
+      THEN ''counted''
+      ELSE ''out_of_range''
+    END AS row_status
+  FROM sqlgen_dated
 )
 SELECT
   COUNT_BIG(*) AS source_rows,
-  COUNT_BIG(CASE WHEN sqlgen_user IS NULL THEN 1 END) AS null_user_rows,
-  COUNT_BIG(CASE WHEN NOT sqlgen_user IS NULL AND sqlgen_ts IS NULL THEN 1 END) AS null_timestamp_rows,
-  COUNT_BIG(
-    CASE
-      WHEN NOT sqlgen_user IS NULL AND NOT sqlgen_ts IS NULL AND sqlgen_kept = 0
-      THEN 1
-    END
-  ) AS filtered_out_rows,
-  COUNT_BIG(
-    CASE
-      WHEN NOT sqlgen_user IS NULL
-      AND NOT sqlgen_ts IS NULL
-      AND sqlgen_kept = 1
-      AND sqlgen_local_date IS NULL
-      THEN 1
-    END
-  ) AS unconverted_rows,
-  COUNT_BIG(
-    CASE
-      WHEN NOT sqlgen_user IS NULL
-      AND NOT sqlgen_ts IS NULL
-      AND sqlgen_kept = 1
-      AND NOT sqlgen_local_date IS NULL
-      THEN 1
-    END
-  ) AS counted_rows
-FROM sqlgen_dated';
+  COUNT_BIG(CASE WHEN row_status = ''null_user'' THEN 1 END) AS null_user_rows,
+  COUNT_BIG(CASE WHEN row_status = ''null_timestamp'' THEN 1 END) AS null_timestamp_rows,
+  COUNT_BIG(CASE WHEN row_status = ''filtered_out'' THEN 1 END) AS filtered_out_rows,
+  COUNT_BIG(CASE WHEN row_status = ''out_of_range'' THEN 1 END) AS out_of_range_rows,
+  COUNT_BIG(CASE WHEN row_status = ''unconverted'' THEN 1 END) AS unconverted_rows,
+  COUNT_BIG(CASE WHEN row_status = ''counted'' THEN 1 END) AS counted_rows
+FROM sqlgen_sorted';
 
 -- user_activity
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].user_activity AS
 WITH sqlgen_source AS (
   SELECT
     [user_id] AS sqlgen_user,
-    [occurred_at] AS sqlgen_ts
+    CASE
+      WHEN [occurred_at] >= CAST(''1989-12-30 00:00:00'' AS DATETIME2)
+      AND [occurred_at] < CAST(''2100-01-03 00:00:00'' AS DATETIME2)
+      THEN [occurred_at]
+    END AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
     NOT [user_id] IS NULL
@@ -76,11 +86,19 @@ WITH sqlgen_source AS (
     AND (
       [event_name] <> ''push_received''
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user AS sqlgen_user,
+    CAST(sqlgen_ts AS DATE) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST(''1990-01-01'' AS DATE)
+    AND sqlgen_date < CAST(''2100-01-01'' AS DATE)
 ), keyed AS (
   SELECT
     user_id AS user_id,
@@ -89,8 +107,6 @@ WITH sqlgen_source AS (
       DATEPART(YEAR, activity_date) * 12 + DATEPART(MONTH, activity_date) - 1
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), user_periods AS (
   SELECT
     user_id AS user_id,
@@ -119,7 +135,11 @@ EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].user_states AS
 WITH sqlgen_source AS (
   SELECT
     [user_id] AS sqlgen_user,
-    [occurred_at] AS sqlgen_ts
+    CASE
+      WHEN [occurred_at] >= CAST(''1989-12-30 00:00:00'' AS DATETIME2)
+      AND [occurred_at] < CAST(''2100-01-03 00:00:00'' AS DATETIME2)
+      THEN [occurred_at]
+    END AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
     NOT [user_id] IS NULL
@@ -127,11 +147,19 @@ WITH sqlgen_source AS (
     AND (
       [event_name] <> ''push_received''
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user AS sqlgen_user,
+    CAST(sqlgen_ts AS DATE) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST(''1990-01-01'' AS DATE)
+    AND sqlgen_date < CAST(''2100-01-01'' AS DATE)
 ), keyed AS (
   SELECT
     user_id AS user_id,
@@ -140,8 +168,6 @@ WITH sqlgen_source AS (
       DATEPART(YEAR, activity_date) * 12 + DATEPART(MONTH, activity_date) - 1
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), active_periods AS (
   SELECT
     user_id AS user_id,
@@ -199,7 +225,11 @@ EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].growth_accounting AS
 WITH sqlgen_source AS (
   SELECT
     [user_id] AS sqlgen_user,
-    [occurred_at] AS sqlgen_ts
+    CASE
+      WHEN [occurred_at] >= CAST(''1989-12-30 00:00:00'' AS DATETIME2)
+      AND [occurred_at] < CAST(''2100-01-03 00:00:00'' AS DATETIME2)
+      THEN [occurred_at]
+    END AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
     NOT [user_id] IS NULL
@@ -207,11 +237,19 @@ WITH sqlgen_source AS (
     AND (
       [event_name] <> ''push_received''
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user AS sqlgen_user,
+    CAST(sqlgen_ts AS DATE) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST(''1990-01-01'' AS DATE)
+    AND sqlgen_date < CAST(''2100-01-01'' AS DATE)
 ), keyed AS (
   SELECT
     user_id AS user_id,
@@ -220,8 +258,6 @@ WITH sqlgen_source AS (
       DATEPART(YEAR, activity_date) * 12 + DATEPART(MONTH, activity_date) - 1
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), active_periods AS (
   SELECT
     user_id AS user_id,
@@ -366,7 +402,11 @@ EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].cohort_retention AS
 WITH sqlgen_source AS (
   SELECT
     [user_id] AS sqlgen_user,
-    [occurred_at] AS sqlgen_ts
+    CASE
+      WHEN [occurred_at] >= CAST(''1989-12-30 00:00:00'' AS DATETIME2)
+      AND [occurred_at] < CAST(''2100-01-03 00:00:00'' AS DATETIME2)
+      THEN [occurred_at]
+    END AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
     NOT [user_id] IS NULL
@@ -374,11 +414,19 @@ WITH sqlgen_source AS (
     AND (
       [event_name] <> ''push_received''
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user AS sqlgen_user,
+    CAST(sqlgen_ts AS DATE) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST(''1990-01-01'' AS DATE)
+    AND sqlgen_date < CAST(''2100-01-01'' AS DATE)
 ), keyed AS (
   SELECT
     user_id AS user_id,
@@ -387,8 +435,6 @@ WITH sqlgen_source AS (
       DATEPART(YEAR, activity_date) * 12 + DATEPART(MONTH, activity_date) - 1
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), active_periods AS (
   SELECT
     user_id AS user_id,
@@ -496,7 +542,11 @@ EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].engagement_depth AS
 WITH sqlgen_source AS (
   SELECT
     [user_id] AS sqlgen_user,
-    [occurred_at] AS sqlgen_ts
+    CASE
+      WHEN [occurred_at] >= CAST(''1989-12-30 00:00:00'' AS DATETIME2)
+      AND [occurred_at] < CAST(''2100-01-03 00:00:00'' AS DATETIME2)
+      THEN [occurred_at]
+    END AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
     NOT [user_id] IS NULL
@@ -504,11 +554,19 @@ WITH sqlgen_source AS (
     AND (
       [event_name] <> ''push_received''
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user AS sqlgen_user,
+    CAST(sqlgen_ts AS DATE) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST(''1990-01-01'' AS DATE)
+    AND sqlgen_date < CAST(''2100-01-01'' AS DATE)
 ), keyed AS (
   SELECT
     user_id AS user_id,
@@ -517,8 +575,6 @@ WITH sqlgen_source AS (
       DATEPART(YEAR, activity_date) * 12 + DATEPART(MONTH, activity_date) - 1
     ) AS period_key
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), user_periods AS (
   SELECT
     user_id AS user_id,
@@ -661,7 +717,11 @@ EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].trailing_activity AS
 WITH sqlgen_source AS (
   SELECT
     [user_id] AS sqlgen_user,
-    [occurred_at] AS sqlgen_ts
+    CASE
+      WHEN [occurred_at] >= CAST(''1989-12-30 00:00:00'' AS DATETIME2)
+      AND [occurred_at] < CAST(''2100-01-03 00:00:00'' AS DATETIME2)
+      THEN [occurred_at]
+    END AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
     NOT [user_id] IS NULL
@@ -669,18 +729,24 @@ WITH sqlgen_source AS (
     AND (
       [event_name] <> ''push_received''
     )
+), sqlgen_local AS (
+  SELECT
+    sqlgen_user AS sqlgen_user,
+    CAST(sqlgen_ts AS DATE) AS sqlgen_date
+  FROM sqlgen_source
 ), dated AS (
   SELECT
     sqlgen_user AS user_id,
-    CAST(sqlgen_ts AS DATE) AS activity_date
-  FROM sqlgen_source
+    sqlgen_date AS activity_date
+  FROM sqlgen_local
+  WHERE
+    sqlgen_date >= CAST(''1990-01-01'' AS DATE)
+    AND sqlgen_date < CAST(''2100-01-01'' AS DATE)
 ), numbered AS (
   SELECT
     user_id AS day_user,
     DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), activity_date) AS day_number
   FROM dated
-  WHERE
-    NOT activity_date IS NULL
 ), blocked AS (
   SELECT
     day_user AS day_user,
