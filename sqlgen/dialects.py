@@ -228,7 +228,12 @@ def constant_unions_as_values(tree: exp.Expression) -> exp.Expression:
             return node
         name = node.find(exp.Alias).alias
         rows = exp.values([(v.copy(),) for v in found], alias="sqlgen_values", columns=[name])
-        return exp.select(name).from_(rows)
+        select = exp.select(name).from_(rows)
+        first = node
+        while isinstance(first, exp.Union):
+            first = first.this
+        select.add_comments(first.comments)  # the step comment on the first branch
+        return select
     return tree.transform(rewrite, copy=False)
 
 
@@ -346,7 +351,27 @@ def spec_identifiers(target: Target) -> Transform:
     return lambda tree: tree.transform(rewrite, copy=False)
 
 
+def is_not_null(tree: exp.Expression) -> exp.Expression:
+    """``NOT x IS NULL`` becomes ``x IS NOT NULL``, the form a reviewer expects.
+
+    sqlglot parses ``x IS NOT NULL`` as Not(Is(x, NULL)) and prints it back as
+    ``NOT x IS NULL``; an Is node with ``negate`` prints ``x IS NOT NULL`` in every
+    target. Comments on the NOT stay on the new node.
+    """
+    def rewrite(node: exp.Expression) -> exp.Expression:
+        inner = node.this if isinstance(node, exp.Not) else None
+        if isinstance(inner, exp.Paren):
+            inner = inner.unnest()
+        if not (isinstance(inner, exp.Is) and isinstance(inner.expression, exp.Null)
+                and not inner.args.get("negate")):
+            return node
+        negated = exp.Is(this=inner.this, expression=inner.expression, negate=True)
+        negated.add_comments((node.comments or []) + (inner.comments or []))
+        return negated
+    return tree.transform(rewrite, copy=False)
+
+
 def rewrites(target: Target) -> list[Transform]:
     """Every rewrite for a target, in order: shared lowering first, then its own."""
-    return [interval_add_to_date_add, lower_time_zones, spec_identifiers(target),
+    return [interval_add_to_date_add, lower_time_zones, is_not_null, spec_identifiers(target),
             *target.transforms]

@@ -19,10 +19,12 @@ however often the view refers to it.
 
 {%- macro source_ctes() -%}
 sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT __user__ AS sqlgen_user, __timestamp__ AS sqlgen_ts
   FROM __activity_table__
   WHERE __user__ IS NOT NULL AND __timestamp__ IS NOT NULL{% if source.where %} AND (__where__){% endif %}
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT sqlgen_user AS user_id, {{ p.local_date('sqlgen_ts') }} AS activity_date
   FROM sqlgen_source
 )
@@ -30,6 +32,7 @@ sqlgen_source AS (
 
 {%- macro keyed() -%}
 {{ source_ctes() }}, keyed AS (
+  /* {% if grain.family == 'day' %}period_key: days since Monday 1970-01-05, a week keyed by its first day, so adjacent periods differ by the step in days{% else %}period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months{% endif %}. */
   SELECT user_id, activity_date, {{ p.period_key('activity_date') }} AS period_key
   FROM dated
   WHERE activity_date IS NOT NULL
@@ -38,6 +41,7 @@ sqlgen_source AS (
 
 {%- macro active_periods() -%}
 {{ keyed() }}, active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT user_id, period_key, MAX(activity_date) AS last_date
   FROM keyed
   GROUP BY user_id, period_key
@@ -46,6 +50,7 @@ sqlgen_source AS (
 
 {%- macro user_periods() -%}
 {{ keyed() }}, user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,

@@ -49,6 +49,7 @@ CAST({{ ts }} AS DATE)
     with no recursion and no series function (a calendar of periods needs no more). -#}
 {%- macro digits_cte() -%}
 digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT 0 AS n UNION ALL SELECT 1 UNION ALL SELECT 2 UNION ALL SELECT 3 UNION ALL SELECT 4
   UNION ALL SELECT 5 UNION ALL SELECT 6 UNION ALL SELECT 7 UNION ALL SELECT 8 UNION ALL SELECT 9
 )

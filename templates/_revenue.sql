@@ -64,6 +64,7 @@ END
     invalid or counted). The summary counts them; customer_revenue keeps the counted rows. -#}
 {%- macro source_rows() -%}
 sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     __customer__ AS sqlgen_customer,
     {{ '__revenue_timestamp__' if revenue.shape == 'charges' else '__revenue_start__' }} AS sqlgen_date_value,
@@ -75,6 +76,7 @@ sqlgen_source AS (
     {%- endif %}
   FROM __revenue_table__
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -86,6 +88,7 @@ sqlgen_source AS (
     {%- endif %}
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -124,18 +127,22 @@ row_date
     and for subscriptions counted_end, counted_months). -#}
 {%- macro period_totals(p) -%}
 bounds AS (
+  /* The first and last date of the counted rows. */
   SELECT
     MIN(counted_date) AS first_date,
     MAX({{ 'CASE WHEN counted_end IS NULL THEN counted_date ELSE counted_end END' if revenue.shape == 'subscriptions' else 'counted_date' }}) AS last_date
   FROM counted
 ), data_range AS (
+  /* The first and last period of the counted rows. */
   SELECT {{ p.period_key('first_date') }} AS first_key, {{ p.period_key('last_date') }} AS last_key
   FROM bounds
 ), {% if revenue.shape == 'charges' -%}
 keyed AS (
+  /* Each charge with its period key. */
   SELECT counted_customer AS keyed_customer, {{ p.period_key('counted_date') }} AS keyed_key, counted_amount AS keyed_amount
   FROM counted
 ), totals AS (
+  /* Each customer's total per period, rounded to the amount's scale. */
   SELECT keyed_customer AS total_customer, keyed_key AS total_key, {{ money('SUM(keyed_amount)') }} AS total_amount
   FROM keyed
   GROUP BY keyed_customer, keyed_key
@@ -154,6 +161,7 @@ keyed AS (
     integer arithmetic, rounded half away from zero, and the shares are summed. -#}
 {%- macro subscription_totals(p) -%}
 spans AS (
+  /* Each counted subscription in whole units of the amount's scale. */
   SELECT
     counted_customer AS span_customer,
     counted_date AS span_start,
@@ -162,6 +170,7 @@ spans AS (
     counted_months AS span_months
   FROM counted
 ), {{ p.digits_cte() }}, {{ segments(p) }}, pieces AS (
+  /* Each subscription's covered days in each segment, as an integer fraction of the segment. */
   SELECT
     s.span_customer AS piece_customer,
     g.segment_key AS piece_key,
@@ -176,6 +185,7 @@ spans AS (
   WHERE s.span_start < g.segment_end
     AND (s.span_end IS NULL OR s.span_end > g.segment_start)
 ), shares AS (
+  /* Each piece in whole units, rounded half away from zero with integer arithmetic. */
   SELECT
     piece_customer AS share_customer,
     piece_key AS share_key,
@@ -184,6 +194,7 @@ spans AS (
       / (2 * piece_denominator) AS BIGINT) AS share_units
   FROM pieces
 ), totals AS (
+  /* Each customer's total per period: the sum of its shares. */
   SELECT
     share_customer AS total_customer,
     share_key AS total_key,
@@ -199,17 +210,20 @@ spans AS (
 {%- macro segments(p) -%}
 {%- if grain.family == 'month' -%}
 months AS (
+  /* Every calendar month the data spans. */
   SELECT d.first_key + {{ p.counting_value(4) }} AS segment_month
   FROM data_range AS d
   CROSS JOIN {{ p.counting(4) }}
   WHERE d.first_key + {{ p.counting_value(4) }} <= d.last_key{% if grain.step > 1 %} + {{ grain.step - 1 }}{% endif %}
 ), month_edges AS (
+  /* Each month with its period key and its first and next month's first day. */
   SELECT
     {% if grain.step == 1 %}segment_month{% else %}segment_month - (segment_month % 12) % {{ grain.step }}{% endif %} AS edge_key,
     {{ month_start('segment_month') }} AS edge_start,
     {{ month_start('segment_month + 1') }} AS edge_end
   FROM months
 ), segments AS (
+  /* Each month as a segment of its period, with its number of days. */
   SELECT
     edge_key AS segment_key,
     edge_start AS segment_start,
@@ -219,11 +233,13 @@ months AS (
 )
 {%- else -%}
 periods AS (
+  /* Every period the data spans. */
   SELECT d.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) AS calendar_key
   FROM data_range AS d
   CROSS JOIN {{ p.counting(grain.calendar_digits) }}
   WHERE d.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) <= d.last_key
 ), segments AS (
+  /* Each period as a segment, against a 365-day year. */
   SELECT
     calendar_key AS segment_key,
     {{ p.period_start('calendar_key') }} AS segment_start,
