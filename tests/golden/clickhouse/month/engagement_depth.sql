@@ -5,26 +5,25 @@
 
 CREATE OR REPLACE VIEW "growth".engagement_depth AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
-    NOT (
-      "user_id" IS NULL
-    )
-    AND NOT (
-      "occurred_at" IS NULL
-    )
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS user_id,
     CAST(sqlgen_ts AS Nullable(DATE)) AS activity_date
   FROM sqlgen_source
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -33,10 +32,9 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
   WHERE
-    NOT (
-      activity_date IS NULL
-    )
+    activity_date IS NOT NULL
 ), user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
@@ -49,6 +47,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), depth_counts AS (
+  /* Users per period and number of distinct active days. */
   SELECT
     period_key AS depth_key,
     active_days AS depth_days,
@@ -58,6 +57,7 @@ WITH sqlgen_source AS (
     period_key,
     active_days
 ), period_totals AS (
+  /* Active users and user-days per period. */
   SELECT
     period_key AS total_key,
     COUNT(*) AS total_users,
@@ -66,12 +66,14 @@ WITH sqlgen_source AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT
     MIN(period_key) AS first_key,
     MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
   FROM user_periods
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -102,6 +104,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     r.first_key + 1 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
@@ -118,6 +121,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= r.last_key
 ), spans AS (
+  /* Days in each period, and the days seen so far (the last period may be in progress). */
   SELECT
     calendar_key AS span_key,
     DATE_DIFF(
@@ -140,6 +144,7 @@ WITH sqlgen_source AS (
     END AS seen_days
   FROM calendar
 ), day_counts AS (
+  /* Day counts 1 up to the longest period of the grain. */
   SELECT
     digit_0.n + digit_1.n * 10 + 1 AS day_count
   FROM digits AS digit_0
@@ -147,6 +152,7 @@ WITH sqlgen_source AS (
   WHERE
     digit_0.n + digit_1.n * 10 < 31
 ), cells AS (
+  /* One cell per period and possible day count. */
   SELECT
     s.span_key AS cell_key,
     d.day_count AS cell_days,
@@ -157,6 +163,7 @@ WITH sqlgen_source AS (
   WHERE
     d.day_count <= s.span_days
 )
+/* Users active on exactly that many days (0 when none), their share, and the daily-to-period ratio. */
 SELECT
   CAST(DATE_ADD(MONTH, c.cell_key - 23640, CAST('1970-01-01' AS Nullable(DATE))) AS Nullable(DATE)) AS period_start,
   c.cell_days AS active_days,

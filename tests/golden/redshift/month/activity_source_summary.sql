@@ -6,6 +6,7 @@
 
 CREATE OR REPLACE VIEW "growth".activity_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the activity table, marked as kept or not by the spec's filter. */
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts,
@@ -14,6 +15,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM "raw"."app_events"
 ), sqlgen_dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     sqlgen_ts,
@@ -21,20 +23,21 @@ WITH sqlgen_source AS (
     CAST(sqlgen_ts AS DATE) AS sqlgen_local_date
   FROM sqlgen_source
 )
+/* Each source row falls in exactly one count: null user, null timestamp, filtered out, unconverted or counted. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN sqlgen_user IS NULL THEN 1 END) AS null_user_rows,
-  COUNT(CASE WHEN NOT sqlgen_user IS NULL AND sqlgen_ts IS NULL THEN 1 END) AS null_timestamp_rows,
+  COUNT(CASE WHEN sqlgen_user IS NOT NULL AND sqlgen_ts IS NULL THEN 1 END) AS null_timestamp_rows,
   COUNT(
     CASE
-      WHEN NOT sqlgen_user IS NULL AND NOT sqlgen_ts IS NULL AND sqlgen_kept = 0
+      WHEN sqlgen_user IS NOT NULL AND sqlgen_ts IS NOT NULL AND sqlgen_kept = 0
       THEN 1
     END
   ) AS filtered_out_rows,
   COUNT(
     CASE
-      WHEN NOT sqlgen_user IS NULL
-      AND NOT sqlgen_ts IS NULL
+      WHEN sqlgen_user IS NOT NULL
+      AND sqlgen_ts IS NOT NULL
       AND sqlgen_kept = 1
       AND sqlgen_local_date IS NULL
       THEN 1
@@ -42,10 +45,10 @@ SELECT
   ) AS unconverted_rows,
   COUNT(
     CASE
-      WHEN NOT sqlgen_user IS NULL
-      AND NOT sqlgen_ts IS NULL
+      WHEN sqlgen_user IS NOT NULL
+      AND sqlgen_ts IS NOT NULL
       AND sqlgen_kept = 1
-      AND NOT sqlgen_local_date IS NULL
+      AND sqlgen_local_date IS NOT NULL
       THEN 1
     END
   ) AS counted_rows

@@ -8,6 +8,7 @@ DROP VIEW IF EXISTS activity_source_summary;
 
 CREATE VIEW activity_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the activity table, marked as kept or not by the spec's filter. */
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts,
@@ -16,6 +17,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM "app_events"
 ), sqlgen_dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     sqlgen_ts,
@@ -23,20 +25,21 @@ WITH sqlgen_source AS (
     DATE(sqlgen_ts) AS sqlgen_local_date
   FROM sqlgen_source
 )
+/* Each source row falls in exactly one count: null user, null timestamp, filtered out, unconverted or counted. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN sqlgen_user IS NULL THEN 1 END) AS null_user_rows,
-  COUNT(CASE WHEN NOT sqlgen_user IS NULL AND sqlgen_ts IS NULL THEN 1 END) AS null_timestamp_rows,
+  COUNT(CASE WHEN sqlgen_user IS NOT NULL AND sqlgen_ts IS NULL THEN 1 END) AS null_timestamp_rows,
   COUNT(
     CASE
-      WHEN NOT sqlgen_user IS NULL AND NOT sqlgen_ts IS NULL AND sqlgen_kept = 0
+      WHEN sqlgen_user IS NOT NULL AND sqlgen_ts IS NOT NULL AND sqlgen_kept = 0
       THEN 1
     END
   ) AS filtered_out_rows,
   COUNT(
     CASE
-      WHEN NOT sqlgen_user IS NULL
-      AND NOT sqlgen_ts IS NULL
+      WHEN sqlgen_user IS NOT NULL
+      AND sqlgen_ts IS NOT NULL
       AND sqlgen_kept = 1
       AND sqlgen_local_date IS NULL
       THEN 1
@@ -44,10 +47,10 @@ SELECT
   ) AS unconverted_rows,
   COUNT(
     CASE
-      WHEN NOT sqlgen_user IS NULL
-      AND NOT sqlgen_ts IS NULL
+      WHEN sqlgen_user IS NOT NULL
+      AND sqlgen_ts IS NOT NULL
       AND sqlgen_kept = 1
-      AND NOT sqlgen_local_date IS NULL
+      AND sqlgen_local_date IS NOT NULL
       THEN 1
     END
   ) AS counted_rows
@@ -58,22 +61,25 @@ DROP VIEW IF EXISTS user_activity;
 
 CREATE VIEW user_activity AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts
   FROM "app_events"
   WHERE
-    NOT "user_id" IS NULL
-    AND NOT "occurred_at" IS NULL
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS user_id,
     DATE(sqlgen_ts) AS activity_date
   FROM sqlgen_source
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -82,8 +88,9 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
   WHERE
-    NOT activity_date IS NULL
+    activity_date IS NOT NULL
 ), user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
@@ -96,6 +103,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 )
+/* One row per user and active period, its start date from the period key. */
 SELECT
   user_id,
   period_key,
@@ -113,22 +121,25 @@ DROP VIEW IF EXISTS user_states;
 
 CREATE VIEW user_states AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts
   FROM "app_events"
   WHERE
-    NOT "user_id" IS NULL
-    AND NOT "occurred_at" IS NULL
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS user_id,
     DATE(sqlgen_ts) AS activity_date
   FROM sqlgen_source
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -137,8 +148,9 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
   WHERE
-    NOT activity_date IS NULL
+    activity_date IS NOT NULL
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -148,6 +160,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
+  /* Each active (user, period) with the user's previous and next active periods. */
   SELECT
     user_id,
     period_key,
@@ -155,10 +168,12 @@ WITH sqlgen_source AS (
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key NULLS LAST) AS later_key
   FROM active_periods
 ), data_range AS (
+  /* The last period with data: a user lapses only before it. */
   SELECT
     MAX(period_key) AS last_key
   FROM active_periods
 ), lapsed AS (
+  /* Churned: the period after an active one in which the user is not active, up to the last period. */
   SELECT
     s.user_id,
     s.period_key + 1 AS lapse_key
@@ -170,6 +185,7 @@ WITH sqlgen_source AS (
     )
     AND s.period_key + 1 <= r.last_key
 )
+/* Active periods are new, retained or resurrected by the previous active period; then the churned ones. */
 SELECT
   user_id,
   period_key,
@@ -199,22 +215,25 @@ DROP VIEW IF EXISTS growth_accounting;
 
 CREATE VIEW growth_accounting AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts
   FROM "app_events"
   WHERE
-    NOT "user_id" IS NULL
-    AND NOT "occurred_at" IS NULL
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS user_id,
     DATE(sqlgen_ts) AS activity_date
   FROM sqlgen_source
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -223,8 +242,9 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
   WHERE
-    NOT activity_date IS NULL
+    activity_date IS NOT NULL
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -234,12 +254,14 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
+  /* Each active (user, period) with the user's previous active period (NULL: the first). */
   SELECT
     period_key,
     last_date,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key NULLS LAST) AS prior_key
   FROM active_periods
 ), tallies AS (
+  /* Per period: actives; new (no earlier period), retained (the period before), resurrected (an earlier one). */
   SELECT
     period_key AS tally_key,
     MAX(last_date) AS through_tally,
@@ -251,12 +273,14 @@ WITH sqlgen_source AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT
     MIN(tally_key) AS first_key,
     MAX(tally_key) AS last_key,
     MAX(through_tally) AS data_through
   FROM tallies
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT
     first_key,
     last_key,
@@ -266,6 +290,7 @@ WITH sqlgen_source AS (
     ) AS after_data_key
   FROM data_range
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -296,6 +321,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, by the grain's step, empty periods included. */
   SELECT
     e.first_key + 1 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
@@ -310,6 +336,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= e.last_key
 ), filled AS (
+  /* The tallies on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key,
     COALESCE(t.active_tally, 0) AS active_count,
@@ -326,6 +353,7 @@ WITH sqlgen_source AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 ), sequenced_totals AS (
+  /* Each period with the actives of the period before (0 for the first). */
   SELECT
     calendar_key,
     active_count,
@@ -336,6 +364,7 @@ WITH sqlgen_source AS (
     status
   FROM filled
 ), balanced AS (
+  /* The churn identity: every previous active is retained now or churned, so churned = previous - retained. */
   SELECT
     calendar_key,
     active_count,
@@ -347,6 +376,7 @@ WITH sqlgen_source AS (
     status
   FROM sequenced_totals
 )
+/* One row per period: its start date from the key, counts, and ratios (NULL on a zero denominator). */
 SELECT
   DATE(DATE(DATE('1970-01-01'), (
     calendar_key - 23640
@@ -370,22 +400,25 @@ DROP VIEW IF EXISTS cohort_retention;
 
 CREATE VIEW cohort_retention AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts
   FROM "app_events"
   WHERE
-    NOT "user_id" IS NULL
-    AND NOT "occurred_at" IS NULL
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS user_id,
     DATE(sqlgen_ts) AS activity_date
   FROM sqlgen_source
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -394,8 +427,9 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
   WHERE
-    NOT activity_date IS NULL
+    activity_date IS NOT NULL
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -405,11 +439,13 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), marked AS (
+  /* Each active (user, period) with the user's cohort: the first active period. */
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
   FROM active_periods
 ), cohort_actives AS (
+  /* Actives per cohort and period. */
   SELECT
     marked_cohort_key AS active_cohort_key,
     marked_key AS active_key,
@@ -419,6 +455,7 @@ WITH sqlgen_source AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
+  /* A cohort's size: its actives in the cohort period. */
   SELECT
     active_cohort_key AS size_key,
     active_count AS size_count
@@ -426,11 +463,13 @@ WITH sqlgen_source AS (
   WHERE
     active_key = active_cohort_key
 ), data_range AS (
+  /* The first and last period with data. */
   SELECT
     MIN(period_key) AS first_data_key,
     MAX(period_key) AS last_data_key
   FROM active_periods
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -461,6 +500,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), ages AS (
+  /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 AS age_number
   FROM data_range AS r
@@ -473,6 +513,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= r.last_data_key
 ), triangle AS (
+  /* Every cohort and age up to the last period with data: the full triangle. */
   SELECT
     s.size_key AS cell_cohort_key,
     g.age_number AS cell_age,
@@ -484,6 +525,7 @@ WITH sqlgen_source AS (
   WHERE
     s.size_key + 1 * g.age_number <= r.last_data_key
 )
+/* Each cell with its actives (0 when none) and retention = actives / cohort size. */
 SELECT
   DATE(DATE(DATE('1970-01-01'), (
     t.cell_cohort_key - 23640
@@ -506,22 +548,25 @@ DROP VIEW IF EXISTS engagement_depth;
 
 CREATE VIEW engagement_depth AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts
   FROM "app_events"
   WHERE
-    NOT "user_id" IS NULL
-    AND NOT "occurred_at" IS NULL
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS user_id,
     DATE(sqlgen_ts) AS activity_date
   FROM sqlgen_source
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -530,8 +575,9 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
   WHERE
-    NOT activity_date IS NULL
+    activity_date IS NOT NULL
 ), user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
@@ -544,6 +590,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), depth_counts AS (
+  /* Users per period and number of distinct active days. */
   SELECT
     period_key AS depth_key,
     active_days AS depth_days,
@@ -553,6 +600,7 @@ WITH sqlgen_source AS (
     period_key,
     active_days
 ), period_totals AS (
+  /* Active users and user-days per period. */
   SELECT
     period_key AS total_key,
     COUNT(*) AS total_users,
@@ -561,12 +609,14 @@ WITH sqlgen_source AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT
     MIN(period_key) AS first_key,
     MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
   FROM user_periods
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -597,6 +647,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     r.first_key + 1 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
@@ -613,6 +664,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= r.last_key
 ), spans AS (
+  /* Days in each period, and the days seen so far (the last period may be in progress). */
   SELECT
     calendar_key AS span_key,
     CAST((JULIANDAY(DATE(DATE(DATE('1970-01-01'), (
@@ -633,6 +685,7 @@ WITH sqlgen_source AS (
     END AS seen_days
   FROM calendar
 ), day_counts AS (
+  /* Day counts 1 up to the longest period of the grain. */
   SELECT
     digit_0.n + digit_1.n * 10 + 1 AS day_count
   FROM digits AS digit_0
@@ -640,6 +693,7 @@ WITH sqlgen_source AS (
   WHERE
     digit_0.n + digit_1.n * 10 < 31
 ), cells AS (
+  /* One cell per period and possible day count. */
   SELECT
     s.span_key AS cell_key,
     d.day_count AS cell_days,
@@ -650,6 +704,7 @@ WITH sqlgen_source AS (
   WHERE
     d.day_count <= s.span_days
 )
+/* Users active on exactly that many days (0 when none), their share, and the daily-to-period ratio. */
 SELECT
   DATE(DATE(DATE('1970-01-01'), (
     c.cell_key - 23640
@@ -673,29 +728,33 @@ DROP VIEW IF EXISTS trailing_activity;
 
 CREATE VIEW trailing_activity AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts
   FROM "app_events"
   WHERE
-    NOT "user_id" IS NULL
-    AND NOT "occurred_at" IS NULL
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS user_id,
     DATE(sqlgen_ts) AS activity_date
   FROM sqlgen_source
 ), numbered AS (
+  /* Each active day as a day number: days since Monday 1970-01-05. */
   SELECT
     user_id AS day_user,
     CAST((JULIANDAY(activity_date) - JULIANDAY(DATE('1970-01-05'))) AS INTEGER) AS day_number
   FROM dated
   WHERE
-    NOT activity_date IS NULL
+    activity_date IS NOT NULL
 ), blocked AS (
+  /* Days cut into blocks as long as the shortest window. */
   SELECT
     day_user,
     day_number,
@@ -704,6 +763,7 @@ WITH sqlgen_source AS (
     ) % 7 AS block_number
   FROM numbered
 ), user_blocks AS (
+  /* First and last active day of each user in each block. */
   SELECT
     day_user AS block_user,
     block_number,
@@ -714,6 +774,7 @@ WITH sqlgen_source AS (
     day_user,
     block_number
 ), visits AS (
+  /* Each block with the user's previous block and next active day. */
   SELECT
     first_day,
     last_day,
@@ -721,12 +782,14 @@ WITH sqlgen_source AS (
     LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number NULLS LAST) AS next_day
   FROM user_blocks
 ), window_lengths AS (
+  /* The window lengths, in days. */
   SELECT
     7 AS window_length
   UNION ALL
   SELECT
     28 AS window_length
 ), spans AS (
+  /* Per block and window, the days whose window counts the user: active, lapsing, churned. */
   SELECT
     w.window_length AS span_window,
     v.first_day AS start_day,
@@ -750,6 +813,7 @@ WITH sqlgen_source AS (
   FROM visits AS v
   CROSS JOIN window_lengths AS w
 ), boundaries AS (
+  /* Each span as +1 where it starts and -1 where it ends. */
   SELECT
     span_window AS change_window,
     start_day AS change_day,
@@ -808,6 +872,7 @@ WITH sqlgen_source AS (
   WHERE
     lapse = 1
 ), changes AS (
+  /* The changes summed per window and day. */
   SELECT
     change_window,
     change_day,
@@ -820,11 +885,13 @@ WITH sqlgen_source AS (
     change_window,
     change_day
 ), data_range AS (
+  /* The first and last active day. */
   SELECT
     MIN(first_day) AS first_day,
     MAX(last_day) AS last_day
   FROM user_blocks
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -855,6 +922,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every day from the first to the last. */
   SELECT
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 AS calendar_day
   FROM data_range AS r
@@ -866,6 +934,7 @@ WITH sqlgen_source AS (
   WHERE
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 <= r.last_day
 ), running AS (
+  /* Running sums of the changes give each day's counts per window. */
   SELECT
     c.calendar_day AS grid_day,
     w.window_length AS grid_window,
@@ -894,6 +963,7 @@ WITH sqlgen_source AS (
   LEFT JOIN changes AS ch
     ON ch.change_window = w.window_length AND ch.change_day = c.calendar_day
 ), tallied AS (
+  /* retained = previous - churned: every user of the previous window is retained or churned. */
   SELECT
     grid_day,
     grid_window,
@@ -904,6 +974,7 @@ WITH sqlgen_source AS (
     CAST(churned_count AS INTEGER) AS churned_tally
   FROM running
 )
+/* One row per day and window; resurrected = active - new - retained. */
 SELECT
   DATE(DATE(DATE('1970-01-05'), (
     grid_day

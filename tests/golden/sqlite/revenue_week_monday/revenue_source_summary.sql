@@ -7,6 +7,7 @@ DROP VIEW IF EXISTS revenue_source_summary;
 
 CREATE VIEW revenue_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
@@ -31,6 +32,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "subscriptions"
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -40,6 +42,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -57,12 +60,13 @@ WITH sqlgen_source AS (
       THEN 'filtered_out'
       WHEN row_months IS NULL
       THEN 'invalid'
-      WHEN NOT row_end IS NULL AND row_end <= row_date
+      WHEN row_end IS NOT NULL AND row_end <= row_date
       THEN 'invalid'
       ELSE 'counted'
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count; the counted rows' first and last dates. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,

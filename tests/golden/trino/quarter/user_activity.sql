@@ -6,22 +6,25 @@
 
 CREATE OR REPLACE VIEW "growth".user_activity AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
-    NOT "user_id" IS NULL
-    AND NOT "occurred_at" IS NULL
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS user_id,
     CAST(sqlgen_ts AS DATE) AS activity_date
   FROM sqlgen_source
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -32,8 +35,9 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
   WHERE
-    NOT activity_date IS NULL
+    activity_date IS NOT NULL
 ), user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
@@ -46,6 +50,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 )
+/* One row per user and active period, its start date from the period key. */
 SELECT
   user_id,
   period_key,

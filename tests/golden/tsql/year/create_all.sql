@@ -6,6 +6,7 @@
 -- activity_source_summary
 CREATE OR ALTER VIEW [growth].activity_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the activity table, marked as kept or not by the spec's filter. */
   SELECT
     [user_id] AS sqlgen_user,
     [occurred_at] AS sqlgen_ts,
@@ -14,6 +15,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM [raw].[app_events]
 ), sqlgen_dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS sqlgen_user,
     sqlgen_ts AS sqlgen_ts,
@@ -21,20 +23,21 @@ WITH sqlgen_source AS (
     CAST(sqlgen_ts AS DATE) AS sqlgen_local_date
   FROM sqlgen_source
 )
+/* Each source row falls in exactly one count: null user, null timestamp, filtered out, unconverted or counted. */
 SELECT
   COUNT_BIG(*) AS source_rows,
   COUNT_BIG(CASE WHEN sqlgen_user IS NULL THEN 1 END) AS null_user_rows,
-  COUNT_BIG(CASE WHEN NOT sqlgen_user IS NULL AND sqlgen_ts IS NULL THEN 1 END) AS null_timestamp_rows,
+  COUNT_BIG(CASE WHEN sqlgen_user IS NOT NULL AND sqlgen_ts IS NULL THEN 1 END) AS null_timestamp_rows,
   COUNT_BIG(
     CASE
-      WHEN NOT sqlgen_user IS NULL AND NOT sqlgen_ts IS NULL AND sqlgen_kept = 0
+      WHEN sqlgen_user IS NOT NULL AND sqlgen_ts IS NOT NULL AND sqlgen_kept = 0
       THEN 1
     END
   ) AS filtered_out_rows,
   COUNT_BIG(
     CASE
-      WHEN NOT sqlgen_user IS NULL
-      AND NOT sqlgen_ts IS NULL
+      WHEN sqlgen_user IS NOT NULL
+      AND sqlgen_ts IS NOT NULL
       AND sqlgen_kept = 1
       AND sqlgen_local_date IS NULL
       THEN 1
@@ -42,10 +45,10 @@ SELECT
   ) AS unconverted_rows,
   COUNT_BIG(
     CASE
-      WHEN NOT sqlgen_user IS NULL
-      AND NOT sqlgen_ts IS NULL
+      WHEN sqlgen_user IS NOT NULL
+      AND sqlgen_ts IS NOT NULL
       AND sqlgen_kept = 1
-      AND NOT sqlgen_local_date IS NULL
+      AND sqlgen_local_date IS NOT NULL
       THEN 1
     END
   ) AS counted_rows
@@ -54,22 +57,25 @@ FROM sqlgen_dated;
 -- user_activity
 CREATE OR ALTER VIEW [growth].user_activity AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT
     [user_id] AS sqlgen_user,
     [occurred_at] AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
-    NOT [user_id] IS NULL
-    AND NOT [occurred_at] IS NULL
+    [user_id] IS NOT NULL
+    AND [occurred_at] IS NOT NULL
     AND (
       [event_name] <> 'push_received'
     )
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS user_id,
     CAST(sqlgen_ts AS DATE) AS activity_date
   FROM sqlgen_source
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -80,8 +86,9 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
   WHERE
-    NOT activity_date IS NULL
+    activity_date IS NOT NULL
 ), user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -94,6 +101,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 )
+/* One row per user and active period, its start date from the period key. */
 SELECT
   user_id,
   period_key,
@@ -107,22 +115,25 @@ FROM user_periods;
 -- user_states
 CREATE OR ALTER VIEW [growth].user_states AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT
     [user_id] AS sqlgen_user,
     [occurred_at] AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
-    NOT [user_id] IS NULL
-    AND NOT [occurred_at] IS NULL
+    [user_id] IS NOT NULL
+    AND [occurred_at] IS NOT NULL
     AND (
       [event_name] <> 'push_received'
     )
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS user_id,
     CAST(sqlgen_ts AS DATE) AS activity_date
   FROM sqlgen_source
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -133,8 +144,9 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
   WHERE
-    NOT activity_date IS NULL
+    activity_date IS NOT NULL
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -144,6 +156,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
+  /* Each active (user, period) with the user's previous and next active periods. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -151,10 +164,12 @@ WITH sqlgen_source AS (
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS later_key
   FROM active_periods
 ), data_range AS (
+  /* The last period with data: a user lapses only before it. */
   SELECT
     MAX(period_key) AS last_key
   FROM active_periods
 ), lapsed AS (
+  /* Churned: the period after an active one in which the user is not active, up to the last period. */
   SELECT
     s.user_id AS user_id,
     s.period_key + 12 AS lapse_key
@@ -166,6 +181,7 @@ WITH sqlgen_source AS (
     )
     AND s.period_key + 12 <= r.last_key
 )
+/* Active periods are new, retained or resurrected by the previous active period; then the churned ones. */
 SELECT
   user_id,
   period_key,
@@ -189,22 +205,25 @@ FROM lapsed;
 -- growth_accounting
 CREATE OR ALTER VIEW [growth].growth_accounting AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT
     [user_id] AS sqlgen_user,
     [occurred_at] AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
-    NOT [user_id] IS NULL
-    AND NOT [occurred_at] IS NULL
+    [user_id] IS NOT NULL
+    AND [occurred_at] IS NOT NULL
     AND (
       [event_name] <> 'push_received'
     )
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS user_id,
     CAST(sqlgen_ts AS DATE) AS activity_date
   FROM sqlgen_source
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -215,8 +234,9 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
   WHERE
-    NOT activity_date IS NULL
+    activity_date IS NOT NULL
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -226,12 +246,14 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
+  /* Each active (user, period) with the user's previous active period (NULL: the first). */
   SELECT
     period_key AS period_key,
     last_date AS last_date,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
   FROM active_periods
 ), tallies AS (
+  /* Per period: actives; new (no earlier period), retained (the period before), resurrected (an earlier one). */
   SELECT
     period_key AS tally_key,
     MAX(last_date) AS through_tally,
@@ -243,12 +265,14 @@ WITH sqlgen_source AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT
     MIN(tally_key) AS first_key,
     MAX(tally_key) AS last_key,
     MAX(through_tally) AS data_through
   FROM tallies
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT
     first_key AS first_key,
     last_key AS last_key,
@@ -260,6 +284,7 @@ WITH sqlgen_source AS (
     ) AS after_data_key
   FROM data_range
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -290,6 +315,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, by the grain's step, empty periods included. */
   SELECT
     e.first_key + 12 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -303,6 +329,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= e.last_key
 ), filled AS (
+  /* The tallies on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key AS calendar_key,
     COALESCE(t.active_tally, 0) AS active_count,
@@ -319,6 +346,7 @@ WITH sqlgen_source AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 ), sequenced_totals AS (
+  /* Each period with the actives of the period before (0 for the first). */
   SELECT
     calendar_key AS calendar_key,
     active_count AS active_count,
@@ -329,6 +357,7 @@ WITH sqlgen_source AS (
     status AS status
   FROM filled
 ), balanced AS (
+  /* The churn identity: every previous active is retained now or churned, so churned = previous - retained. */
   SELECT
     calendar_key AS calendar_key,
     active_count AS active_count,
@@ -340,6 +369,7 @@ WITH sqlgen_source AS (
     status AS status
   FROM sequenced_totals
 )
+/* One row per period: its start date from the key, counts, and ratios (NULL on a zero denominator). */
 SELECT
   CAST(DATEADD(MONTH, calendar_key - 23640, CAST('1970-01-01' AS DATE)) AS DATE) AS period_start,
   active_count AS active_users,
@@ -359,22 +389,25 @@ FROM balanced;
 -- cohort_retention
 CREATE OR ALTER VIEW [growth].cohort_retention AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT
     [user_id] AS sqlgen_user,
     [occurred_at] AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
-    NOT [user_id] IS NULL
-    AND NOT [occurred_at] IS NULL
+    [user_id] IS NOT NULL
+    AND [occurred_at] IS NOT NULL
     AND (
       [event_name] <> 'push_received'
     )
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS user_id,
     CAST(sqlgen_ts AS DATE) AS activity_date
   FROM sqlgen_source
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -385,8 +418,9 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
   WHERE
-    NOT activity_date IS NULL
+    activity_date IS NOT NULL
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -396,11 +430,13 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), marked AS (
+  /* Each active (user, period) with the user's cohort: the first active period. */
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
   FROM active_periods
 ), cohort_actives AS (
+  /* Actives per cohort and period. */
   SELECT
     marked_cohort_key AS active_cohort_key,
     marked_key AS active_key,
@@ -410,6 +446,7 @@ WITH sqlgen_source AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
+  /* A cohort's size: its actives in the cohort period. */
   SELECT
     active_cohort_key AS size_key,
     active_count AS size_count
@@ -417,11 +454,13 @@ WITH sqlgen_source AS (
   WHERE
     active_key = active_cohort_key
 ), data_range AS (
+  /* The first and last period with data. */
   SELECT
     MIN(period_key) AS first_data_key,
     MAX(period_key) AS last_data_key
   FROM active_periods
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -452,6 +491,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), ages AS (
+  /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 AS age_number
   FROM data_range AS r
@@ -463,6 +503,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= r.last_data_key
 ), triangle AS (
+  /* Every cohort and age up to the last period with data: the full triangle. */
   SELECT
     s.size_key AS cell_cohort_key,
     g.age_number AS cell_age,
@@ -474,6 +515,7 @@ WITH sqlgen_source AS (
   WHERE
     s.size_key + 12 * g.age_number <= r.last_data_key
 )
+/* Each cell with its actives (0 when none) and retention = actives / cohort size. */
 SELECT
   CAST(DATEADD(MONTH, t.cell_cohort_key - 23640, CAST('1970-01-01' AS DATE)) AS DATE) AS cohort_start,
   t.cell_age AS age,
@@ -490,22 +532,25 @@ LEFT JOIN cohort_actives AS c
 -- engagement_depth
 CREATE OR ALTER VIEW [growth].engagement_depth AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT
     [user_id] AS sqlgen_user,
     [occurred_at] AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
-    NOT [user_id] IS NULL
-    AND NOT [occurred_at] IS NULL
+    [user_id] IS NOT NULL
+    AND [occurred_at] IS NOT NULL
     AND (
       [event_name] <> 'push_received'
     )
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS user_id,
     CAST(sqlgen_ts AS DATE) AS activity_date
   FROM sqlgen_source
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -516,8 +561,9 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
   WHERE
-    NOT activity_date IS NULL
+    activity_date IS NOT NULL
 ), user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -530,6 +576,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), depth_counts AS (
+  /* Users per period and number of distinct active days. */
   SELECT
     period_key AS depth_key,
     active_days AS depth_days,
@@ -539,6 +586,7 @@ WITH sqlgen_source AS (
     period_key,
     active_days
 ), period_totals AS (
+  /* Active users and user-days per period. */
   SELECT
     period_key AS total_key,
     COUNT_BIG(*) AS total_users,
@@ -547,12 +595,14 @@ WITH sqlgen_source AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT
     MIN(period_key) AS first_key,
     MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
   FROM user_periods
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -583,6 +633,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     r.first_key + 12 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -598,6 +649,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= r.last_key
 ), spans AS (
+  /* Days in each period, and the days seen so far (the last period may be in progress). */
   SELECT
     calendar_key AS span_key,
     DATEDIFF(
@@ -620,6 +672,7 @@ WITH sqlgen_source AS (
     END AS seen_days
   FROM calendar
 ), day_counts AS (
+  /* Day counts 1 up to the longest period of the grain. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 + 1 AS day_count
   FROM digits AS digit_0
@@ -628,6 +681,7 @@ WITH sqlgen_source AS (
   WHERE
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 < 366
 ), cells AS (
+  /* One cell per period and possible day count. */
   SELECT
     s.span_key AS cell_key,
     d.day_count AS cell_days,
@@ -638,6 +692,7 @@ WITH sqlgen_source AS (
   WHERE
     d.day_count <= s.span_days
 )
+/* Users active on exactly that many days (0 when none), their share, and the daily-to-period ratio. */
 SELECT
   CAST(DATEADD(MONTH, c.cell_key - 23640, CAST('1970-01-01' AS DATE)) AS DATE) AS period_start,
   c.cell_days AS active_days,
@@ -657,29 +712,33 @@ LEFT JOIN period_totals AS t
 -- trailing_activity
 CREATE OR ALTER VIEW [growth].trailing_activity AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter. */
   SELECT
     [user_id] AS sqlgen_user,
     [occurred_at] AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
-    NOT [user_id] IS NULL
-    AND NOT [occurred_at] IS NULL
+    [user_id] IS NOT NULL
+    AND [occurred_at] IS NOT NULL
     AND (
       [event_name] <> 'push_received'
     )
 ), dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user AS user_id,
     CAST(sqlgen_ts AS DATE) AS activity_date
   FROM sqlgen_source
 ), numbered AS (
+  /* Each active day as a day number: days since Monday 1970-01-05. */
   SELECT
     user_id AS day_user,
     DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) AS day_number
   FROM dated
   WHERE
-    NOT activity_date IS NULL
+    activity_date IS NOT NULL
 ), blocked AS (
+  /* Days cut into blocks as long as the shortest window. */
   SELECT
     day_user AS day_user,
     day_number AS day_number,
@@ -688,6 +747,7 @@ WITH sqlgen_source AS (
     ) % 7 AS block_number
   FROM numbered
 ), user_blocks AS (
+  /* First and last active day of each user in each block. */
   SELECT
     day_user AS block_user,
     block_number AS block_number,
@@ -698,6 +758,7 @@ WITH sqlgen_source AS (
     day_user,
     block_number
 ), visits AS (
+  /* Each block with the user's previous block and next active day. */
   SELECT
     first_day AS first_day,
     last_day AS last_day,
@@ -705,12 +766,14 @@ WITH sqlgen_source AS (
     LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number) AS next_day
   FROM user_blocks
 ), window_lengths AS (
+  /* The window lengths, in days. */
   SELECT
     7 AS window_length
   UNION ALL
   SELECT
     28 AS window_length
 ), spans AS (
+  /* Per block and window, the days whose window counts the user: active, lapsing, churned. */
   SELECT
     w.window_length AS span_window,
     v.first_day AS start_day,
@@ -734,6 +797,7 @@ WITH sqlgen_source AS (
   FROM visits AS v
   CROSS JOIN window_lengths AS w
 ), boundaries AS (
+  /* Each span as +1 where it starts and -1 where it ends. */
   SELECT
     span_window AS change_window,
     start_day AS change_day,
@@ -792,6 +856,7 @@ WITH sqlgen_source AS (
   WHERE
     lapse = 1
 ), changes AS (
+  /* The changes summed per window and day. */
   SELECT
     change_window AS change_window,
     change_day AS change_day,
@@ -804,11 +869,13 @@ WITH sqlgen_source AS (
     change_window,
     change_day
 ), data_range AS (
+  /* The first and last active day. */
   SELECT
     MIN(first_day) AS first_day,
     MAX(last_day) AS last_day
   FROM user_blocks
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -839,6 +906,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every day from the first to the last. */
   SELECT
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 AS calendar_day
   FROM data_range AS r
@@ -850,6 +918,7 @@ WITH sqlgen_source AS (
   WHERE
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 <= r.last_day
 ), running AS (
+  /* Running sums of the changes give each day's counts per window. */
   SELECT
     c.calendar_day AS grid_day,
     w.window_length AS grid_window,
@@ -878,6 +947,7 @@ WITH sqlgen_source AS (
   LEFT JOIN changes AS ch
     ON ch.change_window = w.window_length AND ch.change_day = c.calendar_day
 ), tallied AS (
+  /* retained = previous - churned: every user of the previous window is retained or churned. */
   SELECT
     grid_day AS grid_day,
     grid_window AS grid_window,
@@ -888,6 +958,7 @@ WITH sqlgen_source AS (
     CAST(churned_count AS BIGINT) AS churned_tally
   FROM running
 )
+/* One row per day and window; resurrected = active - new - retained. */
 SELECT
   CAST(DATEADD(DAY, grid_day, CAST('1970-01-05' AS DATE)) AS DATE) AS day,
   grid_window AS window_days,
