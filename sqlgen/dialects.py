@@ -46,6 +46,7 @@ class Target:
     exec_batch: bool = False
     # Operations of a where filter (filter_feature names) it cannot express -> reason
     filter_gaps: dict[str, str] = field(default_factory=dict)
+    column_types: str = ""  # which column types the spec's timestamp_type values mean here
 
     def dialect(self) -> Dialect:
         return Dialect.get_or_raise(self.sqlglot_dialect)
@@ -101,12 +102,34 @@ def _zones_at_time_zone(ts, source, target):
 
 
 def _zones_spark(ts, source, target):
-    """Spark: ``convert_timezone(z, ts)`` of an instant, ``convert_timezone('UTC', z, ts)`` of a
-    zone-less timestamp; neither depends on spark.sql.session.timeZone."""
+    """Spark: ``convert_timezone('UTC', z, ts)`` of a zone-less timestamp; an instant is first
+    made a UTC wall clock from its epoch microseconds (see ``_utc_wall_clock_spark``)."""
+    if source is None:
+        ts, source = _utc_wall_clock_spark(ts), exp.Literal.string("UTC")
+    if _is_utc(target):
+        return ts
+    return _fn("CONVERT_TIMEZONE", source, target, ts)
+
+
+def _utc_wall_clock_spark(ts: exp.Expression) -> exp.Expression:
+    """Spark: the UTC wall clock (TIMESTAMP_NTZ) of an instant, whatever the session zone.
+
+    ``convert_timezone(z, ts)`` of a TIMESTAMP is not: it reads ts as a wall clock of the
+    session zone, and a permanent view takes that zone from the reading session while its
+    ``current_timezone()`` is the one saved with the view (a view made under UTC and read
+    under 'Asia/Kolkata' moved 23:30 UTC to the next day). ``unix_micros(ts)`` is the
+    instant itself; added to the NTZ epoch it is the UTC wall clock.
+    """
+    epoch = exp.Cast(this=exp.Literal.string("1970-01-01 00:00:00"),
+                     to=exp.DataType.build("TIMESTAMP_NTZ", dialect="spark"))
+    return _fn("TIMESTAMPADD", exp.var("MICROSECOND"), _fn("UNIX_MICROS", ts), epoch)
+
+
+def _zones_snowflake(ts, source, target):
+    """Snowflake, Redshift: ``convert_timezone(z, ts)`` of an instant,
+    ``convert_timezone('UTC', z, ts)`` of a zone-less timestamp; neither depends on the
+    session zone."""
     return _fn("CONVERT_TIMEZONE", *([source] if source is not None else []), target, ts)
-
-
-_zones_snowflake = _zones_spark  # the same two forms; independent of the session zone
 
 
 def _zones_clickhouse(ts, source, target):
@@ -117,11 +140,33 @@ def _zones_clickhouse(ts, source, target):
 
 
 def _zones_mysql(ts, source, target):
-    """MySQL/MariaDB have no instant type: zone-aware values are stored as UTC DATETIME, so
-    both cases convert from UTC. Named zones need the server's time zone tables loaded."""
+    """MySQL/MariaDB: an instant is a ``TIMESTAMP`` column, a zone-less value a ``DATETIME``.
+
+    A query reads a TIMESTAMP in the session's ``time_zone``, so an instant is first turned
+    into its UTC wall clock from the epoch value the column stores (see ``_utc_wall_clock``);
+    a DATETIME read as UTC is that wall clock already. Then ``CONVERT_TZ`` from '+00:00' to
+    the reporting zone (named zones need the server's time zone tables loaded).
+    """
+    if source is None:
+        ts = _utc_wall_clock(ts)
     if _is_utc(target):
         return ts
     return _fn("CONVERT_TZ", ts, exp.Literal.string("+00:00"), target)
+
+
+def _utc_wall_clock(ts: exp.Expression) -> exp.Expression:
+    """MySQL/MariaDB: the UTC wall clock of a TIMESTAMP, whatever the session's time_zone.
+
+    ``UNIX_TIMESTAMP(ts)`` of a TIMESTAMP column is the stored epoch value, not a reading
+    in the session zone (a DECIMAL with the microseconds of a TIMESTAMP(6)); added to the
+    epoch as microseconds it gives the UTC wall clock. ``FROM_UNIXTIME`` would not: it
+    answers in the session zone (``SET time_zone = '+05:30'``: ``FROM_UNIXTIME(0)`` is
+    '1970-01-01 05:30:00').
+    """
+    epoch = exp.Cast(this=exp.Literal.string("1970-01-01 00:00:00"),
+                     to=exp.DataType.build("DATETIME(6)", dialect="mysql"))
+    micros = exp.Mul(this=_fn("UNIX_TIMESTAMP", ts), expression=exp.Literal.number(1000000))
+    return exp.DateAdd(this=epoch, expression=micros, unit=exp.var("MICROSECOND"))
 
 
 def _zones_bigquery(ts, source, target):
@@ -199,7 +244,12 @@ def constant_unions_as_values(tree: exp.Expression) -> exp.Expression:
             return node
         name = node.find(exp.Alias).alias
         rows = exp.values([(v.copy(),) for v in found], alias="sqlgen_values", columns=[name])
-        return exp.select(name).from_(rows)
+        select = exp.select(name).from_(rows)
+        first = node
+        while isinstance(first, exp.Union):
+            first = first.this
+        select.add_comments(first.comments)  # the step comment on the first branch
+        return select
     return tree.transform(rewrite, copy=False)
 
 
@@ -318,6 +368,16 @@ _NARROW_DATES_CLICKHOUSE = (
     "2106-02-07, and a value outside them wraps or clamps without an error; keep valid_from "
     "on or after 1970-01-03 and valid_until on or before 2106-01-01")
 
+_MYSQL_COLUMN_TYPES = (
+    "`timestamp_type: timestamptz` is a `TIMESTAMP` column, MySQL's instant type; its local "
+    "dates are the same whatever the session's `time_zone` (including `SYSTEM`). Example: "
+    "`occurred_at TIMESTAMP(6)` with `timestamp_type: timestamptz`. A `DATETIME` column "
+    "holding UTC by convention is `timestamp_type: timestamp`, taken as UTC when `timezone` "
+    "is set, as on every other target. Example: `occurred_at DATETIME(6)` holding "
+    "'2021-03-14 04:30:00' for 04:30 UTC, with `timestamp_type: timestamp` and `timezone: "
+    "America/New_York`, is 2021-03-13 in New York. (A `DATETIME` declared `timestamptz` would "
+    "be read in the session's zone.)")
+
 _PG_NOTE = ("CREATE OR REPLACE VIEW cannot change an existing view's columns on this engine: "
             "after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, "
             "which does so).")
@@ -346,7 +406,8 @@ TARGETS: dict[str, Target] = {
                unsupported={"valid range before 1970 or after 2105": _NARROW_DATES_CLICKHOUSE}),
         Target("mysql", "mysql", "mysql", "replace",
                (_zone_rewrite(_zones_mysql), window_keys_nulls_default),
-               no_ddl_transaction=_NO_TX_MYSQL, schema_catalog=False, filter_gaps=_MYSQL_GAPS),
+               no_ddl_transaction=_NO_TX_MYSQL, schema_catalog=False, filter_gaps=_MYSQL_GAPS,
+               column_types=_MYSQL_COLUMN_TYPES),
         Target("sqlite", "sqlite", "sqlite", "drop_create",
                (_zone_rewrite(_zones_utc_only), timestamp_offsets(_offset_sqlite),
                 sqlite_date_parts),
@@ -456,7 +517,27 @@ def spec_identifiers(target: Target) -> Transform:
     return lambda tree: tree.transform(rewrite, copy=False)
 
 
+def is_not_null(tree: exp.Expression) -> exp.Expression:
+    """``NOT x IS NULL`` becomes ``x IS NOT NULL``, the form a reviewer expects.
+
+    sqlglot parses ``x IS NOT NULL`` as Not(Is(x, NULL)) and prints it back as
+    ``NOT x IS NULL``; an Is node with ``negate`` prints ``x IS NOT NULL`` in every
+    target. Comments on the NOT stay on the new node.
+    """
+    def rewrite(node: exp.Expression) -> exp.Expression:
+        inner = node.this if isinstance(node, exp.Not) else None
+        if isinstance(inner, exp.Paren):
+            inner = inner.unnest()
+        if not (isinstance(inner, exp.Is) and isinstance(inner.expression, exp.Null)
+                and not inner.args.get("negate")):
+            return node
+        negated = exp.Is(this=inner.this, expression=inner.expression, negate=True)
+        negated.add_comments((node.comments or []) + (inner.comments or []))
+        return negated
+    return tree.transform(rewrite, copy=False)
+
+
 def rewrites(target: Target) -> list[Transform]:
     """Every rewrite for a target, in order: shared lowering first, then its own."""
-    return [interval_add_to_date_add, lower_time_zones, spec_identifiers(target),
+    return [interval_add_to_date_add, lower_time_zones, is_not_null, spec_identifiers(target),
             *target.transforms]

@@ -62,6 +62,9 @@ def support_matrix() -> str:
             if reason:
                 notes.append(f"- **{target.name}**, {feature}: {reason}")
         lines.append(f"| {target.name} | " + " | ".join(cells) + " |")
+    types = [f"- **{t.name}**: {t.column_types}" for t in TARGETS.values() if t.column_types]
+    if types:
+        notes += ["", "## Column types", ""] + types
     return ("\n".join(lines) + "\n\n" + ("\n".join(notes) + "\n" if notes else "")
             + "\n" + create_all_matrix())
 

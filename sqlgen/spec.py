@@ -66,7 +66,10 @@ KEYS: tuple[Key, ...] = (
         required=True, example="occurred_at"),
     Key("activity.timestamp_type", "choice",
         "Type of the timestamp column: `timestamp` (no zone; taken as UTC when `timezone` is "
-        "set), `timestamptz` (an instant) or `date`.",
+        "set), `timestamptz` (an instant) or `date`. On MySQL an instant is a `TIMESTAMP` "
+        "column, read the same in every session zone (`occurred_at TIMESTAMP(6)`: "
+        "`timestamptz`), and a `DATETIME` holding UTC is a `timestamp` (`occurred_at "
+        "DATETIME(6)` with `timezone: America/New_York`); see docs/support-matrix.md.",
         default="timestamp", choices=TIMESTAMP_TYPES),
     Key("activity.where", "filter",
         "Optional condition selecting which rows count as activity; one boolean SQL expression "

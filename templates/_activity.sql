@@ -19,13 +19,17 @@ however often the view refers to it.
 
 {%- macro source_ctes() -%}
 sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT __user__ AS sqlgen_user, {{ p.near_value('__timestamp__', source.timestamp_type, 'activity') }} AS sqlgen_ts
   FROM __activity_table__
   WHERE __user__ IS NOT NULL AND __timestamp__ IS NOT NULL{% if source.where %} AND (__where__){% endif %}
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT sqlgen_user, {{ p.local_date('sqlgen_ts') }} AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT sqlgen_user AS user_id, sqlgen_date AS activity_date
   FROM sqlgen_local
   WHERE {{ p.in_range('sqlgen_date', 'activity') }}
@@ -34,6 +38,7 @@ sqlgen_source AS (
 
 {%- macro keyed() -%}
 {{ source_ctes() }}, keyed AS (
+  /* {% if grain.family == 'day' %}period_key: days since Monday 1970-01-05, a week keyed by its first day, so adjacent periods differ by the step in days{% else %}period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months{% endif %}. */
   SELECT user_id, activity_date, {{ p.period_key('activity_date') }} AS period_key
   FROM dated
 )
@@ -41,6 +46,7 @@ sqlgen_source AS (
 
 {%- macro active_periods() -%}
 {{ keyed() }}, active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT user_id, period_key, MAX(activity_date) AS last_date
   FROM keyed
   GROUP BY user_id, period_key
@@ -49,6 +55,7 @@ sqlgen_source AS (
 
 {%- macro user_periods() -%}
 {{ keyed() }}, user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,

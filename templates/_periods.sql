@@ -67,6 +67,7 @@ CASE WHEN {{ ts }} >= CAST('__{{ prefix }}_near_from__' AS {{ type }}) AND {{ ts
     valid range (render.grain_of), so it holds every period a view's data can reach. -#}
 {%- macro digits_cte() -%}
 digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT 0 AS n UNION ALL SELECT 1 UNION ALL SELECT 2 UNION ALL SELECT 3 UNION ALL SELECT 4
   UNION ALL SELECT 5 UNION ALL SELECT 6 UNION ALL SELECT 7 UNION ALL SELECT 8 UNION ALL SELECT 9
 )

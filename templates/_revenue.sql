@@ -70,6 +70,7 @@ END
 {%- set dated_column = '__revenue_timestamp__' if revenue.shape == 'charges' else '__revenue_start__' -%}
 {%- set raw_type = 'DATE' if revenue.timestamp_type == 'date' else 'TIMESTAMP' -%}
 sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     __customer__ AS sqlgen_customer,
     {{ dated_column }} AS sqlgen_date_value,
@@ -83,6 +84,7 @@ sqlgen_source AS (
     {%- endif %}
   FROM __revenue_table__
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -97,6 +99,7 @@ sqlgen_source AS (
     {%- endif %}
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -137,18 +140,22 @@ row_date
     and for subscriptions counted_end, counted_months). -#}
 {%- macro period_totals(p) -%}
 bounds AS (
+  /* The first and last date of the counted rows. */
   SELECT
     MIN(counted_date) AS first_date,
     MAX({{ 'CASE WHEN counted_end IS NULL THEN counted_date ELSE counted_end END' if revenue.shape == 'subscriptions' else 'counted_date' }}) AS last_date
   FROM counted
 ), data_range AS (
+  /* The first and last period of the counted rows. */
   SELECT {{ p.period_key('first_date') }} AS first_key, {{ p.period_key('last_date') }} AS last_key
   FROM bounds
 ), {% if revenue.shape == 'charges' -%}
 keyed AS (
+  /* Each charge with its period key. */
   SELECT counted_customer AS keyed_customer, {{ p.period_key('counted_date') }} AS keyed_key, counted_amount AS keyed_amount
   FROM counted
 ), totals AS (
+  /* Each customer's total per period, rounded to the amount's scale. */
   SELECT keyed_customer AS total_customer, keyed_key AS total_key, {{ money('SUM(keyed_amount)') }} AS total_amount
   FROM keyed
   GROUP BY keyed_customer, keyed_key
@@ -173,6 +180,8 @@ keyed AS (
     would add a window sort to the same join; the range join alone is simpler and no slower. -#}
 {%- macro run_rate_totals(p) -%}
 ranges AS (
+  /* Each subscription's periods in force at the period's end: from the period of its start
+     to the period before the one holding its end (to the last period while it runs). */
   SELECT
     c.counted_customer AS range_customer,
     {{ p.period_key('c.counted_date') }} AS range_first_key,
@@ -182,6 +191,8 @@ ranges AS (
   FROM counted AS c
   CROSS JOIN data_range AS d
 ), monthly AS (
+  /* Its monthly amount: amount / months of the interval, in whole units of the scale,
+     rounded half away from zero. */
   SELECT
     range_customer AS monthly_customer,
     range_first_key AS monthly_first_key,
@@ -192,11 +203,13 @@ ranges AS (
   FROM ranges
   WHERE range_first_key <= range_last_key
 ), {{ p.digits_cte() }}, period_ends AS (
+  /* Every period from the first to the last. */
   SELECT d.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) AS end_key
   FROM data_range AS d
   CROSS JOIN {{ p.counting(grain.calendar_digits) }}
   WHERE d.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) <= d.last_key
 ), totals AS (
+  /* A customer's run rate in a period: the monthly amounts in force at its end. */
   SELECT
     m.monthly_customer AS total_customer,
     e.end_key AS total_key,
@@ -217,6 +230,7 @@ ranges AS (
     integer arithmetic, rounded half away from zero, and the shares are summed. -#}
 {%- macro subscription_totals(p) -%}
 spans AS (
+  /* Each counted subscription in whole units of the amount's scale. */
   SELECT
     counted_customer AS span_customer,
     counted_date AS span_start,
@@ -225,6 +239,7 @@ spans AS (
     counted_months AS span_months
   FROM counted
 ), {{ p.digits_cte() }}, {{ segments(p) }}, pieces AS (
+  /* Each subscription's covered days in each segment, as an integer fraction of the segment. */
   SELECT
     s.span_customer AS piece_customer,
     g.segment_key AS piece_key,
@@ -239,6 +254,7 @@ spans AS (
   WHERE s.span_start < g.segment_end
     AND (s.span_end IS NULL OR s.span_end > g.segment_start)
 ), shares AS (
+  /* Each piece in whole units, rounded half away from zero with integer arithmetic. */
   SELECT
     piece_customer AS share_customer,
     piece_key AS share_key,
@@ -247,6 +263,7 @@ spans AS (
       / (2 * piece_denominator) AS BIGINT) AS share_units
   FROM pieces
 ), totals AS (
+  /* Each customer's total per period: the sum of its shares. */
   SELECT
     share_customer AS total_customer,
     share_key AS total_key,
@@ -262,17 +279,20 @@ spans AS (
 {%- macro segments(p) -%}
 {%- if grain.family == 'month' -%}
 months AS (
+  /* Every calendar month the data spans. */
   SELECT d.first_key + {{ p.counting_value(grain.month_digits) }} AS segment_month
   FROM data_range AS d
   CROSS JOIN {{ p.counting(grain.month_digits) }}
   WHERE d.first_key + {{ p.counting_value(grain.month_digits) }} <= d.last_key{% if grain.step > 1 %} + {{ grain.step - 1 }}{% endif %}
 ), month_edges AS (
+  /* Each month with its period key and its first and next month's first day. */
   SELECT
     {% if grain.step == 1 %}segment_month{% else %}segment_month - (segment_month % 12) % {{ grain.step }}{% endif %} AS edge_key,
     {{ month_start('segment_month') }} AS edge_start,
     {{ month_start('segment_month + 1') }} AS edge_end
   FROM months
 ), segments AS (
+  /* Each month as a segment of its period, with its number of days. */
   SELECT
     edge_key AS segment_key,
     edge_start AS segment_start,
@@ -282,11 +302,13 @@ months AS (
 )
 {%- else -%}
 periods AS (
+  /* Every period the data spans. */
   SELECT d.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) AS calendar_key
   FROM data_range AS d
   CROSS JOIN {{ p.counting(grain.calendar_digits) }}
   WHERE d.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) <= d.last_key
 ), segments AS (
+  /* Each period as a segment, against a 365-day year. */
   SELECT
     calendar_key AS segment_key,
     {{ p.period_start('calendar_key') }} AS segment_start,

@@ -2,6 +2,7 @@
 {#- Each row falls in exactly one category, tried in this order, so the counts add up to
     source_rows. The valid range is tried after `where` and before the zone conversion. -#}
 WITH sqlgen_source AS (
+  /* Every row of the activity table, marked as kept or not by the spec's filter. */
   SELECT
     __user__ AS sqlgen_user,
     __timestamp__ AS sqlgen_ts,
@@ -9,9 +10,11 @@ WITH sqlgen_source AS (
     CASE WHEN {% if source.where %}(__where__){% else %}TRUE{% endif %} THEN 1 ELSE 0 END AS sqlgen_kept
   FROM __activity_table__
 ), sqlgen_dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT sqlgen_user, sqlgen_ts, sqlgen_near_ts, sqlgen_kept, {{ p.local_date('sqlgen_near_ts') }} AS sqlgen_local_date
   FROM sqlgen_source
 ), sqlgen_sorted AS (
+  /* One status per row, tried in order: the first that applies. */
   SELECT
     CASE
       WHEN sqlgen_user IS NULL THEN 'null_user'
@@ -24,6 +27,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count: null user, null timestamp, filtered out, out of range, unconverted or counted. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_user' THEN 1 END) AS null_user_rows,

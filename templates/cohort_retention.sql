@@ -6,27 +6,33 @@
 {#- Cohort = a user's first active period; one row per cohort and age (periods since the
     cohort period) up to the last period with data, zero rows included: a full triangle. -#}
 WITH {{ a.active_periods() }}, marked AS (
+  /* Each active (user, period) with the user's cohort: the first active period. */
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
   FROM active_periods
 ), cohort_actives AS (
+  /* Actives per cohort and period. */
   SELECT marked_cohort_key AS active_cohort_key, marked_key AS active_key, COUNT(*) AS active_count
   FROM marked
   GROUP BY marked_cohort_key, marked_key
 ), cohort_sizes AS (
+  /* A cohort's size: its actives in the cohort period. */
   SELECT active_cohort_key AS size_key, active_count AS size_count
   FROM cohort_actives
   WHERE active_key = active_cohort_key
 ), data_range AS (
+  /* The first and last period with data. */
   SELECT MIN(period_key) AS first_data_key, MAX(period_key) AS last_data_key
   FROM active_periods
 ), {{ p.digits_cte() }}, ages AS (
+  /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT {{ p.counting_value(grain.calendar_digits) }} AS age_number
   FROM data_range AS r
   CROSS JOIN {{ p.counting(grain.calendar_digits) }}
   WHERE r.first_data_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) <= r.last_data_key
 ), triangle AS (
+  /* Every cohort and age up to the last period with data: the full triangle. */
   SELECT
     s.size_key AS cell_cohort_key,
     g.age_number AS cell_age,
@@ -37,6 +43,7 @@ WITH {{ a.active_periods() }}, marked AS (
   CROSS JOIN data_range AS r
   WHERE s.size_key + {{ grain.step }} * g.age_number <= r.last_data_key
 )
+/* Each cell with its actives (0 when none) and retention = actives / cohort size. */
 SELECT
   {{ p.period_start('t.cell_cohort_key') }} AS cohort_start,
   t.cell_age AS age,

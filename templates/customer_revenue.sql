@@ -6,6 +6,7 @@
       revenue = previous + new + resurrected + expansion - contraction - churned
       previous = retained + contraction + churned. -#}
 WITH {{ r.source_rows(p) }}, counted AS (
+  /* The counted rows only. */
   SELECT
     sqlgen_customer AS counted_customer,
     row_date AS counted_date,
@@ -17,6 +18,7 @@ WITH {{ r.source_rows(p) }}, counted AS (
   FROM sqlgen_rows
   WHERE row_status = 'counted'
 ), {{ r.period_totals(p) }}, entries AS (
+  /* Each total as this period's revenue, and again as the next period's previous revenue. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -37,6 +39,7 @@ WITH {{ r.source_rows(p) }}, counted AS (
   CROSS JOIN data_range AS d
   WHERE t.total_amount > 0 AND t.total_key + {{ grain.step }} <= d.last_key
 ), combined AS (
+  /* Per customer and period: current revenue (a total of 0 or less counts as 0) and previous revenue. */
   SELECT
     entry_customer AS customer_key,
     entry_key AS revenue_key,
@@ -47,6 +50,7 @@ WITH {{ r.source_rows(p) }}, counted AS (
   FROM entries
   GROUP BY entry_customer, entry_key
 ), firsts AS (
+  /* Each customer's first period with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -57,6 +61,7 @@ WITH {{ r.source_rows(p) }}, counted AS (
     MIN(CASE WHEN current_amount > 0 THEN revenue_key END) OVER (PARTITION BY customer_key) AS first_paid_key
   FROM combined
 ), staged AS (
+  /* Exactly one state per row, so revenue = previous + new + resurrected + expansion - contraction - churned. */
   SELECT
     customer_key,
     revenue_key,
@@ -78,6 +83,7 @@ WITH {{ r.source_rows(p) }}, counted AS (
     END AS revenue_state
   FROM firsts
 )
+/* Each change in exactly one component; previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,

@@ -6,18 +6,22 @@
 {%- set longest = {'day': 1, 'week': 7, 'month': 31, 'quarter': 92, 'year': 366}[grain.name] -%}
 {%- set places = longest | string | length -%}
 WITH {{ a.user_periods() }}, depth_counts AS (
+  /* Users per period and number of distinct active days. */
   SELECT period_key AS depth_key, active_days AS depth_days, COUNT(*) AS depth_users
   FROM user_periods
   GROUP BY period_key, active_days
 ), period_totals AS (
+  /* Active users and user-days per period. */
   SELECT period_key AS total_key, COUNT(*) AS total_users, SUM(active_days) AS total_user_days
   FROM user_periods
   GROUP BY period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT MIN(period_key) AS first_key, MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
   FROM user_periods
 ), {{ p.digits_cte() }}, calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     r.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) AS calendar_key,
     r.last_key AS final_key,
@@ -26,6 +30,7 @@ WITH {{ a.user_periods() }}, depth_counts AS (
   CROSS JOIN {{ p.counting(grain.calendar_digits) }}
   WHERE r.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) <= r.last_key
 ), spans AS (
+  /* Days in each period, and the days seen so far (the last period may be in progress). */
   SELECT
     calendar_key AS span_key,
 {%- if grain.family == 'day' %}
@@ -44,11 +49,13 @@ WITH {{ a.user_periods() }}, depth_counts AS (
   FROM calendar
 {%- if longest > 1 %}
 ), day_counts AS (
+  /* Day counts 1 up to the longest period of the grain. */
   SELECT {{ p.counting_value(places) }} + 1 AS day_count
   FROM {{ p.counting(places) }}
   WHERE {{ p.counting_value(places) }} < {{ longest }}
 {%- endif %}
 ), cells AS (
+  /* One cell per period and possible day count. */
 {%- if longest == 1 %}
   SELECT span_key AS cell_key, 1 AS cell_days, span_days AS cell_span, seen_days AS cell_seen
   FROM spans
@@ -60,6 +67,7 @@ WITH {{ a.user_periods() }}, depth_counts AS (
   WHERE d.day_count <= s.span_days
 {%- endif %}
 )
+/* Users active on exactly that many days (0 when none), their share, and the daily-to-period ratio. */
 SELECT
   {{ p.period_start('c.cell_key') }} AS period_start,
   c.cell_days AS active_days,

@@ -7,12 +7,14 @@
     read once: the data range comes from the per-period tallies, not from a second read
     (engines that inline CTEs would group the events twice). -#}
 WITH {{ a.active_periods() }}, sequenced AS (
+  /* Each active (user, period) with the user's previous active period (NULL: the first). */
   SELECT
     period_key,
     last_date,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
   FROM active_periods
 ), tallies AS (
+  /* Per period: actives; new (no earlier period), retained (the period before), resurrected (an earlier one). */
   SELECT
     period_key AS tally_key,
     MAX(last_date) AS through_tally,
@@ -23,21 +25,25 @@ WITH {{ a.active_periods() }}, sequenced AS (
   FROM sequenced
   GROUP BY period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT
     MIN(tally_key) AS first_key,
     MAX(tally_key) AS last_key,
     MAX(through_tally) AS data_through
   FROM tallies
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT first_key, last_key, data_through,
     {{ p.period_key("data_through + INTERVAL 1 DAY") }} AS after_data_key
   FROM data_range
 ), {{ p.digits_cte() }}, calendar AS (
+  /* Every period from the first to the last, by the grain's step, empty periods included. */
   SELECT e.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) AS calendar_key
   FROM data_edge AS e
   CROSS JOIN {{ p.counting(grain.calendar_digits) }}
   WHERE e.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) <= e.last_key
 ), filled AS (
+  /* The tallies on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key,
     COALESCE(t.active_tally, 0) AS active_count,
@@ -53,6 +59,7 @@ WITH {{ a.active_periods() }}, sequenced AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 ), sequenced_totals AS (
+  /* Each period with the actives of the period before (0 for the first). */
   SELECT
     calendar_key,
     active_count,
@@ -63,6 +70,7 @@ WITH {{ a.active_periods() }}, sequenced AS (
     status
   FROM filled
 ), balanced AS (
+  /* The churn identity: every previous active is retained now or churned, so churned = previous - retained. */
   SELECT
     calendar_key,
     active_count,
@@ -74,6 +82,7 @@ WITH {{ a.active_periods() }}, sequenced AS (
     status
   FROM sequenced_totals
 )
+/* One row per period: its start date from the key, counts, and ratios (NULL on a zero denominator). */
 SELECT
   {{ p.period_start('calendar_key') }} AS period_start,
   active_count AS active_users,

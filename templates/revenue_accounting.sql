@@ -4,6 +4,7 @@
     revenue data (empty periods as zeros); the identities hold per customer row, so they hold
     exactly in these sums. -#}
 WITH tallies AS (
+  /* customer_revenue summed per period: the identities hold per row, so they hold in the sums. */
   SELECT
     period_key AS tally_key,
     SUM(revenue) AS revenue_sum,
@@ -29,21 +30,25 @@ WITH tallies AS (
   FROM {{ ref('customer_revenue') }}
   GROUP BY period_key
 ), data_range AS (
+  /* The first and last period with revenue data, and the last date. */
   SELECT
     {{ p.period_key('first_date') }} AS first_key,
     {{ p.period_key('last_date') }} AS last_key,
     last_date AS data_through
   FROM {{ ref('revenue_source_summary') }}
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT first_key, last_key, data_through,
     {{ p.period_key("data_through + INTERVAL 1 DAY") }} AS after_data_key
   FROM data_range
 ), {{ p.digits_cte() }}, calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT e.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) AS calendar_key
   FROM data_edge AS e
   CROSS JOIN {{ p.counting(grain.calendar_digits) }}
   WHERE e.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) <= e.last_key
 ), filled AS (
+  /* The sums on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key,
     COALESCE(t.revenue_sum, 0) AS revenue_amount,
@@ -75,6 +80,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
+/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   {{ p.period_start('calendar_key') }} AS period_start,
   {{ r.money('revenue_amount') }} AS revenue,

@@ -15,17 +15,21 @@
     counts. retained = previous - churned and resurrected = active - new - retained. -#}
 {%- set block = windows | min -%}
 WITH {{ a.source_ctes() }}, numbered AS (
+  /* Each active day as a day number: days since Monday 1970-01-05. */
   SELECT user_id AS day_user, DATE_DIFF('day', DATE '1970-01-05', activity_date) AS day_number
   FROM dated
 ), blocked AS (
+  /* Days cut into blocks as long as the shortest window. */
   SELECT day_user, day_number, day_number - (day_number + {{ 700000 - 700000 % block }}) % {{ block }} AS block_number
   FROM numbered
 ), user_blocks AS (
+  /* First and last active day of each user in each block. */
   SELECT day_user AS block_user, block_number, MIN(day_number) AS first_day,
     MAX(day_number) AS last_day
   FROM blocked
   GROUP BY day_user, block_number
 ), visits AS (
+  /* Each block with the user's previous block and next active day. */
   SELECT
     first_day,
     last_day,
@@ -33,10 +37,12 @@ WITH {{ a.source_ctes() }}, numbered AS (
     LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number) AS next_day
   FROM user_blocks
 ), window_lengths AS (
+  /* The window lengths, in days. */
 {%- for n in windows %}
   {% if not loop.first %}UNION ALL {% endif %}SELECT {{ n }} AS window_length
 {%- endfor %}
 ), spans AS (
+  /* Per block and window, the days whose window counts the user: active, lapsing, churned. */
   SELECT
     w.window_length AS span_window,
     v.first_day AS start_day,
@@ -56,6 +62,7 @@ WITH {{ a.source_ctes() }}, numbered AS (
   FROM visits AS v
   CROSS JOIN window_lengths AS w
 ), boundaries AS (
+  /* Each span as +1 where it starts and -1 where it ends. */
   SELECT span_window AS change_window, start_day AS change_day, 1 AS active_delta,
     0 AS previous_delta, first_visit AS new_delta, 0 AS churn_delta
   FROM spans
@@ -77,6 +84,7 @@ WITH {{ a.source_ctes() }}, numbered AS (
   FROM spans
   WHERE lapse = 1
 ), changes AS (
+  /* The changes summed per window and day. */
   SELECT
     change_window,
     change_day,
@@ -87,14 +95,17 @@ WITH {{ a.source_ctes() }}, numbered AS (
   FROM boundaries
   GROUP BY change_window, change_day
 ), data_range AS (
+  /* The first and last active day. */
   SELECT MIN(first_day) AS first_day, MAX(last_day) AS last_day
   FROM user_blocks
 ), {{ p.digits_cte() }}, calendar AS (
+  /* Every day from the first to the last. */
   SELECT r.first_day + {{ p.counting_value(grain.day_digits) }} AS calendar_day
   FROM data_range AS r
   CROSS JOIN {{ p.counting(grain.day_digits) }}
   WHERE r.first_day + {{ p.counting_value(grain.day_digits) }} <= r.last_day
 ), running AS (
+  /* Running sums of the changes give each day's counts per window. */
   SELECT
     c.calendar_day AS grid_day,
     w.window_length AS grid_window,
@@ -107,6 +118,7 @@ WITH {{ a.source_ctes() }}, numbered AS (
   LEFT JOIN changes AS ch
     ON ch.change_window = w.window_length AND ch.change_day = c.calendar_day
 ), tallied AS (
+  /* retained = previous - churned: every user of the previous window is retained or churned. */
   SELECT
     grid_day,
     grid_window,
@@ -117,6 +129,7 @@ WITH {{ a.source_ctes() }}, numbered AS (
     CAST(churned_count AS BIGINT) AS churned_tally
   FROM running
 )
+/* One row per day and window; resurrected = active - new - retained. */
 SELECT
   CAST(DATE '1970-01-05' + INTERVAL (grid_day) DAY AS DATE) AS day,
   grid_window AS window_days,

@@ -1,6 +1,7 @@
 {%- import '_periods.sql' as p with context -%}
 {%- import '_activity.sql' as a with context -%}
 WITH {{ a.user_periods() }}
+/* One row per user and active period, its start date from the period key. */
 SELECT
   user_id,
   period_key,

@@ -1,6 +1,7 @@
 {%- import '_periods.sql' as p with context -%}
 {%- import '_activity.sql' as a with context -%}
 WITH {{ a.active_periods() }}, sequenced AS (
+  /* Each active (user, period) with the user's previous and next active periods. */
   SELECT
     user_id,
     period_key,
@@ -8,14 +9,17 @@ WITH {{ a.active_periods() }}, sequenced AS (
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS later_key
   FROM active_periods
 ), data_range AS (
+  /* The last period with data: a user lapses only before it. */
   SELECT MAX(period_key) AS last_key FROM active_periods
 ), lapsed AS (
+  /* Churned: the period after an active one in which the user is not active, up to the last period. */
   SELECT s.user_id, s.period_key + {{ grain.step }} AS lapse_key
   FROM sequenced AS s
   CROSS JOIN data_range AS r
   WHERE (s.later_key IS NULL OR s.later_key <> s.period_key + {{ grain.step }})
     AND s.period_key + {{ grain.step }} <= r.last_key
 )
+/* Active periods are new, retained or resurrected by the previous active period; then the churned ones. */
 SELECT
   user_id,
   period_key,

@@ -7,6 +7,8 @@ Usage::
     engine.execute(['CREATE VIEW v AS SELECT * FROM raw.events;'])
     engine.query('SELECT * FROM v')        # -> list of tuples of plain Python values
     engine.reset()                          # drop everything created so far
+    with engine.session_zone('Asia/Kolkata'):   # queries read under another session zone
+        engine.query('SELECT * FROM v')
     engine.close()
 
 Portable column types: text, integer, bigint, double, date, timestamp (naive),
@@ -26,6 +28,7 @@ even when a test fails, and by a small watchdog process if this one is killed.
 from __future__ import annotations
 
 import atexit
+import contextlib
 import datetime as dt
 import json
 import logging
@@ -295,6 +298,24 @@ class Engine:
         """Drop every table, view and schema created so far."""
         raise NotImplementedError
 
+    @contextlib.contextmanager
+    def session_zone(self, zone: str):
+        """Run the queries of the block under session time zone `zone`, then UTC again.
+
+        `zone` is an IANA name (MySQL also takes 'SYSTEM', the server's own zone). Load
+        tables outside the block: a value is loaded as UTC only under the UTC session.
+        """
+        self._set_zone(zone)
+        try:
+            yield self
+        finally:
+            self._set_zone(self.utc_zone)
+
+    utc_zone = 'UTC'    # the session zone every engine starts with
+
+    def _set_zone(self, zone: str) -> None:
+        raise NotImplementedError
+
     def ensure_schema(self, schema: str) -> None:
         """Create a schema (MySQL, Spark, ClickHouse: database; SQLite: attached db)."""
         self._exec(f'CREATE SCHEMA IF NOT EXISTS {self.quote(schema)}')
@@ -424,6 +445,9 @@ class DuckDBEngine(_DbApiEngine):
         self._conn.close()
         self._connect()
 
+    def _set_zone(self, zone):
+        self._exec(f"SET TimeZone = '{zone}'")
+
 
 class SQLiteEngine(_DbApiEngine):
     """SQLite (stdlib), in memory. A schema is an attached ':memory:' database.
@@ -455,6 +479,18 @@ class SQLiteEngine(_DbApiEngine):
     def reset(self):
         self._conn.close()
         self._conn = sqlite3.connect(':memory:', isolation_level=None)
+
+    _saved_tz: tuple[str | None] | None = None
+
+    def _set_zone(self, zone):
+        """SQLite has no session zone; its 'localtime' modifier reads this process's TZ."""
+        if self._saved_tz is None:
+            self._saved_tz = (os.environ.get('TZ'),)
+        if zone == self.utc_zone and self._saved_tz[0] is None:
+            os.environ.pop('TZ', None)
+        else:
+            os.environ['TZ'] = self._saved_tz[0] if zone == self.utc_zone else zone
+        time.tzset()
 
 
 def _sqlite_value(value):
@@ -546,6 +582,9 @@ class PostgresEngine(_DbApiEngine):
             self._exec(f'DROP SCHEMA {self.quote(schema)} CASCADE')
         self._exec('CREATE SCHEMA public')
 
+    def _set_zone(self, zone):
+        self._exec(f"SET TimeZone = '{zone}'")
+
     def _shutdown(self):
         super()._shutdown()
         if self._started:
@@ -555,6 +594,8 @@ class PostgresEngine(_DbApiEngine):
 # ---------------------------------------------------------------- MySQL (MariaDB)
 
 MYSQL_SYSTEM_DBS = ('information_schema', 'mysql', 'performance_schema', 'sys')
+# The server's own zone (time_zone 'SYSTEM'): east of UTC, a half-hour offset, and DST.
+MYSQL_SYSTEM_ZONE = 'Australia/Adelaide'
 # MySQL 8.0's default sql_mode (from memory of the MySQL 8.0 reference manual).
 MYSQL8_SQL_MODE = ('ONLY_FULL_GROUP_BY,STRICT_TRANS_TABLES,NO_ZERO_IN_DATE,NO_ZERO_DATE,'
                    'ERROR_FOR_DIVISION_BY_ZERO,NO_ENGINE_SUBSTITUTION')
@@ -566,18 +607,21 @@ class MySQLEngine(_DbApiEngine):
     Connects over the unix socket as root with pymysql, autocommit, time_zone '+00:00',
     MySQL 8's default sql_mode, utf8mb4 with a case-insensitive collation (as MySQL 8's
     default). The default database is 'sqlgen'; a schema is a database.
-    timestamp and timestamptz -> DATETIME(6) (timestamptz holds UTC); boolean ->
-    BOOLEAN = TINYINT(1), so booleans come back as 0/1.
+    timestamp -> DATETIME(6) (a wall clock); timestamptz -> TIMESTAMP(6) NULL, MySQL's
+    instant type, which a query reads in the session's time_zone (loaded under '+00:00').
+    The server runs with TZ=MYSQL_SYSTEM_ZONE, so session_zone('SYSTEM') is not UTC.
+    boolean -> BOOLEAN = TINYINT(1), so booleans come back as 0/1.
     """
 
     name, targets = 'mysql', ('mysql',)
     quote_char = '`'
     database = 'sqlgen'
     types = dict(text='TEXT', integer='INT', bigint='BIGINT', double='DOUBLE', date='DATE',
-                 timestamp='DATETIME(6)', timestamptz='DATETIME(6)', boolean='BOOLEAN',
+                 timestamp='DATETIME(6)', timestamptz='TIMESTAMP(6) NULL', boolean='BOOLEAN',
                  decimal='DECIMAL({p},{s})')
 
     _proc = None
+    utc_zone = '+00:00'
 
     def _start(self):
         self._tmp = _mkdtemp(prefix='sqlgen-my-')
@@ -616,6 +660,7 @@ class MySQLEngine(_DbApiEngine):
     def _start_server(self):
         for _ in range(3):
             self._proc = subprocess.Popen(self._server_cmd(_free_port()), cwd=self._tmp,
+                                          env={**os.environ, 'TZ': MYSQL_SYSTEM_ZONE},
                                           stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
             _guard(self._tmp, pid=self._proc.pid)
             conn = self._wait_connect(deadline=time.monotonic() + 60)
@@ -648,6 +693,9 @@ class MySQLEngine(_DbApiEngine):
             if db.lower() not in MYSQL_SYSTEM_DBS:
                 self._exec(f'DROP DATABASE {self.quote(db)}')
         self._use_default_db()
+
+    def _set_zone(self, zone):
+        self._exec(f"SET time_zone = '{zone}'")
 
     def _stop_proc(self):
         if self._proc is not None and self._proc.poll() is None:
@@ -813,6 +861,9 @@ class SparkEngine(Engine):
         spark.catalog.clearCache()
         shutil.rmtree(os.path.join(_SPARK['tmp'], 'tables'), ignore_errors=True)
 
+    def _set_zone(self, zone):
+        self._spark.conf.set('spark.sql.session.timeZone', zone)
+
     def _shutdown(self):
         if 'session' in _SPARK:
             self.reset()
@@ -891,6 +942,9 @@ class ClickHouseEngine(Engine):
                               "WHERE database = 'default' ORDER BY engine = 'View' DESC")[1]
         for table, is_view in objects:
             self._exec(f'DROP {"VIEW" if is_view else "TABLE"} default.{self.quote(table)} SYNC')
+
+    def _set_zone(self, zone):
+        self._exec(f"SET session_timezone = '{zone}'")
 
     def _shutdown(self):
         if self._session is not None:

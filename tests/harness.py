@@ -100,12 +100,24 @@ def _date(column: str, value):
     return value
 
 
-def run(engine, target: str, events, *, kind: str = "timestamp", views=("growth_accounting",
-        "user_states", "user_activity"), **spec_args) -> dict[str, list[dict]]:
+GROWTH_VIEWS = ("growth_accounting", "user_states", "user_activity")
+
+
+def run(engine, target: str, events, *, kind: str = "timestamp", views=GROWTH_VIEWS,
+        **spec_args) -> dict[str, list[dict]]:
     """Load events, create every view, and read back the named ones."""
+    prepare(engine, target, events, kind=kind, **spec_args)
+    return read_views(engine, target, views)
+
+
+def prepare(engine, target: str, events, *, kind: str = "timestamp", **spec_args) -> None:
+    """Load events and create every view (read them with read_views)."""
     engine.reset()
     load_events(engine, events, kind, target)
     create_views(engine, spec_text(target, kind=kind, **spec_args), target)
+
+
+def read_views(engine, target: str, views=GROWTH_VIEWS) -> dict[str, list[dict]]:
     return {name: read_view(engine, name, target) for name in views}
 
 
@@ -206,6 +218,11 @@ def run_revenue(engine, target: str, rows, *, shape: str = "charges", kind: str 
     engine.reset()
     load_revenue(engine, rows, shape, kind, target, amount_type)
     create_views(engine, revenue_spec_text(target, shape, kind=kind, **spec_args), target)
+    return read_revenue(engine, target, views)
+
+
+def read_revenue(engine, target: str, views=REVENUE_VIEWS) -> dict[str, list[dict]]:
+    """The revenue views' rows, their date columns as datetime.date."""
     results = {}
     for name in views:
         results[name] = [{c: _date(c, v) if c not in REVENUE_DATE_COLUMNS else

@@ -123,6 +123,31 @@ ZONE = {
     "tsql": UnsupportedError,
 }
 
+# Time zone of an instant (timestamptz): never read through the session zone. MySQL and
+# Spark read a TIMESTAMP in the session zone, so they go through the epoch value
+# (tests/test_session_zones.py runs both under several session zones).
+_MYSQL_UTC = ("DATE_ADD(CAST('1970-01-01 00:00:00' AS DATETIME(6)), "
+              "INTERVAL (UNIX_TIMESTAMP(sqlgen_ts) * 1000000) MICROSECOND)")
+_SPARK_UTC = ("TIMESTAMPADD(MICROSECOND, UNIX_MICROS(sqlgen_ts), "
+              "CAST('1970-01-01 00:00:00' AS TIMESTAMP_NTZ))")
+INSTANT_ZONE = {
+    "duckdb": "CAST(sqlgen_ts AT TIME ZONE 'Asia/Kolkata' AS DATE)",
+    "postgres": "CAST(sqlgen_ts AT TIME ZONE 'Asia/Kolkata' AS DATE)",
+    "spark": f"CAST(CONVERT_TIMEZONE('UTC', 'Asia/Kolkata', {_SPARK_UTC}) AS DATE)",
+    "databricks": f"CAST(CONVERT_TIMEZONE('UTC', 'Asia/Kolkata', {_SPARK_UTC}) AS DATE)",
+    "clickhouse": "CAST(toTimeZone(sqlgen_ts, 'Asia/Kolkata') AS Nullable(DATE))",
+    "mysql": f"CAST(CONVERT_TZ({_MYSQL_UTC}, '+00:00', 'Asia/Kolkata') AS DATE)",
+    "sqlite": UnsupportedError,
+    "bigquery": "CAST(DATETIME(sqlgen_ts, 'Asia/Kolkata') AS DATE)",
+    "snowflake": "CAST(CONVERT_TIMEZONE('Asia/Kolkata', sqlgen_ts) AS DATE)",
+    "redshift": "CAST(CONVERT_TIMEZONE('Asia/Kolkata', sqlgen_ts) AS DATE)",
+    "trino": "CAST(AT_TIMEZONE(sqlgen_ts, 'Asia/Kolkata') AS DATE)",
+    "tsql": UnsupportedError,
+}
+# Without a zone an instant is read in UTC: the UTC wall clock, as above, where needed.
+INSTANT_UTC = {"mysql": f"CAST({_MYSQL_UTC} AS DATE)", "spark": f"CAST({_SPARK_UTC} AS DATE)",
+               "databricks": f"CAST({_SPARK_UTC} AS DATE)"}
+
 # View DDL: SQLite has no CREATE OR REPLACE VIEW; T-SQL has CREATE OR ALTER VIEW;
 # ClickHouse's CREATE OR REPLACE VIEW would replace a table of that name, DROP VIEW refuses.
 DDL = {name: "CREATE OR REPLACE VIEW" for name in TARGETS}
@@ -174,6 +199,20 @@ def test_time_zone_conversion_or_error(target):
         return
     assert ZONE[target] in flat(sql_for(target, extra=extra,
                                         table="app_events")["user_activity"])
+
+
+@pytest.mark.parametrize("target", TARGETS)
+def test_instant_conversion_or_error(target):
+    extra = "  timezone: Asia/Kolkata\n"
+    if INSTANT_ZONE[target] is UnsupportedError:
+        with pytest.raises(UnsupportedError, match=rf"dialect '{target}' cannot generate "):
+            sql_for(target, kind="timestamptz", extra=extra)
+        return
+    assert INSTANT_ZONE[target] in flat(sql_for(target, kind="timestamptz", extra=extra,
+                                                table="app_events")["user_activity"])
+    if target in INSTANT_UTC:
+        assert INSTANT_UTC[target] in flat(sql_for(target, kind="timestamptz",
+                                                   table="app_events")["user_activity"])
 
 
 @pytest.mark.parametrize("target", TARGETS)

@@ -98,6 +98,31 @@ def test_bulk_load_and_reset(engine):
     assert eng.query('SELECT * FROM raw.events') == [('again',)]
 
 
+# The epoch shown in the session zone, per engine: proves session_zone really changes the
+# zone queries run under (the session-zone tests in test_session_zones.py rely on it).
+EPOCH_AS_TEXT = {
+    'duckdb': 'SELECT CAST(to_timestamp(0) AS VARCHAR)',
+    'postgres': 'SELECT CAST(to_timestamp(0) AS TEXT)',
+    'mysql': 'SELECT CAST(FROM_UNIXTIME(0) AS CHAR)',
+    'spark': 'SELECT CAST(from_unixtime(0) AS STRING)',
+    'clickhouse': 'SELECT toString(toDateTime(0))',
+    'sqlite': "SELECT datetime(0, 'unixepoch', 'localtime')",
+}
+
+
+def test_session_zone_changes_the_zone_of_queries(engine):
+    eng = live(engine)
+    sql = EPOCH_AS_TEXT[eng.name]
+    with eng.session_zone('Asia/Kolkata'):      # UTC+05:30 in 1970 (tz database)
+        assert eng.query(sql)[0][0].startswith('1970-01-01 05:30:00')
+    assert eng.query(sql)[0][0].startswith('1970-01-01 00:00:00')   # back to UTC
+    if eng.name == 'mysql':
+        from engines import MYSQL_SYSTEM_ZONE
+        assert MYSQL_SYSTEM_ZONE == 'Australia/Adelaide'
+        with eng.session_zone('SYSTEM'):        # the server's TZ: UTC+09:30 in 1970
+            assert eng.query(sql)[0][0].startswith('1970-01-01 09:30:00')
+
+
 def test_failing_statement_names_engine_and_statement(engine):
     eng = live(engine)
     with pytest.raises(EngineError) as info:

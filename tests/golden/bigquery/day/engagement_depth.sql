@@ -11,6 +11,8 @@
 
 CREATE OR REPLACE VIEW `growth`.engagement_depth AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     `user_id` AS sqlgen_user,
     CASE
@@ -20,17 +22,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
-    NOT `user_id` IS NULL
-    AND NOT `occurred_at` IS NULL
+    `user_id` IS NOT NULL
+    AND `occurred_at` IS NOT NULL
     AND (
       `event_name` <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -39,12 +43,14 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
+  /* period_key: days since Monday 1970-01-05, a week keyed by its first day, so adjacent periods differ by the step in days. */
   SELECT
     user_id,
     activity_date,
     DATE_DIFF(activity_date, CAST('1970-01-05' AS DATE), DAY) AS period_key
   FROM dated
 ), user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
@@ -57,6 +63,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), depth_counts AS (
+  /* Users per period and number of distinct active days. */
   SELECT
     period_key AS depth_key,
     active_days AS depth_days,
@@ -66,6 +73,7 @@ WITH sqlgen_source AS (
     period_key,
     active_days
 ), period_totals AS (
+  /* Active users and user-days per period. */
   SELECT
     period_key AS total_key,
     COUNT(*) AS total_users,
@@ -74,12 +82,14 @@ WITH sqlgen_source AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT
     MIN(period_key) AS first_key,
     MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
   FROM user_periods
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -110,6 +120,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     r.first_key + 1 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000
@@ -127,6 +138,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000
     ) <= r.last_key
 ), spans AS (
+  /* Days in each period, and the days seen so far (the last period may be in progress). */
   SELECT
     calendar_key AS span_key,
     1 AS span_days,
@@ -141,6 +153,7 @@ WITH sqlgen_source AS (
     END AS seen_days
   FROM calendar
 ), cells AS (
+  /* One cell per period and possible day count. */
   SELECT
     span_key AS cell_key,
     1 AS cell_days,
@@ -148,6 +161,7 @@ WITH sqlgen_source AS (
     seen_days AS cell_seen
   FROM spans
 )
+/* Users active on exactly that many days (0 when none), their share, and the daily-to-period ratio. */
 SELECT
   CAST(DATE_ADD(CAST('1970-01-05' AS DATE), INTERVAL c.cell_key DAY) AS DATE) AS period_start,
   c.cell_days AS active_days,

@@ -11,6 +11,8 @@
 
 CREATE OR REPLACE VIEW `growth`.growth_accounting AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     `user_id` AS sqlgen_user,
     CASE
@@ -20,17 +22,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
-    NOT `user_id` IS NULL
-    AND NOT `occurred_at` IS NULL
+    `user_id` IS NOT NULL
+    AND `occurred_at` IS NOT NULL
     AND (
       `event_name` <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -39,6 +43,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -47,6 +52,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -56,12 +62,14 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
+  /* Each active (user, period) with the user's previous active period (NULL: the first). */
   SELECT
     period_key,
     last_date,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
   FROM active_periods
 ), tallies AS (
+  /* Per period: actives; new (no earlier period), retained (the period before), resurrected (an earlier one). */
   SELECT
     period_key AS tally_key,
     MAX(last_date) AS through_tally,
@@ -73,12 +81,14 @@ WITH sqlgen_source AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT
     MIN(tally_key) AS first_key,
     MAX(tally_key) AS last_key,
     MAX(through_tally) AS data_through
   FROM tallies
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT
     first_key,
     last_key,
@@ -88,6 +98,7 @@ WITH sqlgen_source AS (
     ) AS after_data_key
   FROM data_range
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -118,6 +129,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, by the grain's step, empty periods included. */
   SELECT
     e.first_key + 3 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -131,6 +143,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= e.last_key
 ), filled AS (
+  /* The tallies on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key,
     COALESCE(t.active_tally, 0) AS active_count,
@@ -147,6 +160,7 @@ WITH sqlgen_source AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 ), sequenced_totals AS (
+  /* Each period with the actives of the period before (0 for the first). */
   SELECT
     calendar_key,
     active_count,
@@ -157,6 +171,7 @@ WITH sqlgen_source AS (
     status
   FROM filled
 ), balanced AS (
+  /* The churn identity: every previous active is retained now or churned, so churned = previous - retained. */
   SELECT
     calendar_key,
     active_count,
@@ -168,6 +183,7 @@ WITH sqlgen_source AS (
     status
   FROM sequenced_totals
 )
+/* One row per period: its start date from the key, counts, and ratios (NULL on a zero denominator). */
 SELECT
   CAST(DATE_ADD(CAST('1970-01-01' AS DATE), INTERVAL (calendar_key - 23640) MONTH) AS DATE) AS period_start,
   active_count AS active_users,

@@ -15,6 +15,7 @@ CREATE SCHEMA IF NOT EXISTS `finance`;
 -- revenue_source_summary
 CREATE OR REPLACE VIEW `finance`.revenue_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     `account_id` AS sqlgen_customer,
     `invoiced_at` AS sqlgen_date_value,
@@ -29,6 +30,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM `billing`.`invoice_lines`
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -38,6 +40,7 @@ WITH sqlgen_source AS (
     CAST(sqlgen_date_near AS DATE) AS row_date
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -47,7 +50,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -63,6 +66,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count; the counted rows' first and last dates. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,
@@ -79,6 +83,7 @@ FROM sqlgen_rows;
 -- customer_revenue
 CREATE OR REPLACE VIEW `finance`.customer_revenue AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     `account_id` AS sqlgen_customer,
     `invoiced_at` AS sqlgen_date_value,
@@ -93,6 +98,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM `billing`.`invoice_lines`
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -102,6 +108,7 @@ WITH sqlgen_source AS (
     CAST(sqlgen_date_near AS DATE) AS row_date
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -111,7 +118,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -127,6 +134,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 ), counted AS (
+  /* The counted rows only. */
   SELECT
     sqlgen_customer AS counted_customer,
     row_date AS counted_date,
@@ -135,11 +143,13 @@ WITH sqlgen_source AS (
   WHERE
     row_status = 'counted'
 ), bounds AS (
+  /* The first and last date of the counted rows. */
   SELECT
     MIN(counted_date) AS first_date,
     MAX(counted_date) AS last_date
   FROM counted
 ), data_range AS (
+  /* The first and last period of the counted rows. */
   SELECT
     (
       EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
@@ -149,6 +159,7 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), keyed AS (
+  /* Each charge with its period key. */
   SELECT
     counted_customer AS keyed_customer,
     (
@@ -157,6 +168,7 @@ WITH sqlgen_source AS (
     counted_amount AS keyed_amount
   FROM counted
 ), totals AS (
+  /* Each customer's total per period, rounded to the amount's scale. */
   SELECT
     keyed_customer AS total_customer,
     keyed_key AS total_key,
@@ -166,6 +178,7 @@ WITH sqlgen_source AS (
     keyed_customer,
     keyed_key
 ), entries AS (
+  /* Each total as this period's revenue, and again as the next period's previous revenue. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -187,6 +200,7 @@ WITH sqlgen_source AS (
   WHERE
     t.total_amount > 0 AND t.total_key + 1 <= d.last_key
 ), combined AS (
+  /* Per customer and period: current revenue (a total of 0 or less counts as 0) and previous revenue. */
   SELECT
     entry_customer AS customer_key,
     entry_key AS revenue_key,
@@ -199,6 +213,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
+  /* Each customer's first period with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -209,6 +224,7 @@ WITH sqlgen_source AS (
     MIN(CASE WHEN current_amount > 0 THEN revenue_key END) OVER (PARTITION BY customer_key) AS first_paid_key
   FROM combined
 ), staged AS (
+  /* Exactly one state per row, so revenue = previous + new + resurrected + expansion - contraction - churned. */
   SELECT
     customer_key,
     revenue_key,
@@ -235,6 +251,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
+/* Each change in exactly one component; previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,
@@ -276,6 +293,7 @@ FROM staged;
 -- revenue_accounting
 CREATE OR REPLACE VIEW `finance`.revenue_accounting AS
 WITH tallies AS (
+  /* customer_revenue summed per period: the identities hold per row, so they hold in the sums. */
   SELECT
     period_key AS tally_key,
     SUM(revenue) AS revenue_sum,
@@ -302,6 +320,7 @@ WITH tallies AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with revenue data, and the last date. */
   SELECT
     (
       EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
@@ -312,6 +331,7 @@ WITH tallies AS (
     last_date AS data_through
   FROM `finance`.revenue_source_summary
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT
     first_key,
     last_key,
@@ -321,6 +341,7 @@ WITH tallies AS (
     ) AS after_data_key
   FROM data_range
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -351,6 +372,7 @@ WITH tallies AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     e.first_key + 1 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
@@ -365,6 +387,7 @@ WITH tallies AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= e.last_key
 ), filled AS (
+  /* The sums on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key,
     COALESCE(t.revenue_sum, 0) AS revenue_amount,
@@ -397,6 +420,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
+/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   CAST(DATE_ADD(CAST('1970-01-01' AS DATE), INTERVAL (calendar_key - 23640) MONTH) AS DATE) AS period_start,
   ROUND(revenue_amount, 2) AS revenue,
@@ -429,12 +453,14 @@ FROM filled;
 -- revenue_cohorts
 CREATE OR REPLACE VIEW `finance`.revenue_cohorts AS
 WITH marked AS (
+  /* Each customer_revenue row with the customer's cohort: the first period with revenue. */
   SELECT
     period_key AS marked_key,
     revenue AS marked_revenue,
     MIN(CASE WHEN revenue > 0 THEN period_key END) OVER (PARTITION BY customer_id) AS marked_cohort_key
   FROM `finance`.customer_revenue
 ), cohort_revenue AS (
+  /* Paying customers and revenue per cohort and period. */
   SELECT
     marked_cohort_key AS revenue_cohort_key,
     marked_key AS revenue_key,
@@ -447,6 +473,7 @@ WITH marked AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
+  /* A cohort's size: its paying customers in the cohort period. */
   SELECT
     revenue_cohort_key AS size_key,
     paying_count AS size_count
@@ -454,6 +481,7 @@ WITH marked AS (
   WHERE
     revenue_key = revenue_cohort_key
 ), data_range AS (
+  /* The first and last period of revenue data. */
   SELECT
     (
       EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
@@ -463,6 +491,7 @@ WITH marked AS (
     ) AS last_data_key
   FROM `finance`.revenue_source_summary
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -493,6 +522,7 @@ WITH marked AS (
   SELECT
     9
 ), ages AS (
+  /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 AS age_number
   FROM data_range AS d
@@ -505,6 +535,7 @@ WITH marked AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= d.last_data_key
 ), triangle AS (
+  /* Every cohort and age up to the last period with data. */
   SELECT
     s.size_key AS cell_cohort_key,
     g.age_number AS cell_age,
@@ -516,6 +547,7 @@ WITH marked AS (
   WHERE
     s.size_key + 1 * g.age_number <= d.last_data_key
 ), cells AS (
+  /* Each cell with its paying customers and revenue (0 when none). */
   SELECT
     t.cell_cohort_key,
     t.cell_age,
@@ -527,6 +559,7 @@ WITH marked AS (
   LEFT JOIN cohort_revenue AS v
     ON v.revenue_cohort_key = t.cell_cohort_key AND v.revenue_key = t.cell_key
 ), running AS (
+  /* Cumulative revenue per cohort, and its revenue at age 0. */
   SELECT
     cell_cohort_key,
     cell_age,
@@ -542,6 +575,7 @@ WITH marked AS (
     MAX(CASE WHEN cell_age = 0 THEN cell_revenue END) OVER (PARTITION BY cell_cohort_key) AS base_amount
   FROM cells
 )
+/* Net revenue retention = revenue at this age / revenue at age 0. */
 SELECT
   CAST(DATE_ADD(CAST('1970-01-01' AS DATE), INTERVAL (cell_cohort_key - 23640) MONTH) AS DATE) AS cohort_start,
   cell_age AS age,

@@ -12,6 +12,7 @@
 
 CREATE OR REPLACE VIEW `finance`.customer_revenue AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     `account_id` AS sqlgen_customer,
     `invoiced_at` AS sqlgen_date_value,
@@ -26,6 +27,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM `billing`.`invoice_lines`
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -35,6 +37,7 @@ WITH sqlgen_source AS (
     CAST(sqlgen_date_near AS DATE) AS row_date
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -44,7 +47,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -60,6 +63,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 ), counted AS (
+  /* The counted rows only. */
   SELECT
     sqlgen_customer AS counted_customer,
     row_date AS counted_date,
@@ -68,11 +72,13 @@ WITH sqlgen_source AS (
   WHERE
     row_status = 'counted'
 ), bounds AS (
+  /* The first and last date of the counted rows. */
   SELECT
     MIN(counted_date) AS first_date,
     MAX(counted_date) AS last_date
   FROM counted
 ), data_range AS (
+  /* The first and last period of the counted rows. */
   SELECT
     (
       EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
@@ -82,6 +88,7 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), keyed AS (
+  /* Each charge with its period key. */
   SELECT
     counted_customer AS keyed_customer,
     (
@@ -90,6 +97,7 @@ WITH sqlgen_source AS (
     counted_amount AS keyed_amount
   FROM counted
 ), totals AS (
+  /* Each customer's total per period, rounded to the amount's scale. */
   SELECT
     keyed_customer AS total_customer,
     keyed_key AS total_key,
@@ -99,6 +107,7 @@ WITH sqlgen_source AS (
     keyed_customer,
     keyed_key
 ), entries AS (
+  /* Each total as this period's revenue, and again as the next period's previous revenue. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -120,6 +129,7 @@ WITH sqlgen_source AS (
   WHERE
     t.total_amount > 0 AND t.total_key + 1 <= d.last_key
 ), combined AS (
+  /* Per customer and period: current revenue (a total of 0 or less counts as 0) and previous revenue. */
   SELECT
     entry_customer AS customer_key,
     entry_key AS revenue_key,
@@ -132,6 +142,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
+  /* Each customer's first period with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -142,6 +153,7 @@ WITH sqlgen_source AS (
     MIN(CASE WHEN current_amount > 0 THEN revenue_key END) OVER (PARTITION BY customer_key) AS first_paid_key
   FROM combined
 ), staged AS (
+  /* Exactly one state per row, so revenue = previous + new + resurrected + expansion - contraction - churned. */
   SELECT
     customer_key,
     revenue_key,
@@ -168,6 +180,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
+/* Each change in exactly one component; previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,

@@ -12,6 +12,7 @@
 
 CREATE OR REPLACE VIEW `finance`.customer_revenue AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     `account_id` AS sqlgen_customer,
     `started_at` AS sqlgen_date_value,
@@ -46,6 +47,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM `billing`.`subscriptions`
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -58,6 +60,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -69,7 +72,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -91,6 +94,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 ), counted AS (
+  /* The counted rows only. */
   SELECT
     sqlgen_customer AS counted_customer,
     row_date AS counted_date,
@@ -101,11 +105,13 @@ WITH sqlgen_source AS (
   WHERE
     row_status = 'counted'
 ), bounds AS (
+  /* The first and last date of the counted rows. */
   SELECT
     MIN(counted_date) AS first_date,
     MAX(CASE WHEN counted_end IS NULL THEN counted_date ELSE counted_end END) AS last_date
   FROM counted
 ), data_range AS (
+  /* The first and last period of the counted rows. */
   SELECT
     (
       DATE_DIFF(first_date, CAST('1970-01-05' AS DATE), DAY) - MOD(DATE_DIFF(first_date, CAST('1970-01-05' AS DATE), DAY) + 700000, 7)
@@ -115,6 +121,7 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), spans AS (
+  /* Each counted subscription in whole units of the amount's scale. */
   SELECT
     counted_customer AS span_customer,
     counted_date AS span_start,
@@ -123,6 +130,7 @@ WITH sqlgen_source AS (
     counted_months AS span_months
   FROM counted
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -153,6 +161,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), periods AS (
+  /* Every period the data spans. */
   SELECT
     d.first_key + 7 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
@@ -167,6 +176,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= d.last_key
 ), segments AS (
+  /* Each period as a segment, against a 365-day year. */
   SELECT
     calendar_key AS segment_key,
     CAST(DATE_ADD(CAST('1970-01-05' AS DATE), INTERVAL calendar_key DAY) AS DATE) AS segment_start,
@@ -174,13 +184,14 @@ WITH sqlgen_source AS (
     365 AS segment_days
   FROM periods
 ), pieces AS (
+  /* Each subscription's covered days in each segment, as an integer fraction of the segment. */
   SELECT
     s.span_customer AS piece_customer,
     g.segment_key AS piece_key,
     s.span_units AS piece_units,
     ABS(s.span_units) * 12 * DATE_DIFF(
       CASE
-        WHEN NOT s.span_end IS NULL AND s.span_end < g.segment_end
+        WHEN s.span_end IS NOT NULL AND s.span_end < g.segment_end
         THEN s.span_end
         ELSE g.segment_end
       END,
@@ -196,6 +207,7 @@ WITH sqlgen_source AS (
       s.span_end IS NULL OR s.span_end > g.segment_start
     )
 ), shares AS (
+  /* Each piece in whole units, rounded half away from zero with integer arithmetic. */
   SELECT
     piece_customer AS share_customer,
     piece_key AS share_key,
@@ -208,6 +220,7 @@ WITH sqlgen_source AS (
     ) AS INT64) AS share_units
   FROM pieces
 ), totals AS (
+  /* Each customer's total per period: the sum of its shares. */
   SELECT
     share_customer AS total_customer,
     share_key AS total_key,
@@ -217,6 +230,7 @@ WITH sqlgen_source AS (
     share_customer,
     share_key
 ), entries AS (
+  /* Each total as this period's revenue, and again as the next period's previous revenue. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -238,6 +252,7 @@ WITH sqlgen_source AS (
   WHERE
     t.total_amount > 0 AND t.total_key + 7 <= d.last_key
 ), combined AS (
+  /* Per customer and period: current revenue (a total of 0 or less counts as 0) and previous revenue. */
   SELECT
     entry_customer AS customer_key,
     entry_key AS revenue_key,
@@ -250,6 +265,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
+  /* Each customer's first period with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -260,6 +276,7 @@ WITH sqlgen_source AS (
     MIN(CASE WHEN current_amount > 0 THEN revenue_key END) OVER (PARTITION BY customer_key) AS first_paid_key
   FROM combined
 ), staged AS (
+  /* Exactly one state per row, so revenue = previous + new + resurrected + expansion - contraction - churned. */
   SELECT
     customer_key,
     revenue_key,
@@ -286,6 +303,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
+/* Each change in exactly one component; previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,

@@ -11,6 +11,7 @@
 
 CREATE OR REPLACE VIEW `finance`.revenue_accounting AS
 WITH tallies AS (
+  /* customer_revenue summed per period: the identities hold per row, so they hold in the sums. */
   SELECT
     period_key AS tally_key,
     SUM(revenue) AS revenue_sum,
@@ -37,6 +38,7 @@ WITH tallies AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with revenue data, and the last date. */
   SELECT
     (
       EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1 - MOD(EXTRACT(MONTH FROM first_date) - 1, 12)
@@ -47,6 +49,7 @@ WITH tallies AS (
     last_date AS data_through
   FROM `finance`.revenue_source_summary
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT
     first_key,
     last_key,
@@ -56,6 +59,7 @@ WITH tallies AS (
     ) AS after_data_key
   FROM data_range
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -86,6 +90,7 @@ WITH tallies AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     e.first_key + 12 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -99,6 +104,7 @@ WITH tallies AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= e.last_key
 ), filled AS (
+  /* The sums on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key,
     COALESCE(t.revenue_sum, 0) AS revenue_amount,
@@ -131,6 +137,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
+/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   CAST(DATE_ADD(CAST('1970-01-01' AS DATE), INTERVAL (calendar_key - 23640) MONTH) AS DATE) AS period_start,
   ROUND(revenue_amount, 2) AS revenue,

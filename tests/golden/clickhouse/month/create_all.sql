@@ -17,6 +17,7 @@ DROP VIEW IF EXISTS "growth".activity_source_summary;
 
 CREATE VIEW "growth".activity_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the activity table, marked as kept or not by the spec's filter. */
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts,
@@ -30,6 +31,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM "raw"."app_events"
 ), sqlgen_dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     sqlgen_ts,
@@ -38,6 +40,7 @@ WITH sqlgen_source AS (
     CAST(sqlgen_near_ts AS Nullable(DATE)) AS sqlgen_local_date
   FROM sqlgen_source
 ), sqlgen_sorted AS (
+  /* One status per row, tried in order: the first that applies. */
   SELECT
     CASE
       WHEN sqlgen_user IS NULL
@@ -57,6 +60,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count: null user, null timestamp, filtered out, out of range, unconverted or counted. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_user' THEN 1 END) AS null_user_rows,
@@ -72,6 +76,8 @@ DROP VIEW IF EXISTS "growth".user_activity;
 
 CREATE VIEW "growth".user_activity AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -81,21 +87,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
-    NOT (
-      "user_id" IS NULL
-    )
-    AND NOT (
-      "occurred_at" IS NULL
-    )
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -104,6 +108,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS Nullable(DATE))
     AND sqlgen_date < CAST('2100-01-01' AS Nullable(DATE))
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -112,6 +117,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
@@ -124,6 +130,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 )
+/* One row per user and active period, its start date from the period key. */
 SELECT
   user_id,
   period_key,
@@ -139,6 +146,8 @@ DROP VIEW IF EXISTS "growth".user_states;
 
 CREATE VIEW "growth".user_states AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -148,21 +157,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
-    NOT (
-      "user_id" IS NULL
-    )
-    AND NOT (
-      "occurred_at" IS NULL
-    )
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -171,6 +178,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS Nullable(DATE))
     AND sqlgen_date < CAST('2100-01-01' AS Nullable(DATE))
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -179,6 +187,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -188,6 +197,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
+  /* Each active (user, period) with the user's previous and next active periods. */
   SELECT
     user_id,
     period_key,
@@ -195,10 +205,12 @@ WITH sqlgen_source AS (
     lead(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS later_key
   FROM active_periods
 ), data_range AS (
+  /* The last period with data: a user lapses only before it. */
   SELECT
     MAX(period_key) AS last_key
   FROM active_periods
 ), lapsed AS (
+  /* Churned: the period after an active one in which the user is not active, up to the last period. */
   SELECT
     s.user_id,
     s.period_key + 1 AS lapse_key
@@ -210,6 +222,7 @@ WITH sqlgen_source AS (
     )
     AND s.period_key + 1 <= r.last_key
 )
+/* Active periods are new, retained or resurrected by the previous active period; then the churned ones. */
 SELECT
   user_id,
   period_key,
@@ -235,6 +248,8 @@ DROP VIEW IF EXISTS "growth".growth_accounting;
 
 CREATE VIEW "growth".growth_accounting AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -244,21 +259,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
-    NOT (
-      "user_id" IS NULL
-    )
-    AND NOT (
-      "occurred_at" IS NULL
-    )
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -267,6 +280,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS Nullable(DATE))
     AND sqlgen_date < CAST('2100-01-01' AS Nullable(DATE))
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -275,6 +289,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -284,12 +299,14 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
+  /* Each active (user, period) with the user's previous active period (NULL: the first). */
   SELECT
     period_key,
     last_date,
     lag(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
   FROM active_periods
 ), tallies AS (
+  /* Per period: actives; new (no earlier period), retained (the period before), resurrected (an earlier one). */
   SELECT
     period_key AS tally_key,
     MAX(last_date) AS through_tally,
@@ -301,12 +318,14 @@ WITH sqlgen_source AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT
     MIN(tally_key) AS first_key,
     MAX(tally_key) AS last_key,
     MAX(through_tally) AS data_through
   FROM tallies
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT
     first_key,
     last_key,
@@ -316,6 +335,7 @@ WITH sqlgen_source AS (
     ) AS after_data_key
   FROM data_range
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -346,6 +366,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, by the grain's step, empty periods included. */
   SELECT
     e.first_key + 1 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
@@ -360,6 +381,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= e.last_key
 ), filled AS (
+  /* The tallies on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key,
     COALESCE(t.active_tally, 0) AS active_count,
@@ -376,6 +398,7 @@ WITH sqlgen_source AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 ), sequenced_totals AS (
+  /* Each period with the actives of the period before (0 for the first). */
   SELECT
     calendar_key,
     active_count,
@@ -386,6 +409,7 @@ WITH sqlgen_source AS (
     status
   FROM filled
 ), balanced AS (
+  /* The churn identity: every previous active is retained now or churned, so churned = previous - retained. */
   SELECT
     calendar_key,
     active_count,
@@ -397,6 +421,7 @@ WITH sqlgen_source AS (
     status
   FROM sequenced_totals
 )
+/* One row per period: its start date from the key, counts, and ratios (NULL on a zero denominator). */
 SELECT
   CAST(DATE_ADD(MONTH, calendar_key - 23640, CAST('1970-01-01' AS Nullable(DATE))) AS Nullable(DATE)) AS period_start,
   active_count AS active_users,
@@ -418,6 +443,8 @@ DROP VIEW IF EXISTS "growth".cohort_retention;
 
 CREATE VIEW "growth".cohort_retention AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -427,21 +454,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
-    NOT (
-      "user_id" IS NULL
-    )
-    AND NOT (
-      "occurred_at" IS NULL
-    )
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -450,6 +475,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS Nullable(DATE))
     AND sqlgen_date < CAST('2100-01-01' AS Nullable(DATE))
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -458,6 +484,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -467,11 +494,13 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), marked AS (
+  /* Each active (user, period) with the user's cohort: the first active period. */
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
   FROM active_periods
 ), cohort_actives AS (
+  /* Actives per cohort and period. */
   SELECT
     marked_cohort_key AS active_cohort_key,
     marked_key AS active_key,
@@ -481,6 +510,7 @@ WITH sqlgen_source AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
+  /* A cohort's size: its actives in the cohort period. */
   SELECT
     active_cohort_key AS size_key,
     active_count AS size_count
@@ -488,11 +518,13 @@ WITH sqlgen_source AS (
   WHERE
     active_key = active_cohort_key
 ), data_range AS (
+  /* The first and last period with data. */
   SELECT
     MIN(period_key) AS first_data_key,
     MAX(period_key) AS last_data_key
   FROM active_periods
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -523,6 +555,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), ages AS (
+  /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 AS age_number
   FROM data_range AS r
@@ -535,6 +568,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= r.last_data_key
 ), triangle AS (
+  /* Every cohort and age up to the last period with data: the full triangle. */
   SELECT
     s.size_key AS cell_cohort_key,
     g.age_number AS cell_age,
@@ -546,6 +580,7 @@ WITH sqlgen_source AS (
   WHERE
     s.size_key + 1 * g.age_number <= r.last_data_key
 )
+/* Each cell with its actives (0 when none) and retention = actives / cohort size. */
 SELECT
   CAST(DATE_ADD(MONTH, t.cell_cohort_key - 23640, CAST('1970-01-01' AS Nullable(DATE))) AS Nullable(DATE)) AS cohort_start,
   t.cell_age AS age,
@@ -564,6 +599,8 @@ DROP VIEW IF EXISTS "growth".engagement_depth;
 
 CREATE VIEW "growth".engagement_depth AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -573,21 +610,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
-    NOT (
-      "user_id" IS NULL
-    )
-    AND NOT (
-      "occurred_at" IS NULL
-    )
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -596,6 +631,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS Nullable(DATE))
     AND sqlgen_date < CAST('2100-01-01' AS Nullable(DATE))
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -604,6 +640,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
@@ -616,6 +653,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), depth_counts AS (
+  /* Users per period and number of distinct active days. */
   SELECT
     period_key AS depth_key,
     active_days AS depth_days,
@@ -625,6 +663,7 @@ WITH sqlgen_source AS (
     period_key,
     active_days
 ), period_totals AS (
+  /* Active users and user-days per period. */
   SELECT
     period_key AS total_key,
     COUNT(*) AS total_users,
@@ -633,12 +672,14 @@ WITH sqlgen_source AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT
     MIN(period_key) AS first_key,
     MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
   FROM user_periods
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -669,6 +710,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     r.first_key + 1 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
@@ -685,6 +727,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= r.last_key
 ), spans AS (
+  /* Days in each period, and the days seen so far (the last period may be in progress). */
   SELECT
     calendar_key AS span_key,
     DATE_DIFF(
@@ -707,6 +750,7 @@ WITH sqlgen_source AS (
     END AS seen_days
   FROM calendar
 ), day_counts AS (
+  /* Day counts 1 up to the longest period of the grain. */
   SELECT
     digit_0.n + digit_1.n * 10 + 1 AS day_count
   FROM digits AS digit_0
@@ -714,6 +758,7 @@ WITH sqlgen_source AS (
   WHERE
     digit_0.n + digit_1.n * 10 < 31
 ), cells AS (
+  /* One cell per period and possible day count. */
   SELECT
     s.span_key AS cell_key,
     d.day_count AS cell_days,
@@ -724,6 +769,7 @@ WITH sqlgen_source AS (
   WHERE
     d.day_count <= s.span_days
 )
+/* Users active on exactly that many days (0 when none), their share, and the daily-to-period ratio. */
 SELECT
   CAST(DATE_ADD(MONTH, c.cell_key - 23640, CAST('1970-01-01' AS Nullable(DATE))) AS Nullable(DATE)) AS period_start,
   c.cell_days AS active_days,
@@ -745,6 +791,8 @@ DROP VIEW IF EXISTS "growth".trailing_activity;
 
 CREATE VIEW "growth".trailing_activity AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -754,21 +802,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
-    NOT (
-      "user_id" IS NULL
-    )
-    AND NOT (
-      "occurred_at" IS NULL
-    )
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -777,11 +823,13 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS Nullable(DATE))
     AND sqlgen_date < CAST('2100-01-01' AS Nullable(DATE))
 ), numbered AS (
+  /* Each active day as a day number: days since Monday 1970-01-05. */
   SELECT
     user_id AS day_user,
     DATE_DIFF(DAY, CAST('1970-01-05' AS Nullable(DATE)), activity_date) AS day_number
   FROM dated
 ), blocked AS (
+  /* Days cut into blocks as long as the shortest window. */
   SELECT
     day_user,
     day_number,
@@ -790,6 +838,7 @@ WITH sqlgen_source AS (
     ) % 7 AS block_number
   FROM numbered
 ), user_blocks AS (
+  /* First and last active day of each user in each block. */
   SELECT
     day_user AS block_user,
     block_number,
@@ -800,6 +849,7 @@ WITH sqlgen_source AS (
     day_user,
     block_number
 ), visits AS (
+  /* Each block with the user's previous block and next active day. */
   SELECT
     first_day,
     last_day,
@@ -807,12 +857,14 @@ WITH sqlgen_source AS (
     lead(first_day) OVER (PARTITION BY block_user ORDER BY block_number) AS next_day
   FROM user_blocks
 ), window_lengths AS (
+  /* The window lengths, in days. */
   SELECT
     7 AS window_length
   UNION ALL
   SELECT
     28 AS window_length
 ), spans AS (
+  /* Per block and window, the days whose window counts the user: active, lapsing, churned. */
   SELECT
     w.window_length AS span_window,
     v.first_day AS start_day,
@@ -836,6 +888,7 @@ WITH sqlgen_source AS (
   FROM visits AS v
   CROSS JOIN window_lengths AS w
 ), boundaries AS (
+  /* Each span as +1 where it starts and -1 where it ends. */
   SELECT
     span_window AS change_window,
     start_day AS change_day,
@@ -894,6 +947,7 @@ WITH sqlgen_source AS (
   WHERE
     lapse = 1
 ), changes AS (
+  /* The changes summed per window and day. */
   SELECT
     change_window,
     change_day,
@@ -906,11 +960,13 @@ WITH sqlgen_source AS (
     change_window,
     change_day
 ), data_range AS (
+  /* The first and last active day. */
   SELECT
     MIN(first_day) AS first_day,
     MAX(last_day) AS last_day
   FROM user_blocks
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -941,6 +997,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every day from the first to the last. */
   SELECT
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 AS calendar_day
   FROM data_range AS r
@@ -952,6 +1009,7 @@ WITH sqlgen_source AS (
   WHERE
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 <= r.last_day
 ), running AS (
+  /* Running sums of the changes give each day's counts per window. */
   SELECT
     c.calendar_day AS grid_day,
     w.window_length AS grid_window,
@@ -980,6 +1038,7 @@ WITH sqlgen_source AS (
   LEFT JOIN changes AS ch
     ON ch.change_window = w.window_length AND ch.change_day = c.calendar_day
 ), tallied AS (
+  /* retained = previous - churned: every user of the previous window is retained or churned. */
   SELECT
     grid_day,
     grid_window,
@@ -990,6 +1049,7 @@ WITH sqlgen_source AS (
     CAST(churned_count AS Nullable(Int64)) AS churned_tally
   FROM running
 )
+/* One row per day and window; resurrected = active - new - retained. */
 SELECT
   CAST(DATE_ADD(DAY, grid_day, CAST('1970-01-05' AS Nullable(DATE))) AS Nullable(DATE)) AS day,
   grid_window AS window_days,

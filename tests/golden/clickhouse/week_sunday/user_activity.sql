@@ -14,6 +14,8 @@ DROP VIEW IF EXISTS "growth".user_activity;
 
 CREATE VIEW "growth".user_activity AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -23,21 +25,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
-    NOT (
-      "user_id" IS NULL
-    )
-    AND NOT (
-      "occurred_at" IS NULL
-    )
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -46,6 +46,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS Nullable(DATE))
     AND sqlgen_date < CAST('2100-01-01' AS Nullable(DATE))
 ), keyed AS (
+  /* period_key: days since Monday 1970-01-05, a week keyed by its first day, so adjacent periods differ by the step in days. */
   SELECT
     user_id,
     activity_date,
@@ -56,6 +57,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
@@ -68,6 +70,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 )
+/* One row per user and active period, its start date from the period key. */
 SELECT
   user_id,
   period_key,

@@ -11,6 +11,7 @@
 
 CREATE OR REPLACE VIEW `finance`.revenue_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     `account_id` AS sqlgen_customer,
     `started_at` AS sqlgen_date_value,
@@ -49,6 +50,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM `billing`.`subscriptions`
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -61,6 +63,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -72,7 +75,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -94,6 +97,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count; the counted rows' first and last dates. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,

@@ -15,6 +15,7 @@ CREATE SCHEMA IF NOT EXISTS `finance`;
 -- revenue_source_summary
 CREATE OR REPLACE VIEW `finance`.revenue_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     `account_id` AS sqlgen_customer,
     `started_at` AS sqlgen_date_value,
@@ -53,6 +54,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM `billing`.`subscriptions`
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -65,6 +67,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -76,7 +79,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -98,6 +101,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count; the counted rows' first and last dates. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,
@@ -110,7 +114,7 @@ SELECT
   COUNT(
     CASE
       WHEN row_status = 'counted'
-      AND NOT row_end IS NULL
+      AND row_end IS NOT NULL
       AND (
         EXTRACT(YEAR FROM row_end) * 12 + EXTRACT(MONTH FROM row_end) - 1 - (
           EXTRACT(MONTH FROM row_end) - 1
@@ -135,6 +139,7 @@ FROM sqlgen_rows;
 -- customer_revenue
 CREATE OR REPLACE VIEW `finance`.customer_revenue AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     `account_id` AS sqlgen_customer,
     `started_at` AS sqlgen_date_value,
@@ -173,6 +178,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM `billing`.`subscriptions`
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -185,6 +191,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -196,7 +203,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -218,6 +225,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 ), counted AS (
+  /* The counted rows only. */
   SELECT
     sqlgen_customer AS counted_customer,
     row_date AS counted_date,
@@ -228,11 +236,13 @@ WITH sqlgen_source AS (
   WHERE
     row_status = 'counted'
 ), bounds AS (
+  /* The first and last date of the counted rows. */
   SELECT
     MIN(counted_date) AS first_date,
     MAX(CASE WHEN counted_end IS NULL THEN counted_date ELSE counted_end END) AS last_date
   FROM counted
 ), data_range AS (
+  /* The first and last period of the counted rows. */
   SELECT
     (
       EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1 - (
@@ -246,6 +256,8 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), ranges AS (
+  /* Each subscription's periods in force at the period's end: from the period of its start
+     to the period before the one holding its end (to the last period while it runs). */
   SELECT
     c.counted_customer AS range_customer,
     (
@@ -267,6 +279,8 @@ WITH sqlgen_source AS (
   FROM counted AS c
   CROSS JOIN data_range AS d
 ), monthly AS (
+  /* Its monthly amount: amount / months of the interval, in whole units of the scale,
+     rounded half away from zero. */
   SELECT
     range_customer AS monthly_customer,
     range_first_key AS monthly_first_key,
@@ -286,6 +300,7 @@ WITH sqlgen_source AS (
   WHERE
     range_first_key <= range_last_key
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     n
   FROM VALUES
@@ -300,6 +315,7 @@ WITH sqlgen_source AS (
     (8),
     (9) AS sqlgen_values(n)
 ), period_ends AS (
+  /* Every period from the first to the last. */
   SELECT
     d.first_key + 3 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -313,6 +329,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= d.last_key
 ), totals AS (
+  /* A customer's run rate in a period: the monthly amounts in force at its end. */
   SELECT
     m.monthly_customer AS total_customer,
     e.end_key AS total_key,
@@ -325,6 +342,7 @@ WITH sqlgen_source AS (
     m.monthly_customer,
     e.end_key
 ), entries AS (
+  /* Each total as this period's revenue, and again as the next period's previous revenue. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -346,6 +364,7 @@ WITH sqlgen_source AS (
   WHERE
     t.total_amount > 0 AND t.total_key + 3 <= d.last_key
 ), combined AS (
+  /* Per customer and period: current revenue (a total of 0 or less counts as 0) and previous revenue. */
   SELECT
     entry_customer AS customer_key,
     entry_key AS revenue_key,
@@ -358,6 +377,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
+  /* Each customer's first period with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -368,6 +388,7 @@ WITH sqlgen_source AS (
     MIN(CASE WHEN current_amount > 0 THEN revenue_key END) OVER (PARTITION BY customer_key) AS first_paid_key
   FROM combined
 ), staged AS (
+  /* Exactly one state per row, so revenue = previous + new + resurrected + expansion - contraction - churned. */
   SELECT
     customer_key,
     revenue_key,
@@ -394,6 +415,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
+/* Each change in exactly one component; previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,
@@ -435,6 +457,7 @@ FROM staged;
 -- revenue_accounting
 CREATE OR REPLACE VIEW `finance`.revenue_accounting AS
 WITH tallies AS (
+  /* customer_revenue summed per period: the identities hold per row, so they hold in the sums. */
   SELECT
     period_key AS tally_key,
     SUM(revenue) AS revenue_sum,
@@ -461,6 +484,7 @@ WITH tallies AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with revenue data, and the last date. */
   SELECT
     (
       EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1 - (
@@ -475,6 +499,7 @@ WITH tallies AS (
     last_date AS data_through
   FROM `finance`.revenue_source_summary
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT
     first_key,
     last_key,
@@ -486,6 +511,7 @@ WITH tallies AS (
     ) AS after_data_key
   FROM data_range
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     n
   FROM VALUES
@@ -500,6 +526,7 @@ WITH tallies AS (
     (8),
     (9) AS sqlgen_values(n)
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     e.first_key + 3 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -513,6 +540,7 @@ WITH tallies AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= e.last_key
 ), filled AS (
+  /* The sums on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key,
     COALESCE(t.revenue_sum, 0) AS revenue_amount,
@@ -545,6 +573,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
+/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   CAST(DATEADD(MONTH, CAST(calendar_key - 23640 AS INT), CAST('1970-01-01' AS DATE)) AS DATE) AS period_start,
   ROUND(revenue_amount, 2) AS revenue,
@@ -577,12 +606,14 @@ FROM filled;
 -- revenue_cohorts
 CREATE OR REPLACE VIEW `finance`.revenue_cohorts AS
 WITH marked AS (
+  /* Each customer_revenue row with the customer's cohort: the first period with revenue. */
   SELECT
     period_key AS marked_key,
     revenue AS marked_revenue,
     MIN(CASE WHEN revenue > 0 THEN period_key END) OVER (PARTITION BY customer_id) AS marked_cohort_key
   FROM `finance`.customer_revenue
 ), cohort_revenue AS (
+  /* Paying customers and revenue per cohort and period. */
   SELECT
     marked_cohort_key AS revenue_cohort_key,
     marked_key AS revenue_key,
@@ -595,6 +626,7 @@ WITH marked AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
+  /* A cohort's size: its paying customers in the cohort period. */
   SELECT
     revenue_cohort_key AS size_key,
     paying_count AS size_count
@@ -602,6 +634,7 @@ WITH marked AS (
   WHERE
     revenue_key = revenue_cohort_key
 ), data_range AS (
+  /* The first and last period of revenue data. */
   SELECT
     (
       EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1 - (
@@ -615,6 +648,7 @@ WITH marked AS (
     ) AS last_data_key
   FROM `finance`.revenue_source_summary
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     n
   FROM VALUES
@@ -629,6 +663,7 @@ WITH marked AS (
     (8),
     (9) AS sqlgen_values(n)
 ), ages AS (
+  /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 AS age_number
   FROM data_range AS d
@@ -640,6 +675,7 @@ WITH marked AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= d.last_data_key
 ), triangle AS (
+  /* Every cohort and age up to the last period with data. */
   SELECT
     s.size_key AS cell_cohort_key,
     g.age_number AS cell_age,
@@ -651,6 +687,7 @@ WITH marked AS (
   WHERE
     s.size_key + 3 * g.age_number <= d.last_data_key
 ), cells AS (
+  /* Each cell with its paying customers and revenue (0 when none). */
   SELECT
     t.cell_cohort_key,
     t.cell_age,
@@ -662,6 +699,7 @@ WITH marked AS (
   LEFT JOIN cohort_revenue AS v
     ON v.revenue_cohort_key = t.cell_cohort_key AND v.revenue_key = t.cell_key
 ), running AS (
+  /* Cumulative revenue per cohort, and its revenue at age 0. */
   SELECT
     cell_cohort_key,
     cell_age,
@@ -677,6 +715,7 @@ WITH marked AS (
     MAX(CASE WHEN cell_age = 0 THEN cell_revenue END) OVER (PARTITION BY cell_cohort_key) AS base_amount
   FROM cells
 )
+/* Net revenue retention = revenue at this age / revenue at age 0. */
 SELECT
   CAST(DATEADD(MONTH, CAST(cell_cohort_key - 23640 AS INT), CAST('1970-01-01' AS DATE)) AS DATE) AS cohort_start,
   cell_age AS age,

@@ -11,6 +11,8 @@
 
 CREATE OR REPLACE VIEW `growth`.trailing_activity AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     `user_id` AS sqlgen_user,
     CASE
@@ -20,17 +22,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
-    NOT `user_id` IS NULL
-    AND NOT `occurred_at` IS NULL
+    `user_id` IS NOT NULL
+    AND `occurred_at` IS NOT NULL
     AND (
       `event_name` <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -39,11 +43,13 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), numbered AS (
+  /* Each active day as a day number: days since Monday 1970-01-05. */
   SELECT
     user_id AS day_user,
     DATEDIFF(activity_date, CAST('1970-01-05' AS DATE)) AS day_number
   FROM dated
 ), blocked AS (
+  /* Days cut into blocks as long as the shortest window. */
   SELECT
     day_user,
     day_number,
@@ -52,6 +58,7 @@ WITH sqlgen_source AS (
     ) % 7 AS block_number
   FROM numbered
 ), user_blocks AS (
+  /* First and last active day of each user in each block. */
   SELECT
     day_user AS block_user,
     block_number,
@@ -62,6 +69,7 @@ WITH sqlgen_source AS (
     day_user,
     block_number
 ), visits AS (
+  /* Each block with the user's previous block and next active day. */
   SELECT
     first_day,
     last_day,
@@ -69,12 +77,14 @@ WITH sqlgen_source AS (
     LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number) AS next_day
   FROM user_blocks
 ), window_lengths AS (
+  /* The window lengths, in days. */
   SELECT
     7 AS window_length
   UNION ALL
   SELECT
     28 AS window_length
 ), spans AS (
+  /* Per block and window, the days whose window counts the user: active, lapsing, churned. */
   SELECT
     w.window_length AS span_window,
     v.first_day AS start_day,
@@ -98,6 +108,7 @@ WITH sqlgen_source AS (
   FROM visits AS v
   CROSS JOIN window_lengths AS w
 ), boundaries AS (
+  /* Each span as +1 where it starts and -1 where it ends. */
   SELECT
     span_window AS change_window,
     start_day AS change_day,
@@ -156,6 +167,7 @@ WITH sqlgen_source AS (
   WHERE
     lapse = 1
 ), changes AS (
+  /* The changes summed per window and day. */
   SELECT
     change_window,
     change_day,
@@ -168,11 +180,13 @@ WITH sqlgen_source AS (
     change_window,
     change_day
 ), data_range AS (
+  /* The first and last active day. */
   SELECT
     MIN(first_day) AS first_day,
     MAX(last_day) AS last_day
   FROM user_blocks
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -203,6 +217,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every day from the first to the last. */
   SELECT
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 AS calendar_day
   FROM data_range AS r
@@ -214,6 +229,7 @@ WITH sqlgen_source AS (
   WHERE
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 <= r.last_day
 ), running AS (
+  /* Running sums of the changes give each day's counts per window. */
   SELECT
     c.calendar_day AS grid_day,
     w.window_length AS grid_window,
@@ -242,6 +258,7 @@ WITH sqlgen_source AS (
   LEFT JOIN changes AS ch
     ON ch.change_window = w.window_length AND ch.change_day = c.calendar_day
 ), tallied AS (
+  /* retained = previous - churned: every user of the previous window is retained or churned. */
   SELECT
     grid_day,
     grid_window,
@@ -252,6 +269,7 @@ WITH sqlgen_source AS (
     CAST(churned_count AS SIGNED) AS churned_tally
   FROM running
 )
+/* One row per day and window; resurrected = active - new - retained. */
 SELECT
   CAST(DATE_ADD(CAST('1970-01-05' AS DATE), INTERVAL grid_day DAY) AS DATE) AS day,
   grid_window AS window_days,

@@ -26,6 +26,7 @@ DROP VIEW IF EXISTS "finance".revenue_source_summary CASCADE;
 -- revenue_source_summary
 CREATE OR REPLACE VIEW "finance".revenue_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
@@ -60,6 +61,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "billing"."subscriptions"
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -72,6 +74,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -83,7 +86,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -105,6 +108,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count; the counted rows' first and last dates. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,
@@ -126,6 +130,7 @@ FROM sqlgen_rows;
 -- customer_revenue
 CREATE OR REPLACE VIEW "finance".customer_revenue AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
@@ -160,6 +165,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "billing"."subscriptions"
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -172,6 +178,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -183,7 +190,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -205,6 +212,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 ), counted AS (
+  /* The counted rows only. */
   SELECT
     sqlgen_customer AS counted_customer,
     row_date AS counted_date,
@@ -215,11 +223,13 @@ WITH sqlgen_source AS (
   WHERE
     row_status = 'counted'
 ), bounds AS (
+  /* The first and last date of the counted rows. */
   SELECT
     MIN(counted_date) AS first_date,
     MAX(CASE WHEN counted_end IS NULL THEN counted_date ELSE counted_end END) AS last_date
   FROM counted
 ), data_range AS (
+  /* The first and last period of the counted rows. */
   SELECT
     (
       EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1 - (
@@ -233,6 +243,7 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), spans AS (
+  /* Each counted subscription in whole units of the amount's scale. */
   SELECT
     counted_customer AS span_customer,
     counted_date AS span_start,
@@ -241,6 +252,7 @@ WITH sqlgen_source AS (
     counted_months AS span_months
   FROM counted
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -271,6 +283,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), months AS (
+  /* Every calendar month the data spans. */
   SELECT
     d.first_key + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 AS segment_month
   FROM data_range AS d
@@ -281,6 +294,7 @@ WITH sqlgen_source AS (
   WHERE
     d.first_key + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 <= d.last_key + 2
 ), month_edges AS (
+  /* Each month with its period key and its first and next month's first day. */
   SELECT
     segment_month - (
       segment_month % 12
@@ -297,6 +311,7 @@ WITH sqlgen_source AS (
     ) AS DATE) AS edge_end
   FROM months
 ), segments AS (
+  /* Each month as a segment of its period, with its number of days. */
   SELECT
     edge_key AS segment_key,
     edge_start AS segment_start,
@@ -306,13 +321,14 @@ WITH sqlgen_source AS (
     ) AS segment_days
   FROM month_edges
 ), pieces AS (
+  /* Each subscription's covered days in each segment, as an integer fraction of the segment. */
   SELECT
     s.span_customer AS piece_customer,
     g.segment_key AS piece_key,
     s.span_units AS piece_units,
     ABS(s.span_units) * (
       CAST(CASE
-        WHEN NOT s.span_end IS NULL AND s.span_end < g.segment_end
+        WHEN s.span_end IS NOT NULL AND s.span_end < g.segment_end
         THEN s.span_end
         ELSE g.segment_end
       END AS DATE) - CAST(CASE WHEN s.span_start > g.segment_start THEN s.span_start ELSE g.segment_start END AS DATE)
@@ -326,6 +342,7 @@ WITH sqlgen_source AS (
       s.span_end IS NULL OR s.span_end > g.segment_start
     )
 ), shares AS (
+  /* Each piece in whole units, rounded half away from zero with integer arithmetic. */
   SELECT
     piece_customer AS share_customer,
     piece_key AS share_key,
@@ -342,6 +359,7 @@ WITH sqlgen_source AS (
     ) AS BIGINT) AS share_units
   FROM pieces
 ), totals AS (
+  /* Each customer's total per period: the sum of its shares. */
   SELECT
     share_customer AS total_customer,
     share_key AS total_key,
@@ -351,6 +369,7 @@ WITH sqlgen_source AS (
     share_customer,
     share_key
 ), entries AS (
+  /* Each total as this period's revenue, and again as the next period's previous revenue. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -372,6 +391,7 @@ WITH sqlgen_source AS (
   WHERE
     t.total_amount > 0 AND t.total_key + 3 <= d.last_key
 ), combined AS (
+  /* Per customer and period: current revenue (a total of 0 or less counts as 0) and previous revenue. */
   SELECT
     entry_customer AS customer_key,
     entry_key AS revenue_key,
@@ -384,6 +404,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
+  /* Each customer's first period with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -394,6 +415,7 @@ WITH sqlgen_source AS (
     MIN(CASE WHEN current_amount > 0 THEN revenue_key END) OVER (PARTITION BY customer_key) AS first_paid_key
   FROM combined
 ), staged AS (
+  /* Exactly one state per row, so revenue = previous + new + resurrected + expansion - contraction - churned. */
   SELECT
     customer_key,
     revenue_key,
@@ -420,6 +442,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
+/* Each change in exactly one component; previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,
@@ -465,6 +488,7 @@ FROM staged;
 -- revenue_accounting
 CREATE OR REPLACE VIEW "finance".revenue_accounting AS
 WITH tallies AS (
+  /* customer_revenue summed per period: the identities hold per row, so they hold in the sums. */
   SELECT
     period_key AS tally_key,
     SUM(revenue) AS revenue_sum,
@@ -491,6 +515,7 @@ WITH tallies AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with revenue data, and the last date. */
   SELECT
     (
       EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1 - (
@@ -505,6 +530,7 @@ WITH tallies AS (
     last_date AS data_through
   FROM "finance".revenue_source_summary
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT
     first_key,
     last_key,
@@ -516,6 +542,7 @@ WITH tallies AS (
     ) AS after_data_key
   FROM data_range
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -546,6 +573,7 @@ WITH tallies AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     e.first_key + 3 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -559,6 +587,7 @@ WITH tallies AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= e.last_key
 ), filled AS (
+  /* The sums on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key,
     COALESCE(t.revenue_sum, 0) AS revenue_amount,
@@ -591,6 +620,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
+/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   CAST(CAST('1970-01-01' AS DATE) + (
     INTERVAL '1 MONTH' * (
@@ -627,12 +657,14 @@ FROM filled;
 -- revenue_cohorts
 CREATE OR REPLACE VIEW "finance".revenue_cohorts AS
 WITH marked AS (
+  /* Each customer_revenue row with the customer's cohort: the first period with revenue. */
   SELECT
     period_key AS marked_key,
     revenue AS marked_revenue,
     MIN(CASE WHEN revenue > 0 THEN period_key END) OVER (PARTITION BY customer_id) AS marked_cohort_key
   FROM "finance".customer_revenue
 ), cohort_revenue AS (
+  /* Paying customers and revenue per cohort and period. */
   SELECT
     marked_cohort_key AS revenue_cohort_key,
     marked_key AS revenue_key,
@@ -645,6 +677,7 @@ WITH marked AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
+  /* A cohort's size: its paying customers in the cohort period. */
   SELECT
     revenue_cohort_key AS size_key,
     paying_count AS size_count
@@ -652,6 +685,7 @@ WITH marked AS (
   WHERE
     revenue_key = revenue_cohort_key
 ), data_range AS (
+  /* The first and last period of revenue data. */
   SELECT
     (
       EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1 - (
@@ -665,6 +699,7 @@ WITH marked AS (
     ) AS last_data_key
   FROM "finance".revenue_source_summary
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -695,6 +730,7 @@ WITH marked AS (
   SELECT
     9
 ), ages AS (
+  /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 AS age_number
   FROM data_range AS d
@@ -706,6 +742,7 @@ WITH marked AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= d.last_data_key
 ), triangle AS (
+  /* Every cohort and age up to the last period with data. */
   SELECT
     s.size_key AS cell_cohort_key,
     g.age_number AS cell_age,
@@ -717,6 +754,7 @@ WITH marked AS (
   WHERE
     s.size_key + 3 * g.age_number <= d.last_data_key
 ), cells AS (
+  /* Each cell with its paying customers and revenue (0 when none). */
   SELECT
     t.cell_cohort_key,
     t.cell_age,
@@ -728,6 +766,7 @@ WITH marked AS (
   LEFT JOIN cohort_revenue AS v
     ON v.revenue_cohort_key = t.cell_cohort_key AND v.revenue_key = t.cell_key
 ), running AS (
+  /* Cumulative revenue per cohort, and its revenue at age 0. */
   SELECT
     cell_cohort_key,
     cell_age,
@@ -743,6 +782,7 @@ WITH marked AS (
     MAX(CASE WHEN cell_age = 0 THEN cell_revenue END) OVER (PARTITION BY cell_cohort_key) AS base_amount
   FROM cells
 )
+/* Net revenue retention = revenue at this age / revenue at age 0. */
 SELECT
   CAST(CAST('1970-01-01' AS DATE) + (
     INTERVAL '1 MONTH' * (

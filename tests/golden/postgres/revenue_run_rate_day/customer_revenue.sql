@@ -13,6 +13,7 @@
 
 CREATE OR REPLACE VIEW "finance".customer_revenue AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
@@ -47,6 +48,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "billing"."subscriptions"
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -59,6 +61,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -70,7 +73,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -92,6 +95,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 ), counted AS (
+  /* The counted rows only. */
   SELECT
     sqlgen_customer AS counted_customer,
     row_date AS counted_date,
@@ -102,11 +106,13 @@ WITH sqlgen_source AS (
   WHERE
     row_status = 'counted'
 ), bounds AS (
+  /* The first and last date of the counted rows. */
   SELECT
     MIN(counted_date) AS first_date,
     MAX(CASE WHEN counted_end IS NULL THEN counted_date ELSE counted_end END) AS last_date
   FROM counted
 ), data_range AS (
+  /* The first and last period of the counted rows. */
   SELECT
     (
       CAST(first_date AS DATE) - CAST('1970-01-05' AS DATE)
@@ -116,6 +122,8 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), ranges AS (
+  /* Each subscription's periods in force at the period's end: from the period of its start
+     to the period before the one holding its end (to the last period while it runs). */
   SELECT
     c.counted_customer AS range_customer,
     (
@@ -133,6 +141,8 @@ WITH sqlgen_source AS (
   FROM counted AS c
   CROSS JOIN data_range AS d
 ), monthly AS (
+  /* Its monthly amount: amount / months of the interval, in whole units of the scale,
+     rounded half away from zero. */
   SELECT
     range_customer AS monthly_customer,
     range_first_key AS monthly_first_key,
@@ -152,6 +162,7 @@ WITH sqlgen_source AS (
   WHERE
     range_first_key <= range_last_key
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -182,6 +193,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), period_ends AS (
+  /* Every period from the first to the last. */
   SELECT
     d.first_key + 1 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000
@@ -197,6 +209,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000
     ) <= d.last_key
 ), totals AS (
+  /* A customer's run rate in a period: the monthly amounts in force at its end. */
   SELECT
     m.monthly_customer AS total_customer,
     e.end_key AS total_key,
@@ -209,6 +222,7 @@ WITH sqlgen_source AS (
     m.monthly_customer,
     e.end_key
 ), entries AS (
+  /* Each total as this period's revenue, and again as the next period's previous revenue. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -230,6 +244,7 @@ WITH sqlgen_source AS (
   WHERE
     t.total_amount > 0 AND t.total_key + 1 <= d.last_key
 ), combined AS (
+  /* Per customer and period: current revenue (a total of 0 or less counts as 0) and previous revenue. */
   SELECT
     entry_customer AS customer_key,
     entry_key AS revenue_key,
@@ -242,6 +257,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
+  /* Each customer's first period with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -252,6 +268,7 @@ WITH sqlgen_source AS (
     MIN(CASE WHEN current_amount > 0 THEN revenue_key END) OVER (PARTITION BY customer_key) AS first_paid_key
   FROM combined
 ), staged AS (
+  /* Exactly one state per row, so revenue = previous + new + resurrected + expansion - contraction - churned. */
   SELECT
     customer_key,
     revenue_key,
@@ -278,6 +295,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
+/* Each change in exactly one component; previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,

@@ -13,6 +13,7 @@
 
 CREATE OR REPLACE VIEW "finance".customer_revenue AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
@@ -47,6 +48,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "billing"."subscriptions"
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -59,6 +61,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -70,7 +73,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -92,6 +95,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 ), counted AS (
+  /* The counted rows only. */
   SELECT
     sqlgen_customer AS counted_customer,
     row_date AS counted_date,
@@ -102,11 +106,13 @@ WITH sqlgen_source AS (
   WHERE
     row_status = 'counted'
 ), bounds AS (
+  /* The first and last date of the counted rows. */
   SELECT
     MIN(counted_date) AS first_date,
     MAX(CASE WHEN counted_end IS NULL THEN counted_date ELSE counted_end END) AS last_date
   FROM counted
 ), data_range AS (
+  /* The first and last period of the counted rows. */
   SELECT
     (
       EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1 - (
@@ -120,6 +126,7 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), spans AS (
+  /* Each counted subscription in whole units of the amount's scale. */
   SELECT
     counted_customer AS span_customer,
     counted_date AS span_start,
@@ -128,6 +135,7 @@ WITH sqlgen_source AS (
     counted_months AS span_months
   FROM counted
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -158,6 +166,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), months AS (
+  /* Every calendar month the data spans. */
   SELECT
     d.first_key + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 AS segment_month
   FROM data_range AS d
@@ -168,6 +177,7 @@ WITH sqlgen_source AS (
   WHERE
     d.first_key + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 <= d.last_key + 2
 ), month_edges AS (
+  /* Each month with its period key and its first and next month's first day. */
   SELECT
     segment_month - (
       segment_month % 12
@@ -176,6 +186,7 @@ WITH sqlgen_source AS (
     CAST(DATEADD(MONTH, segment_month + 1 - 23640, CAST('1970-01-01' AS DATE)) AS DATE) AS edge_end
   FROM months
 ), segments AS (
+  /* Each month as a segment of its period, with its number of days. */
   SELECT
     edge_key AS segment_key,
     edge_start AS segment_start,
@@ -183,6 +194,7 @@ WITH sqlgen_source AS (
     DATEDIFF(DAY, edge_start, edge_end) AS segment_days
   FROM month_edges
 ), pieces AS (
+  /* Each subscription's covered days in each segment, as an integer fraction of the segment. */
   SELECT
     s.span_customer AS piece_customer,
     g.segment_key AS piece_key,
@@ -191,7 +203,7 @@ WITH sqlgen_source AS (
       DAY,
       CASE WHEN s.span_start > g.segment_start THEN s.span_start ELSE g.segment_start END,
       CASE
-        WHEN NOT s.span_end IS NULL AND s.span_end < g.segment_end
+        WHEN s.span_end IS NOT NULL AND s.span_end < g.segment_end
         THEN s.span_end
         ELSE g.segment_end
       END
@@ -205,6 +217,7 @@ WITH sqlgen_source AS (
       s.span_end IS NULL OR s.span_end > g.segment_start
     )
 ), shares AS (
+  /* Each piece in whole units, rounded half away from zero with integer arithmetic. */
   SELECT
     piece_customer AS share_customer,
     piece_key AS share_key,
@@ -221,6 +234,7 @@ WITH sqlgen_source AS (
     ) AS BIGINT) AS share_units
   FROM pieces
 ), totals AS (
+  /* Each customer's total per period: the sum of its shares. */
   SELECT
     share_customer AS total_customer,
     share_key AS total_key,
@@ -230,6 +244,7 @@ WITH sqlgen_source AS (
     share_customer,
     share_key
 ), entries AS (
+  /* Each total as this period's revenue, and again as the next period's previous revenue. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -251,6 +266,7 @@ WITH sqlgen_source AS (
   WHERE
     t.total_amount > 0 AND t.total_key + 3 <= d.last_key
 ), combined AS (
+  /* Per customer and period: current revenue (a total of 0 or less counts as 0) and previous revenue. */
   SELECT
     entry_customer AS customer_key,
     entry_key AS revenue_key,
@@ -263,6 +279,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
+  /* Each customer's first period with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -273,6 +290,7 @@ WITH sqlgen_source AS (
     MIN(CASE WHEN current_amount > 0 THEN revenue_key END) OVER (PARTITION BY customer_key) AS first_paid_key
   FROM combined
 ), staged AS (
+  /* Exactly one state per row, so revenue = previous + new + resurrected + expansion - contraction - churned. */
   SELECT
     customer_key,
     revenue_key,
@@ -299,6 +317,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
+/* Each change in exactly one component; previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,

@@ -11,6 +11,7 @@
 
 CREATE OR REPLACE VIEW "growth".activity_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the activity table, marked as kept or not by the spec's filter. */
   SELECT
     "USER_ID" AS sqlgen_user,
     "OCCURRED_AT" AS sqlgen_ts,
@@ -24,6 +25,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM "RAW"."APP_EVENTS"
 ), sqlgen_dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     sqlgen_ts,
@@ -32,6 +34,7 @@ WITH sqlgen_source AS (
     CAST(sqlgen_near_ts AS DATE) AS sqlgen_local_date
   FROM sqlgen_source
 ), sqlgen_sorted AS (
+  /* One status per row, tried in order: the first that applies. */
   SELECT
     CASE
       WHEN sqlgen_user IS NULL
@@ -51,6 +54,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count: null user, null timestamp, filtered out, out of range, unconverted or counted. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_user' THEN 1 END) AS null_user_rows,

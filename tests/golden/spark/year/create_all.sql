@@ -15,6 +15,7 @@ CREATE SCHEMA IF NOT EXISTS `growth`;
 -- activity_source_summary
 CREATE OR REPLACE VIEW `growth`.activity_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the activity table, marked as kept or not by the spec's filter. */
   SELECT
     `user_id` AS sqlgen_user,
     `occurred_at` AS sqlgen_ts,
@@ -28,6 +29,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM `raw`.`app_events`
 ), sqlgen_dated AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     sqlgen_ts,
@@ -36,6 +38,7 @@ WITH sqlgen_source AS (
     CAST(sqlgen_near_ts AS DATE) AS sqlgen_local_date
   FROM sqlgen_source
 ), sqlgen_sorted AS (
+  /* One status per row, tried in order: the first that applies. */
   SELECT
     CASE
       WHEN sqlgen_user IS NULL
@@ -55,6 +58,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count: null user, null timestamp, filtered out, out of range, unconverted or counted. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_user' THEN 1 END) AS null_user_rows,
@@ -68,6 +72,8 @@ FROM sqlgen_sorted;
 -- user_activity
 CREATE OR REPLACE VIEW `growth`.user_activity AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     `user_id` AS sqlgen_user,
     CASE
@@ -77,17 +83,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
-    NOT `user_id` IS NULL
-    AND NOT `occurred_at` IS NULL
+    `user_id` IS NOT NULL
+    AND `occurred_at` IS NOT NULL
     AND (
       `event_name` <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -96,6 +104,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -106,6 +115,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
@@ -118,6 +128,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 )
+/* One row per user and active period, its start date from the period key. */
 SELECT
   user_id,
   period_key,
@@ -131,6 +142,8 @@ FROM user_periods;
 -- user_states
 CREATE OR REPLACE VIEW `growth`.user_states AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     `user_id` AS sqlgen_user,
     CASE
@@ -140,17 +153,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
-    NOT `user_id` IS NULL
-    AND NOT `occurred_at` IS NULL
+    `user_id` IS NOT NULL
+    AND `occurred_at` IS NOT NULL
     AND (
       `event_name` <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -159,6 +174,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -169,6 +185,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -178,6 +195,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
+  /* Each active (user, period) with the user's previous and next active periods. */
   SELECT
     user_id,
     period_key,
@@ -185,10 +203,12 @@ WITH sqlgen_source AS (
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key NULLS LAST) AS later_key
   FROM active_periods
 ), data_range AS (
+  /* The last period with data: a user lapses only before it. */
   SELECT
     MAX(period_key) AS last_key
   FROM active_periods
 ), lapsed AS (
+  /* Churned: the period after an active one in which the user is not active, up to the last period. */
   SELECT
     s.user_id,
     s.period_key + 12 AS lapse_key
@@ -200,6 +220,7 @@ WITH sqlgen_source AS (
     )
     AND s.period_key + 12 <= r.last_key
 )
+/* Active periods are new, retained or resurrected by the previous active period; then the churned ones. */
 SELECT
   user_id,
   period_key,
@@ -223,6 +244,8 @@ FROM lapsed;
 -- growth_accounting
 CREATE OR REPLACE VIEW `growth`.growth_accounting AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     `user_id` AS sqlgen_user,
     CASE
@@ -232,17 +255,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
-    NOT `user_id` IS NULL
-    AND NOT `occurred_at` IS NULL
+    `user_id` IS NOT NULL
+    AND `occurred_at` IS NOT NULL
     AND (
       `event_name` <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -251,6 +276,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -261,6 +287,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -270,12 +297,14 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
+  /* Each active (user, period) with the user's previous active period (NULL: the first). */
   SELECT
     period_key,
     last_date,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key NULLS LAST) AS prior_key
   FROM active_periods
 ), tallies AS (
+  /* Per period: actives; new (no earlier period), retained (the period before), resurrected (an earlier one). */
   SELECT
     period_key AS tally_key,
     MAX(last_date) AS through_tally,
@@ -287,12 +316,14 @@ WITH sqlgen_source AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT
     MIN(tally_key) AS first_key,
     MAX(tally_key) AS last_key,
     MAX(through_tally) AS data_through
   FROM tallies
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT
     first_key,
     last_key,
@@ -304,6 +335,7 @@ WITH sqlgen_source AS (
     ) AS after_data_key
   FROM data_range
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     n
   FROM VALUES
@@ -318,6 +350,7 @@ WITH sqlgen_source AS (
     (8),
     (9) AS sqlgen_values(n)
 ), calendar AS (
+  /* Every period from the first to the last, by the grain's step, empty periods included. */
   SELECT
     e.first_key + 12 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -331,6 +364,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= e.last_key
 ), filled AS (
+  /* The tallies on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key,
     COALESCE(t.active_tally, 0) AS active_count,
@@ -347,6 +381,7 @@ WITH sqlgen_source AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 ), sequenced_totals AS (
+  /* Each period with the actives of the period before (0 for the first). */
   SELECT
     calendar_key,
     active_count,
@@ -357,6 +392,7 @@ WITH sqlgen_source AS (
     status
   FROM filled
 ), balanced AS (
+  /* The churn identity: every previous active is retained now or churned, so churned = previous - retained. */
   SELECT
     calendar_key,
     active_count,
@@ -368,6 +404,7 @@ WITH sqlgen_source AS (
     status
   FROM sequenced_totals
 )
+/* One row per period: its start date from the key, counts, and ratios (NULL on a zero denominator). */
 SELECT
   CAST(ADD_MONTHS(CAST('1970-01-01' AS DATE), CAST(calendar_key - 23640 AS INT)) AS DATE) AS period_start,
   active_count AS active_users,
@@ -387,6 +424,8 @@ FROM balanced;
 -- cohort_retention
 CREATE OR REPLACE VIEW `growth`.cohort_retention AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     `user_id` AS sqlgen_user,
     CASE
@@ -396,17 +435,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
-    NOT `user_id` IS NULL
-    AND NOT `occurred_at` IS NULL
+    `user_id` IS NOT NULL
+    AND `occurred_at` IS NOT NULL
     AND (
       `event_name` <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -415,6 +456,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -425,6 +467,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -434,11 +477,13 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), marked AS (
+  /* Each active (user, period) with the user's cohort: the first active period. */
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
   FROM active_periods
 ), cohort_actives AS (
+  /* Actives per cohort and period. */
   SELECT
     marked_cohort_key AS active_cohort_key,
     marked_key AS active_key,
@@ -448,6 +493,7 @@ WITH sqlgen_source AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
+  /* A cohort's size: its actives in the cohort period. */
   SELECT
     active_cohort_key AS size_key,
     active_count AS size_count
@@ -455,11 +501,13 @@ WITH sqlgen_source AS (
   WHERE
     active_key = active_cohort_key
 ), data_range AS (
+  /* The first and last period with data. */
   SELECT
     MIN(period_key) AS first_data_key,
     MAX(period_key) AS last_data_key
   FROM active_periods
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     n
   FROM VALUES
@@ -474,6 +522,7 @@ WITH sqlgen_source AS (
     (8),
     (9) AS sqlgen_values(n)
 ), ages AS (
+  /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 AS age_number
   FROM data_range AS r
@@ -485,6 +534,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= r.last_data_key
 ), triangle AS (
+  /* Every cohort and age up to the last period with data: the full triangle. */
   SELECT
     s.size_key AS cell_cohort_key,
     g.age_number AS cell_age,
@@ -496,6 +546,7 @@ WITH sqlgen_source AS (
   WHERE
     s.size_key + 12 * g.age_number <= r.last_data_key
 )
+/* Each cell with its actives (0 when none) and retention = actives / cohort size. */
 SELECT
   CAST(ADD_MONTHS(CAST('1970-01-01' AS DATE), CAST(t.cell_cohort_key - 23640 AS INT)) AS DATE) AS cohort_start,
   t.cell_age AS age,
@@ -512,6 +563,8 @@ LEFT JOIN cohort_actives AS c
 -- engagement_depth
 CREATE OR REPLACE VIEW `growth`.engagement_depth AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     `user_id` AS sqlgen_user,
     CASE
@@ -521,17 +574,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
-    NOT `user_id` IS NULL
-    AND NOT `occurred_at` IS NULL
+    `user_id` IS NOT NULL
+    AND `occurred_at` IS NOT NULL
     AND (
       `event_name` <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -540,6 +595,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -550,6 +606,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
@@ -562,6 +619,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), depth_counts AS (
+  /* Users per period and number of distinct active days. */
   SELECT
     period_key AS depth_key,
     active_days AS depth_days,
@@ -571,6 +629,7 @@ WITH sqlgen_source AS (
     period_key,
     active_days
 ), period_totals AS (
+  /* Active users and user-days per period. */
   SELECT
     period_key AS total_key,
     COUNT(*) AS total_users,
@@ -579,12 +638,14 @@ WITH sqlgen_source AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT
     MIN(period_key) AS first_key,
     MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
   FROM user_periods
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     n
   FROM VALUES
@@ -599,6 +660,7 @@ WITH sqlgen_source AS (
     (8),
     (9) AS sqlgen_values(n)
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     r.first_key + 12 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -614,6 +676,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= r.last_key
 ), spans AS (
+  /* Days in each period, and the days seen so far (the last period may be in progress). */
   SELECT
     calendar_key AS span_key,
     DATEDIFF(
@@ -636,6 +699,7 @@ WITH sqlgen_source AS (
     END AS seen_days
   FROM calendar
 ), day_counts AS (
+  /* Day counts 1 up to the longest period of the grain. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 + 1 AS day_count
   FROM digits AS digit_0
@@ -644,6 +708,7 @@ WITH sqlgen_source AS (
   WHERE
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 < 366
 ), cells AS (
+  /* One cell per period and possible day count. */
   SELECT
     s.span_key AS cell_key,
     d.day_count AS cell_days,
@@ -654,6 +719,7 @@ WITH sqlgen_source AS (
   WHERE
     d.day_count <= s.span_days
 )
+/* Users active on exactly that many days (0 when none), their share, and the daily-to-period ratio. */
 SELECT
   CAST(ADD_MONTHS(CAST('1970-01-01' AS DATE), CAST(c.cell_key - 23640 AS INT)) AS DATE) AS period_start,
   c.cell_days AS active_days,
@@ -673,6 +739,8 @@ LEFT JOIN period_totals AS t
 -- trailing_activity
 CREATE OR REPLACE VIEW `growth`.trailing_activity AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     `user_id` AS sqlgen_user,
     CASE
@@ -682,17 +750,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM `raw`.`app_events`
   WHERE
-    NOT `user_id` IS NULL
-    AND NOT `occurred_at` IS NULL
+    `user_id` IS NOT NULL
+    AND `occurred_at` IS NOT NULL
     AND (
       `event_name` <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -701,11 +771,13 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), numbered AS (
+  /* Each active day as a day number: days since Monday 1970-01-05. */
   SELECT
     user_id AS day_user,
     DATEDIFF(DAY, CAST('1970-01-05' AS DATE), activity_date) AS day_number
   FROM dated
 ), blocked AS (
+  /* Days cut into blocks as long as the shortest window. */
   SELECT
     day_user,
     day_number,
@@ -714,6 +786,7 @@ WITH sqlgen_source AS (
     ) % 7 AS block_number
   FROM numbered
 ), user_blocks AS (
+  /* First and last active day of each user in each block. */
   SELECT
     day_user AS block_user,
     block_number,
@@ -724,6 +797,7 @@ WITH sqlgen_source AS (
     day_user,
     block_number
 ), visits AS (
+  /* Each block with the user's previous block and next active day. */
   SELECT
     first_day,
     last_day,
@@ -731,12 +805,14 @@ WITH sqlgen_source AS (
     LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number NULLS LAST) AS next_day
   FROM user_blocks
 ), window_lengths AS (
+  /* The window lengths, in days. */
   SELECT
     7 AS window_length
   UNION ALL
   SELECT
     28 AS window_length
 ), spans AS (
+  /* Per block and window, the days whose window counts the user: active, lapsing, churned. */
   SELECT
     w.window_length AS span_window,
     v.first_day AS start_day,
@@ -760,6 +836,7 @@ WITH sqlgen_source AS (
   FROM visits AS v
   CROSS JOIN window_lengths AS w
 ), boundaries AS (
+  /* Each span as +1 where it starts and -1 where it ends. */
   SELECT
     span_window AS change_window,
     start_day AS change_day,
@@ -818,6 +895,7 @@ WITH sqlgen_source AS (
   WHERE
     lapse = 1
 ), changes AS (
+  /* The changes summed per window and day. */
   SELECT
     change_window,
     change_day,
@@ -830,11 +908,13 @@ WITH sqlgen_source AS (
     change_window,
     change_day
 ), data_range AS (
+  /* The first and last active day. */
   SELECT
     MIN(first_day) AS first_day,
     MAX(last_day) AS last_day
   FROM user_blocks
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     n
   FROM VALUES
@@ -849,6 +929,7 @@ WITH sqlgen_source AS (
     (8),
     (9) AS sqlgen_values(n)
 ), calendar AS (
+  /* Every day from the first to the last. */
   SELECT
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 AS calendar_day
   FROM data_range AS r
@@ -860,6 +941,7 @@ WITH sqlgen_source AS (
   WHERE
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 <= r.last_day
 ), running AS (
+  /* Running sums of the changes give each day's counts per window. */
   SELECT
     c.calendar_day AS grid_day,
     w.window_length AS grid_window,
@@ -888,6 +970,7 @@ WITH sqlgen_source AS (
   LEFT JOIN changes AS ch
     ON ch.change_window = w.window_length AND ch.change_day = c.calendar_day
 ), tallied AS (
+  /* retained = previous - churned: every user of the previous window is retained or churned. */
   SELECT
     grid_day,
     grid_window,
@@ -898,6 +981,7 @@ WITH sqlgen_source AS (
     CAST(churned_count AS BIGINT) AS churned_tally
   FROM running
 )
+/* One row per day and window; resurrected = active - new - retained. */
 SELECT
   CAST(DATE_ADD(CAST('1970-01-05' AS DATE), CAST(grid_day AS INT)) AS DATE) AS day,
   grid_window AS window_days,

@@ -17,6 +17,7 @@ DROP VIEW IF EXISTS revenue_source_summary;
 
 CREATE VIEW revenue_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
@@ -51,6 +52,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "subscriptions"
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -63,6 +65,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -74,7 +77,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -96,6 +99,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count; the counted rows' first and last dates. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,
@@ -119,6 +123,7 @@ DROP VIEW IF EXISTS customer_revenue;
 
 CREATE VIEW customer_revenue AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
@@ -153,6 +158,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "subscriptions"
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -165,6 +171,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -176,7 +183,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -198,6 +205,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 ), counted AS (
+  /* The counted rows only. */
   SELECT
     sqlgen_customer AS counted_customer,
     row_date AS counted_date,
@@ -208,11 +216,13 @@ WITH sqlgen_source AS (
   WHERE
     row_status = 'counted'
 ), bounds AS (
+  /* The first and last date of the counted rows. */
   SELECT
     MIN(counted_date) AS first_date,
     MAX(CASE WHEN counted_end IS NULL THEN counted_date ELSE counted_end END) AS last_date
   FROM counted
 ), data_range AS (
+  /* The first and last period of the counted rows. */
   SELECT
     (
       CAST(STRFTIME('%Y', first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', first_date) AS INTEGER) - 1
@@ -222,6 +232,7 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), spans AS (
+  /* Each counted subscription in whole units of the amount's scale. */
   SELECT
     counted_customer AS span_customer,
     counted_date AS span_start,
@@ -230,6 +241,7 @@ WITH sqlgen_source AS (
     counted_months AS span_months
   FROM counted
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -260,6 +272,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), months AS (
+  /* Every calendar month the data spans. */
   SELECT
     d.first_key + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 AS segment_month
   FROM data_range AS d
@@ -270,6 +283,7 @@ WITH sqlgen_source AS (
   WHERE
     d.first_key + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 <= d.last_key
 ), month_edges AS (
+  /* Each month with its period key and its first and next month's first day. */
   SELECT
     segment_month AS edge_key,
     DATE(DATE(DATE('1970-01-01'), (
@@ -280,6 +294,7 @@ WITH sqlgen_source AS (
     ) || ' MONTH')) AS edge_end
   FROM months
 ), segments AS (
+  /* Each month as a segment of its period, with its number of days. */
   SELECT
     edge_key AS segment_key,
     edge_start AS segment_start,
@@ -287,12 +302,13 @@ WITH sqlgen_source AS (
     CAST((JULIANDAY(edge_end) - JULIANDAY(edge_start)) AS INTEGER) AS segment_days
   FROM month_edges
 ), pieces AS (
+  /* Each subscription's covered days in each segment, as an integer fraction of the segment. */
   SELECT
     s.span_customer AS piece_customer,
     g.segment_key AS piece_key,
     s.span_units AS piece_units,
     ABS(s.span_units) * CAST((JULIANDAY(CASE
-      WHEN NOT s.span_end IS NULL AND s.span_end < g.segment_end
+      WHEN s.span_end IS NOT NULL AND s.span_end < g.segment_end
       THEN s.span_end
       ELSE g.segment_end
     END) - JULIANDAY(CASE WHEN s.span_start > g.segment_start THEN s.span_start ELSE g.segment_start END)) AS INTEGER) AS piece_numerator,
@@ -305,6 +321,7 @@ WITH sqlgen_source AS (
       s.span_end IS NULL OR s.span_end > g.segment_start
     )
 ), shares AS (
+  /* Each piece in whole units, rounded half away from zero with integer arithmetic. */
   SELECT
     piece_customer AS share_customer,
     piece_key AS share_key,
@@ -321,6 +338,7 @@ WITH sqlgen_source AS (
     ) AS INTEGER) AS share_units
   FROM pieces
 ), totals AS (
+  /* Each customer's total per period: the sum of its shares. */
   SELECT
     share_customer AS total_customer,
     share_key AS total_key,
@@ -330,6 +348,7 @@ WITH sqlgen_source AS (
     share_customer,
     share_key
 ), entries AS (
+  /* Each total as this period's revenue, and again as the next period's previous revenue. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -351,6 +370,7 @@ WITH sqlgen_source AS (
   WHERE
     t.total_amount > 0 AND t.total_key + 1 <= d.last_key
 ), combined AS (
+  /* Per customer and period: current revenue (a total of 0 or less counts as 0) and previous revenue. */
   SELECT
     entry_customer AS customer_key,
     entry_key AS revenue_key,
@@ -363,6 +383,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
+  /* Each customer's first period with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -373,6 +394,7 @@ WITH sqlgen_source AS (
     MIN(CASE WHEN current_amount > 0 THEN revenue_key END) OVER (PARTITION BY customer_key) AS first_paid_key
   FROM combined
 ), staged AS (
+  /* Exactly one state per row, so revenue = previous + new + resurrected + expansion - contraction - churned. */
   SELECT
     customer_key,
     revenue_key,
@@ -399,6 +421,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
+/* Each change in exactly one component; previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,
@@ -444,6 +467,7 @@ DROP VIEW IF EXISTS revenue_accounting;
 
 CREATE VIEW revenue_accounting AS
 WITH tallies AS (
+  /* customer_revenue summed per period: the identities hold per row, so they hold in the sums. */
   SELECT
     period_key AS tally_key,
     SUM(revenue) AS revenue_sum,
@@ -470,6 +494,7 @@ WITH tallies AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with revenue data, and the last date. */
   SELECT
     (
       CAST(STRFTIME('%Y', first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', first_date) AS INTEGER) - 1
@@ -480,6 +505,7 @@ WITH tallies AS (
     last_date AS data_through
   FROM revenue_source_summary
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT
     first_key,
     last_key,
@@ -489,6 +515,7 @@ WITH tallies AS (
     ) AS after_data_key
   FROM data_range
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -519,6 +546,7 @@ WITH tallies AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     e.first_key + 1 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
@@ -533,6 +561,7 @@ WITH tallies AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= e.last_key
 ), filled AS (
+  /* The sums on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key,
     COALESCE(t.revenue_sum, 0) AS revenue_amount,
@@ -565,6 +594,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
+/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   DATE(DATE(DATE('1970-01-01'), (
     calendar_key - 23640
@@ -601,12 +631,14 @@ DROP VIEW IF EXISTS revenue_cohorts;
 
 CREATE VIEW revenue_cohorts AS
 WITH marked AS (
+  /* Each customer_revenue row with the customer's cohort: the first period with revenue. */
   SELECT
     period_key AS marked_key,
     revenue AS marked_revenue,
     MIN(CASE WHEN revenue > 0 THEN period_key END) OVER (PARTITION BY customer_id) AS marked_cohort_key
   FROM customer_revenue
 ), cohort_revenue AS (
+  /* Paying customers and revenue per cohort and period. */
   SELECT
     marked_cohort_key AS revenue_cohort_key,
     marked_key AS revenue_key,
@@ -619,6 +651,7 @@ WITH marked AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
+  /* A cohort's size: its paying customers in the cohort period. */
   SELECT
     revenue_cohort_key AS size_key,
     paying_count AS size_count
@@ -626,6 +659,7 @@ WITH marked AS (
   WHERE
     revenue_key = revenue_cohort_key
 ), data_range AS (
+  /* The first and last period of revenue data. */
   SELECT
     (
       CAST(STRFTIME('%Y', first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', first_date) AS INTEGER) - 1
@@ -635,6 +669,7 @@ WITH marked AS (
     ) AS last_data_key
   FROM revenue_source_summary
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -665,6 +700,7 @@ WITH marked AS (
   SELECT
     9
 ), ages AS (
+  /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 AS age_number
   FROM data_range AS d
@@ -677,6 +713,7 @@ WITH marked AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= d.last_data_key
 ), triangle AS (
+  /* Every cohort and age up to the last period with data. */
   SELECT
     s.size_key AS cell_cohort_key,
     g.age_number AS cell_age,
@@ -688,6 +725,7 @@ WITH marked AS (
   WHERE
     s.size_key + 1 * g.age_number <= d.last_data_key
 ), cells AS (
+  /* Each cell with its paying customers and revenue (0 when none). */
   SELECT
     t.cell_cohort_key,
     t.cell_age,
@@ -699,6 +737,7 @@ WITH marked AS (
   LEFT JOIN cohort_revenue AS v
     ON v.revenue_cohort_key = t.cell_cohort_key AND v.revenue_key = t.cell_key
 ), running AS (
+  /* Cumulative revenue per cohort, and its revenue at age 0. */
   SELECT
     cell_cohort_key,
     cell_age,
@@ -714,6 +753,7 @@ WITH marked AS (
     MAX(CASE WHEN cell_age = 0 THEN cell_revenue END) OVER (PARTITION BY cell_cohort_key) AS base_amount
   FROM cells
 )
+/* Net revenue retention = revenue at this age / revenue at age 0. */
 SELECT
   DATE(DATE(DATE('1970-01-01'), (
     cell_cohort_key - 23640

@@ -17,6 +17,7 @@ DROP VIEW IF EXISTS revenue_source_summary;
 
 CREATE VIEW revenue_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
@@ -51,6 +52,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "subscriptions"
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -63,6 +65,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -74,7 +77,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -96,6 +99,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count; the counted rows' first and last dates. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,
@@ -108,7 +112,7 @@ SELECT
   COUNT(
     CASE
       WHEN row_status = 'counted'
-      AND NOT row_end IS NULL
+      AND row_end IS NOT NULL
       AND (
         CAST(STRFTIME('%Y', row_end) AS INTEGER) * 12 + CAST(STRFTIME('%m', row_end) AS INTEGER) - 1 - (
           CAST(STRFTIME('%m', row_end) AS INTEGER) - 1
@@ -135,6 +139,7 @@ DROP VIEW IF EXISTS customer_revenue;
 
 CREATE VIEW customer_revenue AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
@@ -169,6 +174,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "subscriptions"
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -181,6 +187,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -192,7 +199,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -214,6 +221,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 ), counted AS (
+  /* The counted rows only. */
   SELECT
     sqlgen_customer AS counted_customer,
     row_date AS counted_date,
@@ -224,11 +232,13 @@ WITH sqlgen_source AS (
   WHERE
     row_status = 'counted'
 ), bounds AS (
+  /* The first and last date of the counted rows. */
   SELECT
     MIN(counted_date) AS first_date,
     MAX(CASE WHEN counted_end IS NULL THEN counted_date ELSE counted_end END) AS last_date
   FROM counted
 ), data_range AS (
+  /* The first and last period of the counted rows. */
   SELECT
     (
       CAST(STRFTIME('%Y', first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', first_date) AS INTEGER) - 1 - (
@@ -242,6 +252,8 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), ranges AS (
+  /* Each subscription's periods in force at the period's end: from the period of its start
+     to the period before the one holding its end (to the last period while it runs). */
   SELECT
     c.counted_customer AS range_customer,
     (
@@ -263,6 +275,8 @@ WITH sqlgen_source AS (
   FROM counted AS c
   CROSS JOIN data_range AS d
 ), monthly AS (
+  /* Its monthly amount: amount / months of the interval, in whole units of the scale,
+     rounded half away from zero. */
   SELECT
     range_customer AS monthly_customer,
     range_first_key AS monthly_first_key,
@@ -282,6 +296,7 @@ WITH sqlgen_source AS (
   WHERE
     range_first_key <= range_last_key
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -312,6 +327,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), period_ends AS (
+  /* Every period from the first to the last. */
   SELECT
     d.first_key + 3 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -325,6 +341,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= d.last_key
 ), totals AS (
+  /* A customer's run rate in a period: the monthly amounts in force at its end. */
   SELECT
     m.monthly_customer AS total_customer,
     e.end_key AS total_key,
@@ -337,6 +354,7 @@ WITH sqlgen_source AS (
     m.monthly_customer,
     e.end_key
 ), entries AS (
+  /* Each total as this period's revenue, and again as the next period's previous revenue. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -358,6 +376,7 @@ WITH sqlgen_source AS (
   WHERE
     t.total_amount > 0 AND t.total_key + 3 <= d.last_key
 ), combined AS (
+  /* Per customer and period: current revenue (a total of 0 or less counts as 0) and previous revenue. */
   SELECT
     entry_customer AS customer_key,
     entry_key AS revenue_key,
@@ -370,6 +389,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
+  /* Each customer's first period with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -380,6 +400,7 @@ WITH sqlgen_source AS (
     MIN(CASE WHEN current_amount > 0 THEN revenue_key END) OVER (PARTITION BY customer_key) AS first_paid_key
   FROM combined
 ), staged AS (
+  /* Exactly one state per row, so revenue = previous + new + resurrected + expansion - contraction - churned. */
   SELECT
     customer_key,
     revenue_key,
@@ -406,6 +427,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
+/* Each change in exactly one component; previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,
@@ -451,6 +473,7 @@ DROP VIEW IF EXISTS revenue_accounting;
 
 CREATE VIEW revenue_accounting AS
 WITH tallies AS (
+  /* customer_revenue summed per period: the identities hold per row, so they hold in the sums. */
   SELECT
     period_key AS tally_key,
     SUM(revenue) AS revenue_sum,
@@ -477,6 +500,7 @@ WITH tallies AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with revenue data, and the last date. */
   SELECT
     (
       CAST(STRFTIME('%Y', first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', first_date) AS INTEGER) - 1 - (
@@ -491,6 +515,7 @@ WITH tallies AS (
     last_date AS data_through
   FROM revenue_source_summary
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT
     first_key,
     last_key,
@@ -502,6 +527,7 @@ WITH tallies AS (
     ) AS after_data_key
   FROM data_range
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -532,6 +558,7 @@ WITH tallies AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     e.first_key + 3 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -545,6 +572,7 @@ WITH tallies AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= e.last_key
 ), filled AS (
+  /* The sums on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key,
     COALESCE(t.revenue_sum, 0) AS revenue_amount,
@@ -577,6 +605,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
+/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   DATE(DATE(DATE('1970-01-01'), (
     calendar_key - 23640
@@ -613,12 +642,14 @@ DROP VIEW IF EXISTS revenue_cohorts;
 
 CREATE VIEW revenue_cohorts AS
 WITH marked AS (
+  /* Each customer_revenue row with the customer's cohort: the first period with revenue. */
   SELECT
     period_key AS marked_key,
     revenue AS marked_revenue,
     MIN(CASE WHEN revenue > 0 THEN period_key END) OVER (PARTITION BY customer_id) AS marked_cohort_key
   FROM customer_revenue
 ), cohort_revenue AS (
+  /* Paying customers and revenue per cohort and period. */
   SELECT
     marked_cohort_key AS revenue_cohort_key,
     marked_key AS revenue_key,
@@ -631,6 +662,7 @@ WITH marked AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
+  /* A cohort's size: its paying customers in the cohort period. */
   SELECT
     revenue_cohort_key AS size_key,
     paying_count AS size_count
@@ -638,6 +670,7 @@ WITH marked AS (
   WHERE
     revenue_key = revenue_cohort_key
 ), data_range AS (
+  /* The first and last period of revenue data. */
   SELECT
     (
       CAST(STRFTIME('%Y', first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', first_date) AS INTEGER) - 1 - (
@@ -651,6 +684,7 @@ WITH marked AS (
     ) AS last_data_key
   FROM revenue_source_summary
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -681,6 +715,7 @@ WITH marked AS (
   SELECT
     9
 ), ages AS (
+  /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 AS age_number
   FROM data_range AS d
@@ -692,6 +727,7 @@ WITH marked AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= d.last_data_key
 ), triangle AS (
+  /* Every cohort and age up to the last period with data. */
   SELECT
     s.size_key AS cell_cohort_key,
     g.age_number AS cell_age,
@@ -703,6 +739,7 @@ WITH marked AS (
   WHERE
     s.size_key + 3 * g.age_number <= d.last_data_key
 ), cells AS (
+  /* Each cell with its paying customers and revenue (0 when none). */
   SELECT
     t.cell_cohort_key,
     t.cell_age,
@@ -714,6 +751,7 @@ WITH marked AS (
   LEFT JOIN cohort_revenue AS v
     ON v.revenue_cohort_key = t.cell_cohort_key AND v.revenue_key = t.cell_key
 ), running AS (
+  /* Cumulative revenue per cohort, and its revenue at age 0. */
   SELECT
     cell_cohort_key,
     cell_age,
@@ -729,6 +767,7 @@ WITH marked AS (
     MAX(CASE WHEN cell_age = 0 THEN cell_revenue END) OVER (PARTITION BY cell_cohort_key) AS base_amount
   FROM cells
 )
+/* Net revenue retention = revenue at this age / revenue at age 0. */
 SELECT
   DATE(DATE(DATE('1970-01-01'), (
     cell_cohort_key - 23640

@@ -13,6 +13,7 @@ DROP VIEW IF EXISTS revenue_source_summary;
 
 CREATE VIEW revenue_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
@@ -47,6 +48,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "subscriptions"
 ), sqlgen_dated AS (
+  /* Each row's local calendar date(s), by the spec's time zone rule. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -59,6 +61,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row's status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -70,7 +73,7 @@ WITH sqlgen_source AS (
       THEN 'null_customer'
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN 'null_date'
       WHEN sqlgen_amount IS NULL
@@ -92,6 +95,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count; the counted rows' first and last dates. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,
@@ -104,7 +108,7 @@ SELECT
   COUNT(
     CASE
       WHEN row_status = 'counted'
-      AND NOT row_end IS NULL
+      AND row_end IS NOT NULL
       AND (
         CAST((JULIANDAY(row_end) - JULIANDAY(DATE('1970-01-05'))) AS INTEGER) - (
           CAST((JULIANDAY(row_end) - JULIANDAY(DATE('1970-01-05'))) AS INTEGER) + 699994

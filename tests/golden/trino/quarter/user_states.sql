@@ -12,6 +12,8 @@
 
 CREATE OR REPLACE VIEW "growth".user_states AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -21,17 +23,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
-    NOT "user_id" IS NULL
-    AND NOT "occurred_at" IS NULL
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -40,6 +44,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id,
     activity_date,
@@ -50,6 +55,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -59,6 +65,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
+  /* Each active (user, period) with the user's previous and next active periods. */
   SELECT
     user_id,
     period_key,
@@ -66,10 +73,12 @@ WITH sqlgen_source AS (
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS later_key
   FROM active_periods
 ), data_range AS (
+  /* The last period with data: a user lapses only before it. */
   SELECT
     MAX(period_key) AS last_key
   FROM active_periods
 ), lapsed AS (
+  /* Churned: the period after an active one in which the user is not active, up to the last period. */
   SELECT
     s.user_id,
     s.period_key + 3 AS lapse_key
@@ -81,6 +90,7 @@ WITH sqlgen_source AS (
     )
     AND s.period_key + 3 <= r.last_key
 )
+/* Active periods are new, retained or resurrected by the previous active period; then the churned ones. */
 SELECT
   user_id,
   period_key,

@@ -11,6 +11,8 @@
 
 CREATE OR REPLACE VIEW "growth".cohort_retention AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -20,17 +22,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM "raw"."app_events"
   WHERE
-    NOT "user_id" IS NULL
-    AND NOT "occurred_at" IS NULL
+    "user_id" IS NOT NULL
+    AND "occurred_at" IS NOT NULL
     AND (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
+  /* Each row's local calendar date, by the spec's time zone rule. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -39,6 +43,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
 ), keyed AS (
+  /* period_key: days since Monday 1970-01-05, a week keyed by its first day, so adjacent periods differ by the step in days. */
   SELECT
     user_id,
     activity_date,
@@ -57,6 +62,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -66,11 +72,13 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), marked AS (
+  /* Each active (user, period) with the user's cohort: the first active period. */
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
   FROM active_periods
 ), cohort_actives AS (
+  /* Actives per cohort and period. */
   SELECT
     marked_cohort_key AS active_cohort_key,
     marked_key AS active_key,
@@ -80,6 +88,7 @@ WITH sqlgen_source AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
+  /* A cohort's size: its actives in the cohort period. */
   SELECT
     active_cohort_key AS size_key,
     active_count AS size_count
@@ -87,11 +96,13 @@ WITH sqlgen_source AS (
   WHERE
     active_key = active_cohort_key
 ), data_range AS (
+  /* The first and last period with data. */
   SELECT
     MIN(period_key) AS first_data_key,
     MAX(period_key) AS last_data_key
   FROM active_periods
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -122,6 +133,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), ages AS (
+  /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 AS age_number
   FROM data_range AS r
@@ -134,6 +146,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= r.last_data_key
 ), triangle AS (
+  /* Every cohort and age up to the last period with data: the full triangle. */
   SELECT
     s.size_key AS cell_cohort_key,
     g.age_number AS cell_age,
@@ -145,6 +158,7 @@ WITH sqlgen_source AS (
   WHERE
     s.size_key + 7 * g.age_number <= r.last_data_key
 )
+/* Each cell with its actives (0 when none) and retention = actives / cohort size. */
 SELECT
   CAST(DATE_ADD('DAY', CAST(t.cell_cohort_key AS BIGINT), CAST('1970-01-05' AS DATE)) AS DATE) AS cohort_start,
   t.cell_age AS age,

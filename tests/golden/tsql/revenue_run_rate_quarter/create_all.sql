@@ -19,6 +19,7 @@ IF NOT EXISTS (SELECT * FROM INFORMATION_SCHEMA.SCHEMATA WHERE SCHEMA_NAME = 'fi
 -- revenue_source_summary
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].revenue_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec''s filter. */
   SELECT
     [account_id] AS sqlgen_customer,
     [started_at] AS sqlgen_date_value,
@@ -53,6 +54,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM [billing].[subscriptions]
 ), sqlgen_dated AS (
+  /* Each row''s local calendar date(s), by the spec''s time zone rule. */
   SELECT
     sqlgen_customer AS sqlgen_customer,
     sqlgen_amount AS sqlgen_amount,
@@ -65,6 +67,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row''s status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer AS sqlgen_customer,
     sqlgen_amount AS sqlgen_amount,
@@ -76,7 +79,7 @@ WITH sqlgen_source AS (
       THEN ''null_customer''
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN ''null_date''
       WHEN sqlgen_amount IS NULL
@@ -98,6 +101,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count; the counted rows'' first and last dates. */
 SELECT
   COUNT_BIG(*) AS source_rows,
   COUNT_BIG(CASE WHEN row_status = ''null_customer'' THEN 1 END) AS null_customer_rows,
@@ -110,7 +114,7 @@ SELECT
   COUNT_BIG(
     CASE
       WHEN row_status = ''counted''
-      AND NOT row_end IS NULL
+      AND row_end IS NOT NULL
       AND (
         DATEPART(YEAR, row_end) * 12 + DATEPART(MONTH, row_end) - 1 - (
           DATEPART(MONTH, row_end) - 1
@@ -135,6 +139,7 @@ FROM sqlgen_rows';
 -- customer_revenue
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].customer_revenue AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec''s filter. */
   SELECT
     [account_id] AS sqlgen_customer,
     [started_at] AS sqlgen_date_value,
@@ -169,6 +174,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM [billing].[subscriptions]
 ), sqlgen_dated AS (
+  /* Each row''s local calendar date(s), by the spec''s time zone rule. */
   SELECT
     sqlgen_customer AS sqlgen_customer,
     sqlgen_amount AS sqlgen_amount,
@@ -181,6 +187,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row''s status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer AS sqlgen_customer,
     sqlgen_amount AS sqlgen_amount,
@@ -192,7 +199,7 @@ WITH sqlgen_source AS (
       THEN ''null_customer''
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN ''null_date''
       WHEN sqlgen_amount IS NULL
@@ -214,6 +221,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 ), counted AS (
+  /* The counted rows only. */
   SELECT
     sqlgen_customer AS counted_customer,
     row_date AS counted_date,
@@ -224,11 +232,13 @@ WITH sqlgen_source AS (
   WHERE
     row_status = ''counted''
 ), bounds AS (
+  /* The first and last date of the counted rows. */
   SELECT
     MIN(counted_date) AS first_date,
     MAX(CASE WHEN counted_end IS NULL THEN counted_date ELSE counted_end END) AS last_date
   FROM counted
 ), data_range AS (
+  /* The first and last period of the counted rows. */
   SELECT
     (
       DATEPART(YEAR, first_date) * 12 + DATEPART(MONTH, first_date) - 1 - (
@@ -242,6 +252,8 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), ranges AS (
+  /* Each subscription''s periods in force at the period''s end: from the period of its start
+     to the period before the one holding its end (to the last period while it runs). */
   SELECT
     c.counted_customer AS range_customer,
     (
@@ -263,6 +275,8 @@ WITH sqlgen_source AS (
   FROM counted AS c
   CROSS JOIN data_range AS d
 ), monthly AS (
+  /* Its monthly amount: amount / months of the interval, in whole units of the scale,
+     rounded half away from zero. */
   SELECT
     range_customer AS monthly_customer,
     range_first_key AS monthly_first_key,
@@ -282,6 +296,7 @@ WITH sqlgen_source AS (
   WHERE
     range_first_key <= range_last_key
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -312,6 +327,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), period_ends AS (
+  /* Every period from the first to the last. */
   SELECT
     d.first_key + 3 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -325,6 +341,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= d.last_key
 ), totals AS (
+  /* A customer''s run rate in a period: the monthly amounts in force at its end. */
   SELECT
     m.monthly_customer AS total_customer,
     e.end_key AS total_key,
@@ -337,6 +354,7 @@ WITH sqlgen_source AS (
     m.monthly_customer,
     e.end_key
 ), entries AS (
+  /* Each total as this period''s revenue, and again as the next period''s previous revenue. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -358,6 +376,7 @@ WITH sqlgen_source AS (
   WHERE
     t.total_amount > 0 AND t.total_key + 3 <= d.last_key
 ), combined AS (
+  /* Per customer and period: current revenue (a total of 0 or less counts as 0) and previous revenue. */
   SELECT
     entry_customer AS customer_key,
     entry_key AS revenue_key,
@@ -370,6 +389,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
+  /* Each customer''s first period with revenue. */
   SELECT
     customer_key AS customer_key,
     revenue_key AS revenue_key,
@@ -380,6 +400,7 @@ WITH sqlgen_source AS (
     MIN(CASE WHEN current_amount > 0 THEN revenue_key END) OVER (PARTITION BY customer_key) AS first_paid_key
   FROM combined
 ), staged AS (
+  /* Exactly one state per row, so revenue = previous + new + resurrected + expansion - contraction - churned. */
   SELECT
     customer_key AS customer_key,
     revenue_key AS revenue_key,
@@ -406,6 +427,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
+/* Each change in exactly one component; previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,
@@ -447,6 +469,7 @@ FROM staged';
 -- revenue_accounting
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].revenue_accounting AS
 WITH tallies AS (
+  /* customer_revenue summed per period: the identities hold per row, so they hold in the sums. */
   SELECT
     period_key AS tally_key,
     SUM(revenue) AS revenue_sum,
@@ -473,6 +496,7 @@ WITH tallies AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with revenue data, and the last date. */
   SELECT
     (
       DATEPART(YEAR, first_date) * 12 + DATEPART(MONTH, first_date) - 1 - (
@@ -487,6 +511,7 @@ WITH tallies AS (
     last_date AS data_through
   FROM [finance].revenue_source_summary
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT
     first_key AS first_key,
     last_key AS last_key,
@@ -498,6 +523,7 @@ WITH tallies AS (
     ) AS after_data_key
   FROM data_range
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -528,6 +554,7 @@ WITH tallies AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     e.first_key + 3 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -541,6 +568,7 @@ WITH tallies AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= e.last_key
 ), filled AS (
+  /* The sums on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key AS calendar_key,
     COALESCE(t.revenue_sum, 0) AS revenue_amount,
@@ -573,6 +601,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
+/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   CAST(DATEADD(MONTH, calendar_key - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE) AS period_start,
   ROUND(revenue_amount, 2) AS revenue,
@@ -605,12 +634,14 @@ FROM filled';
 -- revenue_cohorts
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].revenue_cohorts AS
 WITH marked AS (
+  /* Each customer_revenue row with the customer''s cohort: the first period with revenue. */
   SELECT
     period_key AS marked_key,
     revenue AS marked_revenue,
     MIN(CASE WHEN revenue > 0 THEN period_key END) OVER (PARTITION BY customer_id) AS marked_cohort_key
   FROM [finance].customer_revenue
 ), cohort_revenue AS (
+  /* Paying customers and revenue per cohort and period. */
   SELECT
     marked_cohort_key AS revenue_cohort_key,
     marked_key AS revenue_key,
@@ -623,6 +654,7 @@ WITH marked AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
+  /* A cohort''s size: its paying customers in the cohort period. */
   SELECT
     revenue_cohort_key AS size_key,
     paying_count AS size_count
@@ -630,6 +662,7 @@ WITH marked AS (
   WHERE
     revenue_key = revenue_cohort_key
 ), data_range AS (
+  /* The first and last period of revenue data. */
   SELECT
     (
       DATEPART(YEAR, first_date) * 12 + DATEPART(MONTH, first_date) - 1 - (
@@ -643,6 +676,7 @@ WITH marked AS (
     ) AS last_data_key
   FROM [finance].revenue_source_summary
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -673,6 +707,7 @@ WITH marked AS (
   SELECT
     9
 ), ages AS (
+  /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 AS age_number
   FROM data_range AS d
@@ -684,6 +719,7 @@ WITH marked AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= d.last_data_key
 ), triangle AS (
+  /* Every cohort and age up to the last period with data. */
   SELECT
     s.size_key AS cell_cohort_key,
     g.age_number AS cell_age,
@@ -695,6 +731,7 @@ WITH marked AS (
   WHERE
     s.size_key + 3 * g.age_number <= d.last_data_key
 ), cells AS (
+  /* Each cell with its paying customers and revenue (0 when none). */
   SELECT
     t.cell_cohort_key AS cell_cohort_key,
     t.cell_age AS cell_age,
@@ -706,6 +743,7 @@ WITH marked AS (
   LEFT JOIN cohort_revenue AS v
     ON v.revenue_cohort_key = t.cell_cohort_key AND v.revenue_key = t.cell_key
 ), running AS (
+  /* Cumulative revenue per cohort, and its revenue at age 0. */
   SELECT
     cell_cohort_key AS cell_cohort_key,
     cell_age AS cell_age,
@@ -721,6 +759,7 @@ WITH marked AS (
     MAX(CASE WHEN cell_age = 0 THEN cell_revenue END) OVER (PARTITION BY cell_cohort_key) AS base_amount
   FROM cells
 )
+/* Net revenue retention = revenue at this age / revenue at age 0. */
 SELECT
   CAST(DATEADD(MONTH, cell_cohort_key - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE) AS cohort_start,
   cell_age AS age,

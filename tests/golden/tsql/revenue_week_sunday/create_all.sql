@@ -19,6 +19,7 @@ IF NOT EXISTS (SELECT * FROM INFORMATION_SCHEMA.SCHEMATA WHERE SCHEMA_NAME = 'fi
 -- revenue_source_summary
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].revenue_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec''s filter. */
   SELECT
     [account_id] AS sqlgen_customer,
     [started_at] AS sqlgen_date_value,
@@ -53,6 +54,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM [billing].[subscriptions]
 ), sqlgen_dated AS (
+  /* Each row''s local calendar date(s), by the spec''s time zone rule. */
   SELECT
     sqlgen_customer AS sqlgen_customer,
     sqlgen_amount AS sqlgen_amount,
@@ -65,6 +67,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row''s status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer AS sqlgen_customer,
     sqlgen_amount AS sqlgen_amount,
@@ -76,7 +79,7 @@ WITH sqlgen_source AS (
       THEN ''null_customer''
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN ''null_date''
       WHEN sqlgen_amount IS NULL
@@ -98,6 +101,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count; the counted rows'' first and last dates. */
 SELECT
   COUNT_BIG(*) AS source_rows,
   COUNT_BIG(CASE WHEN row_status = ''null_customer'' THEN 1 END) AS null_customer_rows,
@@ -119,6 +123,7 @@ FROM sqlgen_rows';
 -- customer_revenue
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].customer_revenue AS
 WITH sqlgen_source AS (
+  /* Every row of the revenue table with the columns the views read, marked as kept by the spec''s filter. */
   SELECT
     [account_id] AS sqlgen_customer,
     [started_at] AS sqlgen_date_value,
@@ -153,6 +158,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM [billing].[subscriptions]
 ), sqlgen_dated AS (
+  /* Each row''s local calendar date(s), by the spec''s time zone rule. */
   SELECT
     sqlgen_customer AS sqlgen_customer,
     sqlgen_amount AS sqlgen_amount,
@@ -165,6 +171,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
+  /* Each row''s status: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer AS sqlgen_customer,
     sqlgen_amount AS sqlgen_amount,
@@ -176,7 +183,7 @@ WITH sqlgen_source AS (
       THEN ''null_customer''
       WHEN sqlgen_date_value IS NULL
       OR (
-        NOT sqlgen_date_near IS NULL AND row_date IS NULL
+        sqlgen_date_near IS NOT NULL AND row_date IS NULL
       )
       THEN ''null_date''
       WHEN sqlgen_amount IS NULL
@@ -198,6 +205,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 ), counted AS (
+  /* The counted rows only. */
   SELECT
     sqlgen_customer AS counted_customer,
     row_date AS counted_date,
@@ -208,11 +216,13 @@ WITH sqlgen_source AS (
   WHERE
     row_status = ''counted''
 ), bounds AS (
+  /* The first and last date of the counted rows. */
   SELECT
     MIN(counted_date) AS first_date,
     MAX(CASE WHEN counted_end IS NULL THEN counted_date ELSE counted_end END) AS last_date
   FROM counted
 ), data_range AS (
+  /* The first and last period of the counted rows. */
   SELECT
     (
       DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), first_date) - (
@@ -226,6 +236,7 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), spans AS (
+  /* Each counted subscription in whole units of the amount''s scale. */
   SELECT
     counted_customer AS span_customer,
     counted_date AS span_start,
@@ -234,6 +245,7 @@ WITH sqlgen_source AS (
     counted_months AS span_months
   FROM counted
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -264,6 +276,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), periods AS (
+  /* Every period the data spans. */
   SELECT
     d.first_key + 7 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
@@ -278,6 +291,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= d.last_key
 ), segments AS (
+  /* Each period as a segment, against a 365-day year. */
   SELECT
     calendar_key AS segment_key,
     CAST(DATEADD(DAY, calendar_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS segment_start,
@@ -285,6 +299,7 @@ WITH sqlgen_source AS (
     365 AS segment_days
   FROM periods
 ), pieces AS (
+  /* Each subscription''s covered days in each segment, as an integer fraction of the segment. */
   SELECT
     s.span_customer AS piece_customer,
     g.segment_key AS piece_key,
@@ -293,7 +308,7 @@ WITH sqlgen_source AS (
       DAY,
       CASE WHEN s.span_start > g.segment_start THEN s.span_start ELSE g.segment_start END,
       CASE
-        WHEN NOT s.span_end IS NULL AND s.span_end < g.segment_end
+        WHEN s.span_end IS NOT NULL AND s.span_end < g.segment_end
         THEN s.span_end
         ELSE g.segment_end
       END
@@ -307,6 +322,7 @@ WITH sqlgen_source AS (
       s.span_end IS NULL OR s.span_end > g.segment_start
     )
 ), shares AS (
+  /* Each piece in whole units, rounded half away from zero with integer arithmetic. */
   SELECT
     piece_customer AS share_customer,
     piece_key AS share_key,
@@ -323,6 +339,7 @@ WITH sqlgen_source AS (
     ) AS BIGINT) AS share_units
   FROM pieces
 ), totals AS (
+  /* Each customer''s total per period: the sum of its shares. */
   SELECT
     share_customer AS total_customer,
     share_key AS total_key,
@@ -332,6 +349,7 @@ WITH sqlgen_source AS (
     share_customer,
     share_key
 ), entries AS (
+  /* Each total as this period''s revenue, and again as the next period''s previous revenue. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -353,6 +371,7 @@ WITH sqlgen_source AS (
   WHERE
     t.total_amount > 0 AND t.total_key + 7 <= d.last_key
 ), combined AS (
+  /* Per customer and period: current revenue (a total of 0 or less counts as 0) and previous revenue. */
   SELECT
     entry_customer AS customer_key,
     entry_key AS revenue_key,
@@ -365,6 +384,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
+  /* Each customer''s first period with revenue. */
   SELECT
     customer_key AS customer_key,
     revenue_key AS revenue_key,
@@ -375,6 +395,7 @@ WITH sqlgen_source AS (
     MIN(CASE WHEN current_amount > 0 THEN revenue_key END) OVER (PARTITION BY customer_key) AS first_paid_key
   FROM combined
 ), staged AS (
+  /* Exactly one state per row, so revenue = previous + new + resurrected + expansion - contraction - churned. */
   SELECT
     customer_key AS customer_key,
     revenue_key AS revenue_key,
@@ -401,6 +422,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
+/* Each change in exactly one component; previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,
@@ -442,6 +464,7 @@ FROM staged';
 -- revenue_accounting
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].revenue_accounting AS
 WITH tallies AS (
+  /* customer_revenue summed per period: the identities hold per row, so they hold in the sums. */
   SELECT
     period_key AS tally_key,
     SUM(revenue) AS revenue_sum,
@@ -468,6 +491,7 @@ WITH tallies AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with revenue data, and the last date. */
   SELECT
     (
       DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), first_date) - (
@@ -482,6 +506,7 @@ WITH tallies AS (
     last_date AS data_through
   FROM [finance].revenue_source_summary
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT
     first_key AS first_key,
     last_key AS last_key,
@@ -493,6 +518,7 @@ WITH tallies AS (
     ) AS after_data_key
   FROM data_range
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -523,6 +549,7 @@ WITH tallies AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     e.first_key + 7 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
@@ -537,6 +564,7 @@ WITH tallies AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= e.last_key
 ), filled AS (
+  /* The sums on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key AS calendar_key,
     COALESCE(t.revenue_sum, 0) AS revenue_amount,
@@ -569,6 +597,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
+/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   CAST(DATEADD(DAY, calendar_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS period_start,
   ROUND(revenue_amount, 2) AS revenue,
@@ -601,12 +630,14 @@ FROM filled';
 -- revenue_cohorts
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].revenue_cohorts AS
 WITH marked AS (
+  /* Each customer_revenue row with the customer''s cohort: the first period with revenue. */
   SELECT
     period_key AS marked_key,
     revenue AS marked_revenue,
     MIN(CASE WHEN revenue > 0 THEN period_key END) OVER (PARTITION BY customer_id) AS marked_cohort_key
   FROM [finance].customer_revenue
 ), cohort_revenue AS (
+  /* Paying customers and revenue per cohort and period. */
   SELECT
     marked_cohort_key AS revenue_cohort_key,
     marked_key AS revenue_key,
@@ -619,6 +650,7 @@ WITH marked AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
+  /* A cohort''s size: its paying customers in the cohort period. */
   SELECT
     revenue_cohort_key AS size_key,
     paying_count AS size_count
@@ -626,6 +658,7 @@ WITH marked AS (
   WHERE
     revenue_key = revenue_cohort_key
 ), data_range AS (
+  /* The first and last period of revenue data. */
   SELECT
     (
       DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), first_date) - (
@@ -639,6 +672,7 @@ WITH marked AS (
     ) AS last_data_key
   FROM [finance].revenue_source_summary
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -669,6 +703,7 @@ WITH marked AS (
   SELECT
     9
 ), ages AS (
+  /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 AS age_number
   FROM data_range AS d
@@ -681,6 +716,7 @@ WITH marked AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= d.last_data_key
 ), triangle AS (
+  /* Every cohort and age up to the last period with data. */
   SELECT
     s.size_key AS cell_cohort_key,
     g.age_number AS cell_age,
@@ -692,6 +728,7 @@ WITH marked AS (
   WHERE
     s.size_key + 7 * g.age_number <= d.last_data_key
 ), cells AS (
+  /* Each cell with its paying customers and revenue (0 when none). */
   SELECT
     t.cell_cohort_key AS cell_cohort_key,
     t.cell_age AS cell_age,
@@ -703,6 +740,7 @@ WITH marked AS (
   LEFT JOIN cohort_revenue AS v
     ON v.revenue_cohort_key = t.cell_cohort_key AND v.revenue_key = t.cell_key
 ), running AS (
+  /* Cumulative revenue per cohort, and its revenue at age 0. */
   SELECT
     cell_cohort_key AS cell_cohort_key,
     cell_age AS cell_age,
@@ -718,6 +756,7 @@ WITH marked AS (
     MAX(CASE WHEN cell_age = 0 THEN cell_revenue END) OVER (PARTITION BY cell_cohort_key) AS base_amount
   FROM cells
 )
+/* Net revenue retention = revenue at this age / revenue at age 0. */
 SELECT
   CAST(DATEADD(DAY, cell_cohort_key, CAST(''1970-01-05'' AS DATE)) AS DATE) AS cohort_start,
   cell_age AS age,

@@ -19,6 +19,7 @@ IF NOT EXISTS (SELECT * FROM INFORMATION_SCHEMA.SCHEMATA WHERE SCHEMA_NAME = 'gr
 -- activity_source_summary
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].activity_source_summary AS
 WITH sqlgen_source AS (
+  /* Every row of the activity table, marked as kept or not by the spec''s filter. */
   SELECT
     [user_id] AS sqlgen_user,
     [occurred_at] AS sqlgen_ts,
@@ -32,6 +33,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM [raw].[app_events]
 ), sqlgen_dated AS (
+  /* Each row''s local calendar date, by the spec''s time zone rule. */
   SELECT
     sqlgen_user AS sqlgen_user,
     sqlgen_ts AS sqlgen_ts,
@@ -40,6 +42,7 @@ WITH sqlgen_source AS (
     CAST(sqlgen_near_ts AS DATE) AS sqlgen_local_date
   FROM sqlgen_source
 ), sqlgen_sorted AS (
+  /* One status per row, tried in order: the first that applies. */
   SELECT
     CASE
       WHEN sqlgen_user IS NULL
@@ -59,6 +62,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
+/* Each source row falls in exactly one count: null user, null timestamp, filtered out, out of range, unconverted or counted. */
 SELECT
   COUNT_BIG(*) AS source_rows,
   COUNT_BIG(CASE WHEN row_status = ''null_user'' THEN 1 END) AS null_user_rows,
@@ -72,6 +76,8 @@ FROM sqlgen_sorted';
 -- user_activity
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].user_activity AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec''s filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     [user_id] AS sqlgen_user,
     CASE
@@ -81,17 +87,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
-    NOT [user_id] IS NULL
-    AND NOT [occurred_at] IS NULL
+    [user_id] IS NOT NULL
+    AND [occurred_at] IS NOT NULL
     AND (
       [event_name] <> ''push_received''
     )
 ), sqlgen_local AS (
+  /* Each row''s local calendar date, by the spec''s time zone rule. */
   SELECT
     sqlgen_user AS sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -100,6 +108,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST(''1990-01-01'' AS DATE)
     AND sqlgen_date < CAST(''2100-01-01'' AS DATE)
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -110,6 +119,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -122,6 +132,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 )
+/* One row per user and active period, its start date from the period key. */
 SELECT
   user_id,
   period_key,
@@ -135,6 +146,8 @@ FROM user_periods';
 -- user_states
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].user_states AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec''s filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     [user_id] AS sqlgen_user,
     CASE
@@ -144,17 +157,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
-    NOT [user_id] IS NULL
-    AND NOT [occurred_at] IS NULL
+    [user_id] IS NOT NULL
+    AND [occurred_at] IS NOT NULL
     AND (
       [event_name] <> ''push_received''
     )
 ), sqlgen_local AS (
+  /* Each row''s local calendar date, by the spec''s time zone rule. */
   SELECT
     sqlgen_user AS sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -163,6 +178,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST(''1990-01-01'' AS DATE)
     AND sqlgen_date < CAST(''2100-01-01'' AS DATE)
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -173,6 +189,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -182,6 +199,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
+  /* Each active (user, period) with the user''s previous and next active periods. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -189,10 +207,12 @@ WITH sqlgen_source AS (
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS later_key
   FROM active_periods
 ), data_range AS (
+  /* The last period with data: a user lapses only before it. */
   SELECT
     MAX(period_key) AS last_key
   FROM active_periods
 ), lapsed AS (
+  /* Churned: the period after an active one in which the user is not active, up to the last period. */
   SELECT
     s.user_id AS user_id,
     s.period_key + 12 AS lapse_key
@@ -204,6 +224,7 @@ WITH sqlgen_source AS (
     )
     AND s.period_key + 12 <= r.last_key
 )
+/* Active periods are new, retained or resurrected by the previous active period; then the churned ones. */
 SELECT
   user_id,
   period_key,
@@ -227,6 +248,8 @@ FROM lapsed';
 -- growth_accounting
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].growth_accounting AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec''s filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     [user_id] AS sqlgen_user,
     CASE
@@ -236,17 +259,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
-    NOT [user_id] IS NULL
-    AND NOT [occurred_at] IS NULL
+    [user_id] IS NOT NULL
+    AND [occurred_at] IS NOT NULL
     AND (
       [event_name] <> ''push_received''
     )
 ), sqlgen_local AS (
+  /* Each row''s local calendar date, by the spec''s time zone rule. */
   SELECT
     sqlgen_user AS sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -255,6 +280,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST(''1990-01-01'' AS DATE)
     AND sqlgen_date < CAST(''2100-01-01'' AS DATE)
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -265,6 +291,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -274,12 +301,14 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
+  /* Each active (user, period) with the user''s previous active period (NULL: the first). */
   SELECT
     period_key AS period_key,
     last_date AS last_date,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
   FROM active_periods
 ), tallies AS (
+  /* Per period: actives; new (no earlier period), retained (the period before), resurrected (an earlier one). */
   SELECT
     period_key AS tally_key,
     MAX(last_date) AS through_tally,
@@ -291,12 +320,14 @@ WITH sqlgen_source AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT
     MIN(tally_key) AS first_key,
     MAX(tally_key) AS last_key,
     MAX(through_tally) AS data_through
   FROM tallies
 ), data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
   SELECT
     first_key AS first_key,
     last_key AS last_key,
@@ -308,6 +339,7 @@ WITH sqlgen_source AS (
     ) AS after_data_key
   FROM data_range
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -338,6 +370,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, by the grain''s step, empty periods included. */
   SELECT
     e.first_key + 12 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -351,6 +384,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= e.last_key
 ), filled AS (
+  /* The tallies on the calendar, zeros for empty periods. */
   SELECT
     c.calendar_key AS calendar_key,
     COALESCE(t.active_tally, 0) AS active_count,
@@ -367,6 +401,7 @@ WITH sqlgen_source AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 ), sequenced_totals AS (
+  /* Each period with the actives of the period before (0 for the first). */
   SELECT
     calendar_key AS calendar_key,
     active_count AS active_count,
@@ -377,6 +412,7 @@ WITH sqlgen_source AS (
     status AS status
   FROM filled
 ), balanced AS (
+  /* The churn identity: every previous active is retained now or churned, so churned = previous - retained. */
   SELECT
     calendar_key AS calendar_key,
     active_count AS active_count,
@@ -388,6 +424,7 @@ WITH sqlgen_source AS (
     status AS status
   FROM sequenced_totals
 )
+/* One row per period: its start date from the key, counts, and ratios (NULL on a zero denominator). */
 SELECT
   CAST(DATEADD(MONTH, calendar_key - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE) AS period_start,
   active_count AS active_users,
@@ -407,6 +444,8 @@ FROM balanced';
 -- cohort_retention
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].cohort_retention AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec''s filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     [user_id] AS sqlgen_user,
     CASE
@@ -416,17 +455,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
-    NOT [user_id] IS NULL
-    AND NOT [occurred_at] IS NULL
+    [user_id] IS NOT NULL
+    AND [occurred_at] IS NOT NULL
     AND (
       [event_name] <> ''push_received''
     )
 ), sqlgen_local AS (
+  /* Each row''s local calendar date, by the spec''s time zone rule. */
   SELECT
     sqlgen_user AS sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -435,6 +476,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST(''1990-01-01'' AS DATE)
     AND sqlgen_date < CAST(''2100-01-01'' AS DATE)
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -445,6 +487,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), active_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -454,11 +497,13 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), marked AS (
+  /* Each active (user, period) with the user''s cohort: the first active period. */
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
   FROM active_periods
 ), cohort_actives AS (
+  /* Actives per cohort and period. */
   SELECT
     marked_cohort_key AS active_cohort_key,
     marked_key AS active_key,
@@ -468,6 +513,7 @@ WITH sqlgen_source AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
+  /* A cohort''s size: its actives in the cohort period. */
   SELECT
     active_cohort_key AS size_key,
     active_count AS size_count
@@ -475,11 +521,13 @@ WITH sqlgen_source AS (
   WHERE
     active_key = active_cohort_key
 ), data_range AS (
+  /* The first and last period with data. */
   SELECT
     MIN(period_key) AS first_data_key,
     MAX(period_key) AS last_data_key
   FROM active_periods
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -510,6 +558,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), ages AS (
+  /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 AS age_number
   FROM data_range AS r
@@ -521,6 +570,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= r.last_data_key
 ), triangle AS (
+  /* Every cohort and age up to the last period with data: the full triangle. */
   SELECT
     s.size_key AS cell_cohort_key,
     g.age_number AS cell_age,
@@ -532,6 +582,7 @@ WITH sqlgen_source AS (
   WHERE
     s.size_key + 12 * g.age_number <= r.last_data_key
 )
+/* Each cell with its actives (0 when none) and retention = actives / cohort size. */
 SELECT
   CAST(DATEADD(MONTH, t.cell_cohort_key - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE) AS cohort_start,
   t.cell_age AS age,
@@ -548,6 +599,8 @@ LEFT JOIN cohort_actives AS c
 -- engagement_depth
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].engagement_depth AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec''s filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     [user_id] AS sqlgen_user,
     CASE
@@ -557,17 +610,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
-    NOT [user_id] IS NULL
-    AND NOT [occurred_at] IS NULL
+    [user_id] IS NOT NULL
+    AND [occurred_at] IS NOT NULL
     AND (
       [event_name] <> ''push_received''
     )
 ), sqlgen_local AS (
+  /* Each row''s local calendar date, by the spec''s time zone rule. */
   SELECT
     sqlgen_user AS sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -576,6 +631,7 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST(''1990-01-01'' AS DATE)
     AND sqlgen_date < CAST(''2100-01-01'' AS DATE)
 ), keyed AS (
+  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -586,6 +642,7 @@ WITH sqlgen_source AS (
     ) AS period_key
   FROM dated
 ), user_periods AS (
+  /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -598,6 +655,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), depth_counts AS (
+  /* Users per period and number of distinct active days. */
   SELECT
     period_key AS depth_key,
     active_days AS depth_days,
@@ -607,6 +665,7 @@ WITH sqlgen_source AS (
     period_key,
     active_days
 ), period_totals AS (
+  /* Active users and user-days per period. */
   SELECT
     period_key AS total_key,
     COUNT_BIG(*) AS total_users,
@@ -615,12 +674,14 @@ WITH sqlgen_source AS (
   GROUP BY
     period_key
 ), data_range AS (
+  /* The first and last period with data, and the last active date. */
   SELECT
     MIN(period_key) AS first_key,
     MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
   FROM user_periods
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -651,6 +712,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every period from the first to the last, empty periods included. */
   SELECT
     r.first_key + 12 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -666,6 +728,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
     ) <= r.last_key
 ), spans AS (
+  /* Days in each period, and the days seen so far (the last period may be in progress). */
   SELECT
     calendar_key AS span_key,
     DATEDIFF(
@@ -688,6 +751,7 @@ WITH sqlgen_source AS (
     END AS seen_days
   FROM calendar
 ), day_counts AS (
+  /* Day counts 1 up to the longest period of the grain. */
   SELECT
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 + 1 AS day_count
   FROM digits AS digit_0
@@ -696,6 +760,7 @@ WITH sqlgen_source AS (
   WHERE
     digit_0.n + digit_1.n * 10 + digit_2.n * 100 < 366
 ), cells AS (
+  /* One cell per period and possible day count. */
   SELECT
     s.span_key AS cell_key,
     d.day_count AS cell_days,
@@ -706,6 +771,7 @@ WITH sqlgen_source AS (
   WHERE
     d.day_count <= s.span_days
 )
+/* Users active on exactly that many days (0 when none), their share, and the daily-to-period ratio. */
 SELECT
   CAST(DATEADD(MONTH, c.cell_key - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE) AS period_start,
   c.cell_days AS active_days,
@@ -725,6 +791,8 @@ LEFT JOIN period_totals AS t
 -- trailing_activity
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [growth].trailing_activity AS
 WITH sqlgen_source AS (
+  /* The activity rows that count: a user and a timestamp, and kept by the spec''s filter;
+     a timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     [user_id] AS sqlgen_user,
     CASE
@@ -734,17 +802,19 @@ WITH sqlgen_source AS (
     END AS sqlgen_ts
   FROM [raw].[app_events]
   WHERE
-    NOT [user_id] IS NULL
-    AND NOT [occurred_at] IS NULL
+    [user_id] IS NOT NULL
+    AND [occurred_at] IS NOT NULL
     AND (
       [event_name] <> ''push_received''
     )
 ), sqlgen_local AS (
+  /* Each row''s local calendar date, by the spec''s time zone rule. */
   SELECT
     sqlgen_user AS sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (
+  /* The rows whose local date is inside the valid range (the summary counts the others). */
   SELECT
     sqlgen_user AS user_id,
     sqlgen_date AS activity_date
@@ -753,11 +823,13 @@ WITH sqlgen_source AS (
     sqlgen_date >= CAST(''1990-01-01'' AS DATE)
     AND sqlgen_date < CAST(''2100-01-01'' AS DATE)
 ), numbered AS (
+  /* Each active day as a day number: days since Monday 1970-01-05. */
   SELECT
     user_id AS day_user,
     DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), activity_date) AS day_number
   FROM dated
 ), blocked AS (
+  /* Days cut into blocks as long as the shortest window. */
   SELECT
     day_user AS day_user,
     day_number AS day_number,
@@ -766,6 +838,7 @@ WITH sqlgen_source AS (
     ) % 7 AS block_number
   FROM numbered
 ), user_blocks AS (
+  /* First and last active day of each user in each block. */
   SELECT
     day_user AS block_user,
     block_number AS block_number,
@@ -776,6 +849,7 @@ WITH sqlgen_source AS (
     day_user,
     block_number
 ), visits AS (
+  /* Each block with the user''s previous block and next active day. */
   SELECT
     first_day AS first_day,
     last_day AS last_day,
@@ -783,12 +857,14 @@ WITH sqlgen_source AS (
     LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number) AS next_day
   FROM user_blocks
 ), window_lengths AS (
+  /* The window lengths, in days. */
   SELECT
     7 AS window_length
   UNION ALL
   SELECT
     28 AS window_length
 ), spans AS (
+  /* Per block and window, the days whose window counts the user: active, lapsing, churned. */
   SELECT
     w.window_length AS span_window,
     v.first_day AS start_day,
@@ -812,6 +888,7 @@ WITH sqlgen_source AS (
   FROM visits AS v
   CROSS JOIN window_lengths AS w
 ), boundaries AS (
+  /* Each span as +1 where it starts and -1 where it ends. */
   SELECT
     span_window AS change_window,
     start_day AS change_day,
@@ -870,6 +947,7 @@ WITH sqlgen_source AS (
   WHERE
     lapse = 1
 ), changes AS (
+  /* The changes summed per window and day. */
   SELECT
     change_window AS change_window,
     change_day AS change_day,
@@ -882,11 +960,13 @@ WITH sqlgen_source AS (
     change_window,
     change_day
 ), data_range AS (
+  /* The first and last active day. */
   SELECT
     MIN(first_day) AS first_day,
     MAX(last_day) AS last_day
   FROM user_blocks
 ), digits AS (
+  /* The digits 0 to 9: cross joins of copies count 0, 1, 2, ... for a calendar. */
   SELECT
     0 AS n
   UNION ALL
@@ -917,6 +997,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
+  /* Every day from the first to the last. */
   SELECT
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 AS calendar_day
   FROM data_range AS r
@@ -928,6 +1009,7 @@ WITH sqlgen_source AS (
   WHERE
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 <= r.last_day
 ), running AS (
+  /* Running sums of the changes give each day''s counts per window. */
   SELECT
     c.calendar_day AS grid_day,
     w.window_length AS grid_window,
@@ -956,6 +1038,7 @@ WITH sqlgen_source AS (
   LEFT JOIN changes AS ch
     ON ch.change_window = w.window_length AND ch.change_day = c.calendar_day
 ), tallied AS (
+  /* retained = previous - churned: every user of the previous window is retained or churned. */
   SELECT
     grid_day AS grid_day,
     grid_window AS grid_window,
@@ -966,6 +1049,7 @@ WITH sqlgen_source AS (
     CAST(churned_count AS BIGINT) AS churned_tally
   FROM running
 )
+/* One row per day and window; resurrected = active - new - retained. */
 SELECT
   CAST(DATEADD(DAY, grid_day, CAST(''1970-01-05'' AS DATE)) AS DATE) AS day,
   grid_window AS window_days,
