@@ -34,7 +34,7 @@ def test_the_readme_spec_builds_with_dialect_all(tmp_path):
     assert [re.sub(r"^.*?growth\.yml:(\d+:\d+): ", r"\1 ", line).split(": ")[0:2]
             for line in lines[1:]] == [
         ["8:13 activity.timezone", "dialect 'sqlite' cannot generate activity.timezone"],
-        ["13:11 output.schema", "dialect 'sqlite' cannot generate output.schema"],
+        ["15:11 output.schema", "dialect 'sqlite' cannot generate output.schema"],
         ["3:10 activity.table", "dialect 'sqlite' cannot generate activity.table"],
         ["8:13 activity.timezone", "dialect 'tsql' cannot generate activity.timezone"]]
     built = sorted(p.name for p in out.iterdir())
