@@ -19,13 +19,13 @@ however often the view refers to it.
 
 {%- macro source_ctes() -%}
 sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT __user__ AS sqlgen_user, {{ p.near_value('__timestamp__', source.timestamp_type, 'activity') }} AS sqlgen_ts
   FROM __activity_table__
   WHERE __user__ IS NOT NULL AND __timestamp__ IS NOT NULL{% if source.where %} AND (__where__){% endif %}
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT sqlgen_user, {{ p.local_date('sqlgen_ts') }} AS sqlgen_date
   FROM sqlgen_source
 ), dated AS (

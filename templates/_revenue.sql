@@ -70,7 +70,7 @@ END
 {%- set dated_column = '__revenue_timestamp__' if revenue.shape == 'charges' else '__revenue_start__' -%}
 {%- set raw_type = 'DATE' if revenue.timestamp_type == 'date' else 'TIMESTAMP' -%}
 sqlgen_source AS (
-  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
+  /* Every row of the revenue table with the columns the views read, marked as kept by the filter of the spec. */
   SELECT
     __customer__ AS sqlgen_customer,
     {{ dated_column }} AS sqlgen_date_value,
@@ -84,7 +84,7 @@ sqlgen_source AS (
     {%- endif %}
   FROM __revenue_table__
 ), sqlgen_dated AS (
-  /* Each row's local calendar date(s), by the spec's time zone rule. */
+  /* The local calendar date(s) of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -99,7 +99,7 @@ sqlgen_source AS (
     {%- endif %}
   FROM sqlgen_source
 ), sqlgen_rows AS (
-  /* Each row's status: the first reason it is not counted, else counted. */
+  /* The status of each row: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -155,7 +155,7 @@ keyed AS (
   SELECT counted_customer AS keyed_customer, {{ p.period_key('counted_date') }} AS keyed_key, counted_amount AS keyed_amount
   FROM counted
 ), totals AS (
-  /* Each customer's total per period, rounded to the amount's scale. */
+  /* The total of each customer per period, rounded to the scale of the amount. */
   SELECT keyed_customer AS total_customer, keyed_key AS total_key, {{ money('SUM(keyed_amount)') }} AS total_amount
   FROM keyed
   GROUP BY keyed_customer, keyed_key
@@ -180,7 +180,7 @@ keyed AS (
     would add a window sort to the same join; the range join alone is simpler and no slower. -#}
 {%- macro run_rate_totals(p) -%}
 ranges AS (
-  /* Each subscription's periods in force at the period's end: from the period of its start
+  /* The periods in force of each subscription at the end of the period: from the period of its start
      to the period before the one holding its end (to the last period while it runs). */
   SELECT
     c.counted_customer AS range_customer,
@@ -209,7 +209,7 @@ ranges AS (
   CROSS JOIN {{ p.counting(grain.calendar_digits) }}
   WHERE d.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) <= d.last_key
 ), totals AS (
-  /* A customer's run rate in a period: the monthly amounts in force at its end. */
+  /* The run rate of a customer in a period: the monthly amounts in force at its end. */
   SELECT
     m.monthly_customer AS total_customer,
     e.end_key AS total_key,
@@ -230,7 +230,7 @@ ranges AS (
     integer arithmetic, rounded half away from zero, and the shares are summed. -#}
 {%- macro subscription_totals(p) -%}
 spans AS (
-  /* Each counted subscription in whole units of the amount's scale. */
+  /* Each counted subscription in whole units of the scale of the amount. */
   SELECT
     counted_customer AS span_customer,
     counted_date AS span_start,
@@ -239,7 +239,7 @@ spans AS (
     counted_months AS span_months
   FROM counted
 ), {{ p.digits_cte() }}, {{ segments(p) }}, pieces AS (
-  /* Each subscription's covered days in each segment, as an integer fraction of the segment. */
+  /* The covered days of each subscription in each segment, as an integer fraction of the segment. */
   SELECT
     s.span_customer AS piece_customer,
     g.segment_key AS piece_key,
@@ -263,7 +263,7 @@ spans AS (
       / (2 * piece_denominator) AS BIGINT) AS share_units
   FROM pieces
 ), totals AS (
-  /* Each customer's total per period: the sum of its shares. */
+  /* The total of each customer per period: the sum of its shares. */
   SELECT
     share_customer AS total_customer,
     share_key AS total_key,
@@ -285,7 +285,7 @@ months AS (
   CROSS JOIN {{ p.counting(grain.month_digits) }}
   WHERE d.first_key + {{ p.counting_value(grain.month_digits) }} <= d.last_key{% if grain.step > 1 %} + {{ grain.step - 1 }}{% endif %}
 ), month_edges AS (
-  /* Each month with its period key and its first and next month's first day. */
+  /* Each month with its period key and its first day and the first day of the next month. */
   SELECT
     {% if grain.step == 1 %}segment_month{% else %}segment_month - (segment_month % 12) % {{ grain.step }}{% endif %} AS edge_key,
     {{ month_start('segment_month') }} AS edge_start,

@@ -2,7 +2,7 @@
 {#- Each row falls in exactly one category, tried in this order, so the counts add up to
     source_rows. The valid range is tried after `where` and before the zone conversion. -#}
 WITH sqlgen_source AS (
-  /* Every row of the activity table, marked as kept or not by the spec's filter. */
+  /* Every row of the activity table, marked as kept or not by the filter of the spec. */
   SELECT
     __user__ AS sqlgen_user,
     __timestamp__ AS sqlgen_ts,
@@ -10,7 +10,7 @@ WITH sqlgen_source AS (
     CASE WHEN {% if source.where %}(__where__){% else %}TRUE{% endif %} THEN 1 ELSE 0 END AS sqlgen_kept
   FROM __activity_table__
 ), sqlgen_dated AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT sqlgen_user, sqlgen_ts, sqlgen_near_ts, sqlgen_kept, {{ p.local_date('sqlgen_near_ts') }} AS sqlgen_local_date
   FROM sqlgen_source
 ), sqlgen_sorted AS (

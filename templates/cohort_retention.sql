@@ -6,7 +6,7 @@
 {#- Cohort = a user's first active period; one row per cohort and age (periods since the
     cohort period) up to the last period with data, zero rows included: a full triangle. -#}
 WITH {{ a.active_periods() }}, marked AS (
-  /* Each active (user, period) with the user's cohort: the first active period. */
+  /* Each active (user, period) with the cohort of the user: the first active period. */
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
@@ -17,7 +17,7 @@ WITH {{ a.active_periods() }}, marked AS (
   FROM marked
   GROUP BY marked_cohort_key, marked_key
 ), cohort_sizes AS (
-  /* A cohort's size: its actives in the cohort period. */
+  /* The size of a cohort: its actives in the cohort period. */
   SELECT active_cohort_key AS size_key, active_count AS size_count
   FROM cohort_actives
   WHERE active_key = active_cohort_key

@@ -18,7 +18,7 @@ WITH {{ r.source_rows(p) }}, counted AS (
   FROM sqlgen_rows
   WHERE row_status = 'counted'
 ), {{ r.period_totals(p) }}, entries AS (
-  /* Each total as this period's revenue, and again as the next period's previous revenue. */
+  /* Each total as the revenue of this period, and again as the previous revenue of the next period. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -50,7 +50,7 @@ WITH {{ r.source_rows(p) }}, counted AS (
   FROM entries
   GROUP BY entry_customer, entry_key
 ), firsts AS (
-  /* Each customer's first period with revenue. */
+  /* The first period of each customer with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -83,7 +83,7 @@ WITH {{ r.source_rows(p) }}, counted AS (
     END AS revenue_state
   FROM firsts
 )
-/* Each change in exactly one component; previous = retained + contraction + churned. */
+/* Each change in exactly one component. previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,

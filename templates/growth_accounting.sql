@@ -7,14 +7,14 @@
     read once: the data range comes from the per-period tallies, not from a second read
     (engines that inline CTEs would group the events twice). -#}
 WITH {{ a.active_periods() }}, sequenced AS (
-  /* Each active (user, period) with the user's previous active period (NULL: the first). */
+  /* Each active (user, period) with the previous active period of the user (NULL: the first). */
   SELECT
     period_key,
     last_date,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
   FROM active_periods
 ), tallies AS (
-  /* Per period: actives; new (no earlier period), retained (the period before), resurrected (an earlier one). */
+  /* Per period: actives. new (no earlier period), retained (the period before), resurrected (an earlier one). */
   SELECT
     period_key AS tally_key,
     MAX(last_date) AS through_tally,
@@ -37,7 +37,7 @@ WITH {{ a.active_periods() }}, sequenced AS (
     {{ p.period_key("data_through + INTERVAL 1 DAY") }} AS after_data_key
   FROM data_range
 ), {{ p.digits_cte() }}, calendar AS (
-  /* Every period from the first to the last, by the grain's step, empty periods included. */
+  /* Every period from the first to the last, by the step of the grain, empty periods included. */
   SELECT e.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) AS calendar_key
   FROM data_edge AS e
   CROSS JOIN {{ p.counting(grain.calendar_digits) }}

@@ -80,7 +80,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
-/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
+/* One row per period. quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   {{ p.period_start('calendar_key') }} AS period_start,
   {{ r.money('revenue_amount') }} AS revenue,

@@ -6,7 +6,7 @@
     period total counts as no revenue). Net revenue retention is the cohort's revenue at
     this age over its revenue at age 0. -#}
 WITH marked AS (
-  /* Each customer_revenue row with the customer's cohort: the first period with revenue. */
+  /* Each customer_revenue row with the cohort of the customer: the first period with revenue. */
   SELECT
     period_key AS marked_key,
     revenue AS marked_revenue,
@@ -23,7 +23,7 @@ WITH marked AS (
   WHERE marked_key >= marked_cohort_key
   GROUP BY marked_cohort_key, marked_key
 ), cohort_sizes AS (
-  /* A cohort's size: its paying customers in the cohort period. */
+  /* The size of a cohort: its paying customers in the cohort period. */
   SELECT revenue_cohort_key AS size_key, paying_count AS size_count
   FROM cohort_revenue
   WHERE revenue_key = revenue_cohort_key

@@ -1,7 +1,7 @@
 {%- import '_periods.sql' as p with context -%}
 {%- import '_revenue.sql' as r with context -%}
 WITH {{ r.source_rows(p) }}
-/* Each source row falls in exactly one count; the counted rows' first and last dates. */
+/* Each source row falls in exactly one count. the first and last dates of the counted rows. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,

@@ -29,7 +29,7 @@ WITH {{ a.source_ctes() }}, numbered AS (
   FROM blocked
   GROUP BY day_user, block_number
 ), visits AS (
-  /* Each block with the user's previous block and next active day. */
+  /* Each block with the previous block of the user and next active day. */
   SELECT
     first_day,
     last_day,
@@ -105,7 +105,7 @@ WITH {{ a.source_ctes() }}, numbered AS (
   CROSS JOIN {{ p.counting(grain.day_digits) }}
   WHERE r.first_day + {{ p.counting_value(grain.day_digits) }} <= r.last_day
 ), running AS (
-  /* Running sums of the changes give each day's counts per window. */
+  /* Running sums of the changes give the counts of each day per window. */
   SELECT
     c.calendar_day AS grid_day,
     w.window_length AS grid_window,
@@ -129,7 +129,7 @@ WITH {{ a.source_ctes() }}, numbered AS (
     CAST(churned_count AS BIGINT) AS churned_tally
   FROM running
 )
-/* One row per day and window; resurrected = active - new - retained. */
+/* One row per day and window. resurrected = active - new - retained. */
 SELECT
   CAST(DATE '1970-01-05' + INTERVAL (grid_day) DAY AS DATE) AS day,
   grid_window AS window_days,

@@ -1,7 +1,7 @@
 {%- import '_periods.sql' as p with context -%}
 {%- import '_activity.sql' as a with context -%}
 WITH {{ a.active_periods() }}, sequenced AS (
-  /* Each active (user, period) with the user's previous and next active periods. */
+  /* Each active (user, period) with the previous and next active periods of the user. */
   SELECT
     user_id,
     period_key,
@@ -19,7 +19,7 @@ WITH {{ a.active_periods() }}, sequenced AS (
   WHERE (s.later_key IS NULL OR s.later_key <> s.period_key + {{ grain.step }})
     AND s.period_key + {{ grain.step }} <= r.last_key
 )
-/* Active periods are new, retained or resurrected by the previous active period; then the churned ones. */
+/* Active periods are new, retained or resurrected by the previous active period. then the churned ones. */
 SELECT
   user_id,
   period_key,

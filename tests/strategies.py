@@ -81,6 +81,9 @@ SENTINELS = (
 # ClickHouse's Date holds 1970-01-01 .. 2149-06-06 (its manual, from memory): date-typed
 # sentinels outside it cannot even be loaded there.
 CLICKHOUSE_DATES = (date(1970, 1, 1), date(2149, 6, 6))
+# MySQL's and MariaDB's TIMESTAMP holds 1970-01-01 00:00:01 .. 2038-01-19 03:14:07 UTC (their
+# manuals, from memory; the server refuses 0001-01-01 with error 1292, seen in the tests).
+MYSQL_INSTANTS = (datetime(1970, 1, 1, 0, 0, 1), datetime(2038, 1, 19, 3, 14, 7))
 
 _TIMES = st.one_of(st.just(time(0, 0)), st.just(time(23, 59, 59, 999999)), st.times())
 
@@ -156,7 +159,11 @@ def sentinel_values(kind="timestamp", engine=None):
             days = [d for d in days if CLICKHOUSE_DATES[0] <= d <= CLICKHOUSE_DATES[1]]
         return days
     if kind == "timestamptz":
-        return [ts.replace(tzinfo=UTC) for ts in SENTINELS]
+        instants = [ts.replace(tzinfo=UTC) for ts in SENTINELS]
+        if engine == "mysql":  # a TIMESTAMP column (MySQL's instant type) holds no others
+            instants = [ts for ts in instants
+                        if MYSQL_INSTANTS[0] <= ts.replace(tzinfo=None) <= MYSQL_INSTANTS[1]]
+        return instants
     return list(SENTINELS)
 
 

@@ -109,3 +109,6 @@ def test_comments_are_fixed_text_not_spec_text():
     for view in compile_spec(parse_spec(spec, "t.yml"), "duckdb"):
         for comment in re.findall(r"/\*(.*?)\*/", view.statements[-1], re.DOTALL):
             assert "secret_word" not in comment and "app_events" not in comment
+            # no quote and no semicolon: a client that splits a file on semicolons (outside
+            # quotes) must never cut a statement inside a comment (seen on ClickHouse, Spark)
+            assert not set("'\"`;") & set(comment), comment

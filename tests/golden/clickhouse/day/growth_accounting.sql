@@ -13,8 +13,8 @@ DROP VIEW IF EXISTS "growth".growth_accounting;
 
 CREATE VIEW "growth".growth_accounting AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -30,7 +30,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS Nullable(DATE)) AS sqlgen_date
@@ -62,14 +62,14 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
-  /* Each active (user, period) with the user's previous active period (NULL: the first). */
+  /* Each active (user, period) with the previous active period of the user (NULL: the first). */
   SELECT
     period_key,
     last_date,
     lag(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
   FROM active_periods
 ), tallies AS (
-  /* Per period: actives; new (no earlier period), retained (the period before), resurrected (an earlier one). */
+  /* Per period: actives. new (no earlier period), retained (the period before), resurrected (an earlier one). */
   SELECT
     period_key AS tally_key,
     MAX(last_date) AS through_tally,
@@ -127,7 +127,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
-  /* Every period from the first to the last, by the grain's step, empty periods included. */
+  /* Every period from the first to the last, by the step of the grain, empty periods included. */
   SELECT
     e.first_key + 1 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000

@@ -13,7 +13,7 @@ DROP VIEW IF EXISTS "growth".activity_source_summary;
 
 CREATE VIEW "growth".activity_source_summary AS
 WITH sqlgen_source AS (
-  /* Every row of the activity table, marked as kept or not by the spec's filter. */
+  /* Every row of the activity table, marked as kept or not by the filter of the spec. */
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts,
@@ -27,7 +27,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM "raw"."app_events"
 ), sqlgen_dated AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     sqlgen_ts,

@@ -145,7 +145,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
-/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
+/* One row per period. quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   CAST(DATE_ADD(MONTH, calendar_key - 23640, CAST('1970-01-01' AS Nullable(DATE))) AS Nullable(DATE)) AS period_start,
   ROUND(revenue_amount, 2) AS revenue,

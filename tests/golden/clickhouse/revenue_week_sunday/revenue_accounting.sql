@@ -146,7 +146,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
-/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
+/* One row per period. quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   CAST(DATE_ADD(DAY, calendar_key, CAST('1970-01-05' AS Nullable(DATE))) AS Nullable(DATE)) AS period_start,
   ROUND(revenue_amount, 2) AS revenue,

@@ -12,8 +12,8 @@
 
 CREATE OR REPLACE VIEW `growth`.user_activity AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     `user_id` AS sqlgen_user,
     CASE
@@ -29,7 +29,7 @@ WITH sqlgen_source AS (
       `event_name` <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date

@@ -12,7 +12,7 @@
 
 CREATE OR REPLACE VIEW "finance".customer_revenue AS
 WITH sqlgen_source AS (
-  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
+  /* Every row of the revenue table with the columns the views read, marked as kept by the filter of the spec. */
   SELECT
     "account_id" AS sqlgen_customer,
     "invoiced_at" AS sqlgen_date_value,
@@ -27,7 +27,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM "billing"."invoice_lines"
 ), sqlgen_dated AS (
-  /* Each row's local calendar date(s), by the spec's time zone rule. */
+  /* The local calendar date(s) of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -37,7 +37,7 @@ WITH sqlgen_source AS (
     CAST(sqlgen_date_near AS DATE) AS row_date
   FROM sqlgen_source
 ), sqlgen_rows AS (
-  /* Each row's status: the first reason it is not counted, else counted. */
+  /* The status of each row: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -97,7 +97,7 @@ WITH sqlgen_source AS (
     counted_amount AS keyed_amount
   FROM counted
 ), totals AS (
-  /* Each customer's total per period, rounded to the amount's scale. */
+  /* The total of each customer per period, rounded to the scale of the amount. */
   SELECT
     keyed_customer AS total_customer,
     keyed_key AS total_key,
@@ -107,7 +107,7 @@ WITH sqlgen_source AS (
     keyed_customer,
     keyed_key
 ), entries AS (
-  /* Each total as this period's revenue, and again as the next period's previous revenue. */
+  /* Each total as the revenue of this period, and again as the previous revenue of the next period. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -142,7 +142,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
-  /* Each customer's first period with revenue. */
+  /* The first period of each customer with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -180,7 +180,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
-/* Each change in exactly one component; previous = retained + contraction + churned. */
+/* Each change in exactly one component. previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,

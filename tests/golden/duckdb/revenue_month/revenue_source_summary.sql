@@ -11,7 +11,7 @@
 
 CREATE OR REPLACE VIEW "finance".revenue_source_summary AS
 WITH sqlgen_source AS (
-  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
+  /* Every row of the revenue table with the columns the views read, marked as kept by the filter of the spec. */
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
@@ -46,7 +46,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "billing"."subscriptions"
 ), sqlgen_dated AS (
-  /* Each row's local calendar date(s), by the spec's time zone rule. */
+  /* The local calendar date(s) of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -59,7 +59,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
-  /* Each row's status: the first reason it is not counted, else counted. */
+  /* The status of each row: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -93,7 +93,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
-/* Each source row falls in exactly one count; the counted rows' first and last dates. */
+/* Each source row falls in exactly one count. the first and last dates of the counted rows. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,

@@ -133,7 +133,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
-/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
+/* One row per period. quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   CAST(DATE_ADD(CAST('1970-01-05' AS DATE), INTERVAL calendar_key DAY) AS DATE) AS period_start,
   ROUND(revenue_amount, 2) AS revenue,

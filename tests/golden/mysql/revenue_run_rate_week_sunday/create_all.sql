@@ -15,7 +15,7 @@ CREATE SCHEMA IF NOT EXISTS `finance`;
 -- revenue_source_summary
 CREATE OR REPLACE VIEW `finance`.revenue_source_summary AS
 WITH sqlgen_source AS (
-  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
+  /* Every row of the revenue table with the columns the views read, marked as kept by the filter of the spec. */
   SELECT
     `account_id` AS sqlgen_customer,
     `started_at` AS sqlgen_date_value,
@@ -50,7 +50,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM `billing`.`subscriptions`
 ), sqlgen_dated AS (
-  /* Each row's local calendar date(s), by the spec's time zone rule. */
+  /* The local calendar date(s) of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -63,7 +63,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
-  /* Each row's status: the first reason it is not counted, else counted. */
+  /* The status of each row: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -97,7 +97,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
-/* Each source row falls in exactly one count; the counted rows' first and last dates. */
+/* Each source row falls in exactly one count. the first and last dates of the counted rows. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,
@@ -135,7 +135,7 @@ FROM sqlgen_rows;
 -- customer_revenue
 CREATE OR REPLACE VIEW `finance`.customer_revenue AS
 WITH sqlgen_source AS (
-  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
+  /* Every row of the revenue table with the columns the views read, marked as kept by the filter of the spec. */
   SELECT
     `account_id` AS sqlgen_customer,
     `started_at` AS sqlgen_date_value,
@@ -170,7 +170,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM `billing`.`subscriptions`
 ), sqlgen_dated AS (
-  /* Each row's local calendar date(s), by the spec's time zone rule. */
+  /* The local calendar date(s) of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -183,7 +183,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
-  /* Each row's status: the first reason it is not counted, else counted. */
+  /* The status of each row: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -248,7 +248,7 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), ranges AS (
-  /* Each subscription's periods in force at the period's end: from the period of its start
+  /* The periods in force of each subscription at the end of the period: from the period of its start
      to the period before the one holding its end (to the last period while it runs). */
   SELECT
     c.counted_customer AS range_customer,
@@ -338,7 +338,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= d.last_key
 ), totals AS (
-  /* A customer's run rate in a period: the monthly amounts in force at its end. */
+  /* The run rate of a customer in a period: the monthly amounts in force at its end. */
   SELECT
     m.monthly_customer AS total_customer,
     e.end_key AS total_key,
@@ -351,7 +351,7 @@ WITH sqlgen_source AS (
     m.monthly_customer,
     e.end_key
 ), entries AS (
-  /* Each total as this period's revenue, and again as the next period's previous revenue. */
+  /* Each total as the revenue of this period, and again as the previous revenue of the next period. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -386,7 +386,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
-  /* Each customer's first period with revenue. */
+  /* The first period of each customer with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -424,7 +424,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
-/* Each change in exactly one component; previous = retained + contraction + churned. */
+/* Each change in exactly one component. previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,
@@ -599,7 +599,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
-/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
+/* One row per period. quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   CAST(DATE_ADD(CAST('1970-01-05' AS DATE), INTERVAL calendar_key DAY) AS DATE) AS period_start,
   ROUND(revenue_amount, 2) AS revenue,
@@ -632,7 +632,7 @@ FROM filled;
 -- revenue_cohorts
 CREATE OR REPLACE VIEW `finance`.revenue_cohorts AS
 WITH marked AS (
-  /* Each customer_revenue row with the customer's cohort: the first period with revenue. */
+  /* Each customer_revenue row with the cohort of the customer: the first period with revenue. */
   SELECT
     period_key AS marked_key,
     revenue AS marked_revenue,
@@ -652,7 +652,7 @@ WITH marked AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
-  /* A cohort's size: its paying customers in the cohort period. */
+  /* The size of a cohort: its paying customers in the cohort period. */
   SELECT
     revenue_cohort_key AS size_key,
     paying_count AS size_count

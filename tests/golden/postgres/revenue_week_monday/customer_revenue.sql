@@ -13,7 +13,7 @@
 
 CREATE OR REPLACE VIEW "finance".customer_revenue AS
 WITH sqlgen_source AS (
-  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
+  /* Every row of the revenue table with the columns the views read, marked as kept by the filter of the spec. */
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
@@ -48,7 +48,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "billing"."subscriptions"
 ), sqlgen_dated AS (
-  /* Each row's local calendar date(s), by the spec's time zone rule. */
+  /* The local calendar date(s) of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -61,7 +61,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
-  /* Each row's status: the first reason it is not counted, else counted. */
+  /* The status of each row: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -134,7 +134,7 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), spans AS (
-  /* Each counted subscription in whole units of the amount's scale. */
+  /* Each counted subscription in whole units of the scale of the amount. */
   SELECT
     counted_customer AS span_customer,
     counted_date AS span_start,
@@ -203,7 +203,7 @@ WITH sqlgen_source AS (
     365 AS segment_days
   FROM periods
 ), pieces AS (
-  /* Each subscription's covered days in each segment, as an integer fraction of the segment. */
+  /* The covered days of each subscription in each segment, as an integer fraction of the segment. */
   SELECT
     s.span_customer AS piece_customer,
     g.segment_key AS piece_key,
@@ -241,7 +241,7 @@ WITH sqlgen_source AS (
     ) AS BIGINT) AS share_units
   FROM pieces
 ), totals AS (
-  /* Each customer's total per period: the sum of its shares. */
+  /* The total of each customer per period: the sum of its shares. */
   SELECT
     share_customer AS total_customer,
     share_key AS total_key,
@@ -251,7 +251,7 @@ WITH sqlgen_source AS (
     share_customer,
     share_key
 ), entries AS (
-  /* Each total as this period's revenue, and again as the next period's previous revenue. */
+  /* Each total as the revenue of this period, and again as the previous revenue of the next period. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -286,7 +286,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
-  /* Each customer's first period with revenue. */
+  /* The first period of each customer with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -324,7 +324,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
-/* Each change in exactly one component; previous = retained + contraction + churned. */
+/* Each change in exactly one component. previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,

@@ -13,8 +13,8 @@
 
 CREATE OR REPLACE VIEW "growth".user_states AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -30,7 +30,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
@@ -66,7 +66,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
-  /* Each active (user, period) with the user's previous and next active periods. */
+  /* Each active (user, period) with the previous and next active periods of the user. */
   SELECT
     user_id,
     period_key,
@@ -91,7 +91,7 @@ WITH sqlgen_source AS (
     )
     AND s.period_key + 3 <= r.last_key
 )
-/* Active periods are new, retained or resurrected by the previous active period; then the churned ones. */
+/* Active periods are new, retained or resurrected by the previous active period. then the churned ones. */
 SELECT
   user_id,
   period_key,

@@ -12,8 +12,8 @@
 
 CREATE OR REPLACE VIEW "growth".trailing_activity AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -29,7 +29,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
@@ -70,7 +70,7 @@ WITH sqlgen_source AS (
     day_user,
     block_number
 ), visits AS (
-  /* Each block with the user's previous block and next active day. */
+  /* Each block with the previous block of the user and next active day. */
   SELECT
     first_day,
     last_day,
@@ -230,7 +230,7 @@ WITH sqlgen_source AS (
   WHERE
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 <= r.last_day
 ), running AS (
-  /* Running sums of the changes give each day's counts per window. */
+  /* Running sums of the changes give the counts of each day per window. */
   SELECT
     c.calendar_day AS grid_day,
     w.window_length AS grid_window,
@@ -270,7 +270,7 @@ WITH sqlgen_source AS (
     CAST(churned_count AS BIGINT) AS churned_tally
   FROM running
 )
-/* One row per day and window; resurrected = active - new - retained. */
+/* One row per day and window. resurrected = active - new - retained. */
 SELECT
   CAST(DATEADD(DAY, grid_day, CAST('1970-01-05' AS DATE)) AS DATE) AS day,
   grid_window AS window_days,

@@ -12,7 +12,7 @@
 
 CREATE OR REPLACE VIEW "finance".customer_revenue AS
 WITH sqlgen_source AS (
-  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
+  /* Every row of the revenue table with the columns the views read, marked as kept by the filter of the spec. */
   SELECT
     "ACCOUNT_ID" AS sqlgen_customer,
     "STARTED_AT" AS sqlgen_date_value,
@@ -47,7 +47,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "BILLING"."SUBSCRIPTIONS"
 ), sqlgen_dated AS (
-  /* Each row's local calendar date(s), by the spec's time zone rule. */
+  /* The local calendar date(s) of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -60,7 +60,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
-  /* Each row's status: the first reason it is not counted, else counted. */
+  /* The status of each row: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -125,7 +125,7 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), ranges AS (
-  /* Each subscription's periods in force at the period's end: from the period of its start
+  /* The periods in force of each subscription at the end of the period: from the period of its start
      to the period before the one holding its end (to the last period while it runs). */
   SELECT
     c.counted_customer AS range_customer,
@@ -215,7 +215,7 @@ WITH sqlgen_source AS (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000
     ) <= d.last_key
 ), totals AS (
-  /* A customer's run rate in a period: the monthly amounts in force at its end. */
+  /* The run rate of a customer in a period: the monthly amounts in force at its end. */
   SELECT
     m.monthly_customer AS total_customer,
     e.end_key AS total_key,
@@ -228,7 +228,7 @@ WITH sqlgen_source AS (
     m.monthly_customer,
     e.end_key
 ), entries AS (
-  /* Each total as this period's revenue, and again as the next period's previous revenue. */
+  /* Each total as the revenue of this period, and again as the previous revenue of the next period. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -263,7 +263,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
-  /* Each customer's first period with revenue. */
+  /* The first period of each customer with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -301,7 +301,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
-/* Each change in exactly one component; previous = retained + contraction + churned. */
+/* Each change in exactly one component. previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,

@@ -11,7 +11,7 @@
 
 CREATE OR REPLACE VIEW `finance`.revenue_cohorts AS
 WITH marked AS (
-  /* Each customer_revenue row with the customer's cohort: the first period with revenue. */
+  /* Each customer_revenue row with the cohort of the customer: the first period with revenue. */
   SELECT
     period_key AS marked_key,
     revenue AS marked_revenue,
@@ -31,7 +31,7 @@ WITH marked AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
-  /* A cohort's size: its paying customers in the cohort period. */
+  /* The size of a cohort: its paying customers in the cohort period. */
   SELECT
     revenue_cohort_key AS size_key,
     paying_count AS size_count

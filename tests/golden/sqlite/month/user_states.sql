@@ -14,8 +14,8 @@ DROP VIEW IF EXISTS user_states;
 
 CREATE VIEW user_states AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -31,7 +31,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     DATE(sqlgen_ts) AS sqlgen_date
@@ -64,7 +64,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
-  /* Each active (user, period) with the user's previous and next active periods. */
+  /* Each active (user, period) with the previous and next active periods of the user. */
   SELECT
     user_id,
     period_key,
@@ -89,7 +89,7 @@ WITH sqlgen_source AS (
     )
     AND s.period_key + 1 <= r.last_key
 )
-/* Active periods are new, retained or resurrected by the previous active period; then the churned ones. */
+/* Active periods are new, retained or resurrected by the previous active period. then the churned ones. */
 SELECT
   user_id,
   period_key,

@@ -13,7 +13,7 @@ DROP VIEW IF EXISTS revenue_cohorts;
 
 CREATE VIEW revenue_cohorts AS
 WITH marked AS (
-  /* Each customer_revenue row with the customer's cohort: the first period with revenue. */
+  /* Each customer_revenue row with the cohort of the customer: the first period with revenue. */
   SELECT
     period_key AS marked_key,
     revenue AS marked_revenue,
@@ -33,7 +33,7 @@ WITH marked AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
-  /* A cohort's size: its paying customers in the cohort period. */
+  /* The size of a cohort: its paying customers in the cohort period. */
   SELECT
     revenue_cohort_key AS size_key,
     paying_count AS size_count

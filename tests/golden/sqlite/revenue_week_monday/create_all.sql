@@ -17,7 +17,7 @@ DROP VIEW IF EXISTS revenue_source_summary;
 
 CREATE VIEW revenue_source_summary AS
 WITH sqlgen_source AS (
-  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
+  /* Every row of the revenue table with the columns the views read, marked as kept by the filter of the spec. */
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
@@ -52,7 +52,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "subscriptions"
 ), sqlgen_dated AS (
-  /* Each row's local calendar date(s), by the spec's time zone rule. */
+  /* The local calendar date(s) of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -65,7 +65,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
-  /* Each row's status: the first reason it is not counted, else counted. */
+  /* The status of each row: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -99,7 +99,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
-/* Each source row falls in exactly one count; the counted rows' first and last dates. */
+/* Each source row falls in exactly one count. the first and last dates of the counted rows. */
 SELECT
   COUNT(*) AS source_rows,
   COUNT(CASE WHEN row_status = 'null_customer' THEN 1 END) AS null_customer_rows,
@@ -123,7 +123,7 @@ DROP VIEW IF EXISTS customer_revenue;
 
 CREATE VIEW customer_revenue AS
 WITH sqlgen_source AS (
-  /* Every row of the revenue table with the columns the views read, marked as kept by the spec's filter. */
+  /* Every row of the revenue table with the columns the views read, marked as kept by the filter of the spec. */
   SELECT
     "account_id" AS sqlgen_customer,
     "started_at" AS sqlgen_date_value,
@@ -158,7 +158,7 @@ WITH sqlgen_source AS (
     END AS sqlgen_months
   FROM "subscriptions"
 ), sqlgen_dated AS (
-  /* Each row's local calendar date(s), by the spec's time zone rule. */
+  /* The local calendar date(s) of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -171,7 +171,7 @@ WITH sqlgen_source AS (
     sqlgen_months AS row_months
   FROM sqlgen_source
 ), sqlgen_rows AS (
-  /* Each row's status: the first reason it is not counted, else counted. */
+  /* The status of each row: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer,
     sqlgen_amount,
@@ -236,7 +236,7 @@ WITH sqlgen_source AS (
     ) AS last_key
   FROM bounds
 ), spans AS (
-  /* Each counted subscription in whole units of the amount's scale. */
+  /* Each counted subscription in whole units of the scale of the amount. */
   SELECT
     counted_customer AS span_customer,
     counted_date AS span_start,
@@ -303,7 +303,7 @@ WITH sqlgen_source AS (
     365 AS segment_days
   FROM periods
 ), pieces AS (
-  /* Each subscription's covered days in each segment, as an integer fraction of the segment. */
+  /* The covered days of each subscription in each segment, as an integer fraction of the segment. */
   SELECT
     s.span_customer AS piece_customer,
     g.segment_key AS piece_key,
@@ -339,7 +339,7 @@ WITH sqlgen_source AS (
     ) AS INTEGER) AS share_units
   FROM pieces
 ), totals AS (
-  /* Each customer's total per period: the sum of its shares. */
+  /* The total of each customer per period: the sum of its shares. */
   SELECT
     share_customer AS total_customer,
     share_key AS total_key,
@@ -349,7 +349,7 @@ WITH sqlgen_source AS (
     share_customer,
     share_key
 ), entries AS (
-  /* Each total as this period's revenue, and again as the next period's previous revenue. */
+  /* Each total as the revenue of this period, and again as the previous revenue of the next period. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -384,7 +384,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
-  /* Each customer's first period with revenue. */
+  /* The first period of each customer with revenue. */
   SELECT
     customer_key,
     revenue_key,
@@ -422,7 +422,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
-/* Each change in exactly one component; previous = retained + contraction + churned. */
+/* Each change in exactly one component. previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,
@@ -601,7 +601,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
-/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
+/* One row per period. quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   DATE(DATE(DATE('1970-01-05'), (
     calendar_key
@@ -638,7 +638,7 @@ DROP VIEW IF EXISTS revenue_cohorts;
 
 CREATE VIEW revenue_cohorts AS
 WITH marked AS (
-  /* Each customer_revenue row with the customer's cohort: the first period with revenue. */
+  /* Each customer_revenue row with the cohort of the customer: the first period with revenue. */
   SELECT
     period_key AS marked_key,
     revenue AS marked_revenue,
@@ -658,7 +658,7 @@ WITH marked AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
-  /* A cohort's size: its paying customers in the cohort period. */
+  /* The size of a cohort: its paying customers in the cohort period. */
   SELECT
     revenue_cohort_key AS size_key,
     paying_count AS size_count

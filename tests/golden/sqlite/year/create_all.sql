@@ -17,7 +17,7 @@ DROP VIEW IF EXISTS activity_source_summary;
 
 CREATE VIEW activity_source_summary AS
 WITH sqlgen_source AS (
-  /* Every row of the activity table, marked as kept or not by the spec's filter. */
+  /* Every row of the activity table, marked as kept or not by the filter of the spec. */
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts,
@@ -31,7 +31,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM "app_events"
 ), sqlgen_dated AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     sqlgen_ts,
@@ -76,8 +76,8 @@ DROP VIEW IF EXISTS user_activity;
 
 CREATE VIEW user_activity AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -93,7 +93,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     DATE(sqlgen_ts) AS sqlgen_date
@@ -149,8 +149,8 @@ DROP VIEW IF EXISTS user_states;
 
 CREATE VIEW user_states AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -166,7 +166,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     DATE(sqlgen_ts) AS sqlgen_date
@@ -201,7 +201,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
-  /* Each active (user, period) with the user's previous and next active periods. */
+  /* Each active (user, period) with the previous and next active periods of the user. */
   SELECT
     user_id,
     period_key,
@@ -226,7 +226,7 @@ WITH sqlgen_source AS (
     )
     AND s.period_key + 12 <= r.last_key
 )
-/* Active periods are new, retained or resurrected by the previous active period; then the churned ones. */
+/* Active periods are new, retained or resurrected by the previous active period. then the churned ones. */
 SELECT
   user_id,
   period_key,
@@ -256,8 +256,8 @@ DROP VIEW IF EXISTS growth_accounting;
 
 CREATE VIEW growth_accounting AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -273,7 +273,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     DATE(sqlgen_ts) AS sqlgen_date
@@ -308,14 +308,14 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
-  /* Each active (user, period) with the user's previous active period (NULL: the first). */
+  /* Each active (user, period) with the previous active period of the user (NULL: the first). */
   SELECT
     period_key,
     last_date,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key NULLS LAST) AS prior_key
   FROM active_periods
 ), tallies AS (
-  /* Per period: actives; new (no earlier period), retained (the period before), resurrected (an earlier one). */
+  /* Per period: actives. new (no earlier period), retained (the period before), resurrected (an earlier one). */
   SELECT
     period_key AS tally_key,
     MAX(last_date) AS through_tally,
@@ -377,7 +377,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
-  /* Every period from the first to the last, by the grain's step, empty periods included. */
+  /* Every period from the first to the last, by the step of the grain, empty periods included. */
   SELECT
     e.first_key + 12 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100
@@ -455,8 +455,8 @@ DROP VIEW IF EXISTS cohort_retention;
 
 CREATE VIEW cohort_retention AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -472,7 +472,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     DATE(sqlgen_ts) AS sqlgen_date
@@ -507,7 +507,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), marked AS (
-  /* Each active (user, period) with the user's cohort: the first active period. */
+  /* Each active (user, period) with the cohort of the user: the first active period. */
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
@@ -523,7 +523,7 @@ WITH sqlgen_source AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
-  /* A cohort's size: its actives in the cohort period. */
+  /* The size of a cohort: its actives in the cohort period. */
   SELECT
     active_cohort_key AS size_key,
     active_count AS size_count
@@ -615,8 +615,8 @@ DROP VIEW IF EXISTS engagement_depth;
 
 CREATE VIEW engagement_depth AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -632,7 +632,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     DATE(sqlgen_ts) AS sqlgen_date
@@ -808,8 +808,8 @@ DROP VIEW IF EXISTS trailing_activity;
 
 CREATE VIEW trailing_activity AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -825,7 +825,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     DATE(sqlgen_ts) AS sqlgen_date
@@ -865,7 +865,7 @@ WITH sqlgen_source AS (
     day_user,
     block_number
 ), visits AS (
-  /* Each block with the user's previous block and next active day. */
+  /* Each block with the previous block of the user and next active day. */
   SELECT
     first_day,
     last_day,
@@ -1025,7 +1025,7 @@ WITH sqlgen_source AS (
   WHERE
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 <= r.last_day
 ), running AS (
-  /* Running sums of the changes give each day's counts per window. */
+  /* Running sums of the changes give the counts of each day per window. */
   SELECT
     c.calendar_day AS grid_day,
     w.window_length AS grid_window,
@@ -1065,7 +1065,7 @@ WITH sqlgen_source AS (
     CAST(churned_count AS INTEGER) AS churned_tally
   FROM running
 )
-/* One row per day and window; resurrected = active - new - retained. */
+/* One row per day and window. resurrected = active - new - retained. */
 SELECT
   DATE(DATE(DATE('1970-01-05'), (
     grid_day

@@ -15,7 +15,7 @@ CREATE SCHEMA IF NOT EXISTS "growth";
 -- activity_source_summary
 CREATE OR REPLACE VIEW "growth".activity_source_summary AS
 WITH sqlgen_source AS (
-  /* Every row of the activity table, marked as kept or not by the spec's filter. */
+  /* Every row of the activity table, marked as kept or not by the filter of the spec. */
   SELECT
     "user_id" AS sqlgen_user,
     "occurred_at" AS sqlgen_ts,
@@ -29,7 +29,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM "raw"."app_events"
 ), sqlgen_dated AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     sqlgen_ts,
@@ -72,8 +72,8 @@ FROM sqlgen_sorted;
 -- user_activity
 CREATE OR REPLACE VIEW "growth".user_activity AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -89,7 +89,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
@@ -142,8 +142,8 @@ FROM user_periods;
 -- user_states
 CREATE OR REPLACE VIEW "growth".user_states AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -159,7 +159,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
@@ -195,7 +195,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
-  /* Each active (user, period) with the user's previous and next active periods. */
+  /* Each active (user, period) with the previous and next active periods of the user. */
   SELECT
     user_id,
     period_key,
@@ -220,7 +220,7 @@ WITH sqlgen_source AS (
     )
     AND s.period_key + 1 <= r.last_key
 )
-/* Active periods are new, retained or resurrected by the previous active period; then the churned ones. */
+/* Active periods are new, retained or resurrected by the previous active period. then the churned ones. */
 SELECT
   user_id,
   period_key,
@@ -244,8 +244,8 @@ FROM lapsed;
 -- growth_accounting
 CREATE OR REPLACE VIEW "growth".growth_accounting AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -261,7 +261,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
@@ -297,14 +297,14 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), sequenced AS (
-  /* Each active (user, period) with the user's previous active period (NULL: the first). */
+  /* Each active (user, period) with the previous active period of the user (NULL: the first). */
   SELECT
     period_key,
     last_date,
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
   FROM active_periods
 ), tallies AS (
-  /* Per period: actives; new (no earlier period), retained (the period before), resurrected (an earlier one). */
+  /* Per period: actives. new (no earlier period), retained (the period before), resurrected (an earlier one). */
   SELECT
     period_key AS tally_key,
     MAX(last_date) AS through_tally,
@@ -366,7 +366,7 @@ WITH sqlgen_source AS (
   SELECT
     9
 ), calendar AS (
-  /* Every period from the first to the last, by the grain's step, empty periods included. */
+  /* Every period from the first to the last, by the step of the grain, empty periods included. */
   SELECT
     e.first_key + 1 * (
       digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000
@@ -442,8 +442,8 @@ FROM balanced;
 -- cohort_retention
 CREATE OR REPLACE VIEW "growth".cohort_retention AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -459,7 +459,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
@@ -495,7 +495,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), marked AS (
-  /* Each active (user, period) with the user's cohort: the first active period. */
+  /* Each active (user, period) with the cohort of the user: the first active period. */
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
@@ -511,7 +511,7 @@ WITH sqlgen_source AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
-  /* A cohort's size: its actives in the cohort period. */
+  /* The size of a cohort: its actives in the cohort period. */
   SELECT
     active_cohort_key AS size_key,
     active_count AS size_count
@@ -599,8 +599,8 @@ LEFT JOIN cohort_actives AS c
 -- engagement_depth
 CREATE OR REPLACE VIEW "growth".engagement_depth AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -616,7 +616,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
@@ -776,8 +776,8 @@ LEFT JOIN period_totals AS t
 -- trailing_activity
 CREATE OR REPLACE VIEW "growth".trailing_activity AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     "user_id" AS sqlgen_user,
     CASE
@@ -793,7 +793,7 @@ WITH sqlgen_source AS (
       "event_name" <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
@@ -838,7 +838,7 @@ WITH sqlgen_source AS (
     day_user,
     block_number
 ), visits AS (
-  /* Each block with the user's previous block and next active day. */
+  /* Each block with the previous block of the user and next active day. */
   SELECT
     first_day,
     last_day,
@@ -998,7 +998,7 @@ WITH sqlgen_source AS (
   WHERE
     r.first_day + digit_0.n + digit_1.n * 10 + digit_2.n * 100 + digit_3.n * 1000 + digit_4.n * 10000 <= r.last_day
 ), running AS (
-  /* Running sums of the changes give each day's counts per window. */
+  /* Running sums of the changes give the counts of each day per window. */
   SELECT
     c.calendar_day AS grid_day,
     w.window_length AS grid_window,
@@ -1038,7 +1038,7 @@ WITH sqlgen_source AS (
     CAST(churned_count AS BIGINT) AS churned_tally
   FROM running
 )
-/* One row per day and window; resurrected = active - new - retained. */
+/* One row per day and window. resurrected = active - new - retained. */
 SELECT
   CAST(DATE_ADD('DAY', CAST(grid_day AS BIGINT), CAST('1970-01-05' AS DATE)) AS DATE) AS day,
   grid_window AS window_days,

@@ -137,7 +137,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
-/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
+/* One row per period. quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   CAST(DATE_ADD('DAY', CAST(calendar_key AS BIGINT), CAST('1970-01-05' AS DATE)) AS DATE) AS period_start,
   ROUND(revenue_amount, 2) AS revenue,

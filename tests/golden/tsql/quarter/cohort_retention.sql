@@ -11,8 +11,8 @@
 
 CREATE OR ALTER VIEW [growth].cohort_retention AS
 WITH sqlgen_source AS (
-  /* The activity rows that count: a user and a timestamp, and kept by the spec's filter;
-     a timestamp far outside the valid range becomes NULL before any zone conversion. */
+  /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
+     A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT
     [user_id] AS sqlgen_user,
     CASE
@@ -28,7 +28,7 @@ WITH sqlgen_source AS (
       [event_name] <> 'push_received'
     )
 ), sqlgen_local AS (
-  /* Each row's local calendar date, by the spec's time zone rule. */
+  /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_user AS sqlgen_user,
     CAST(sqlgen_ts AS DATE) AS sqlgen_date
@@ -64,7 +64,7 @@ WITH sqlgen_source AS (
     user_id,
     period_key
 ), marked AS (
-  /* Each active (user, period) with the user's cohort: the first active period. */
+  /* Each active (user, period) with the cohort of the user: the first active period. */
   SELECT
     period_key AS marked_key,
     MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
@@ -80,7 +80,7 @@ WITH sqlgen_source AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
-  /* A cohort's size: its actives in the cohort period. */
+  /* The size of a cohort: its actives in the cohort period. */
   SELECT
     active_cohort_key AS size_key,
     active_count AS size_count

@@ -19,7 +19,7 @@ IF NOT EXISTS (SELECT * FROM INFORMATION_SCHEMA.SCHEMATA WHERE SCHEMA_NAME = 'fi
 -- revenue_source_summary
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].revenue_source_summary AS
 WITH sqlgen_source AS (
-  /* Every row of the revenue table with the columns the views read, marked as kept by the spec''s filter. */
+  /* Every row of the revenue table with the columns the views read, marked as kept by the filter of the spec. */
   SELECT
     [account_id] AS sqlgen_customer,
     [invoiced_at] AS sqlgen_date_value,
@@ -34,7 +34,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM [billing].[invoice_lines]
 ), sqlgen_dated AS (
-  /* Each row''s local calendar date(s), by the spec''s time zone rule. */
+  /* The local calendar date(s) of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_customer AS sqlgen_customer,
     sqlgen_amount AS sqlgen_amount,
@@ -44,7 +44,7 @@ WITH sqlgen_source AS (
     CAST(sqlgen_date_near AS DATE) AS row_date
   FROM sqlgen_source
 ), sqlgen_rows AS (
-  /* Each row''s status: the first reason it is not counted, else counted. */
+  /* The status of each row: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer AS sqlgen_customer,
     sqlgen_amount AS sqlgen_amount,
@@ -70,7 +70,7 @@ WITH sqlgen_source AS (
     END AS row_status
   FROM sqlgen_dated
 )
-/* Each source row falls in exactly one count; the counted rows'' first and last dates. */
+/* Each source row falls in exactly one count. the first and last dates of the counted rows. */
 SELECT
   COUNT_BIG(*) AS source_rows,
   COUNT_BIG(CASE WHEN row_status = ''null_customer'' THEN 1 END) AS null_customer_rows,
@@ -87,7 +87,7 @@ FROM sqlgen_rows';
 -- customer_revenue
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].customer_revenue AS
 WITH sqlgen_source AS (
-  /* Every row of the revenue table with the columns the views read, marked as kept by the spec''s filter. */
+  /* Every row of the revenue table with the columns the views read, marked as kept by the filter of the spec. */
   SELECT
     [account_id] AS sqlgen_customer,
     [invoiced_at] AS sqlgen_date_value,
@@ -102,7 +102,7 @@ WITH sqlgen_source AS (
     ) THEN 1 ELSE 0 END AS sqlgen_kept
   FROM [billing].[invoice_lines]
 ), sqlgen_dated AS (
-  /* Each row''s local calendar date(s), by the spec''s time zone rule. */
+  /* The local calendar date(s) of each row, by the time zone rule of the spec. */
   SELECT
     sqlgen_customer AS sqlgen_customer,
     sqlgen_amount AS sqlgen_amount,
@@ -112,7 +112,7 @@ WITH sqlgen_source AS (
     CAST(sqlgen_date_near AS DATE) AS row_date
   FROM sqlgen_source
 ), sqlgen_rows AS (
-  /* Each row''s status: the first reason it is not counted, else counted. */
+  /* The status of each row: the first reason it is not counted, else counted. */
   SELECT
     sqlgen_customer AS sqlgen_customer,
     sqlgen_amount AS sqlgen_amount,
@@ -172,7 +172,7 @@ WITH sqlgen_source AS (
     counted_amount AS keyed_amount
   FROM counted
 ), totals AS (
-  /* Each customer''s total per period, rounded to the amount''s scale. */
+  /* The total of each customer per period, rounded to the scale of the amount. */
   SELECT
     keyed_customer AS total_customer,
     keyed_key AS total_key,
@@ -182,7 +182,7 @@ WITH sqlgen_source AS (
     keyed_customer,
     keyed_key
 ), entries AS (
-  /* Each total as this period''s revenue, and again as the next period''s previous revenue. */
+  /* Each total as the revenue of this period, and again as the previous revenue of the next period. */
   SELECT
     total_customer AS entry_customer,
     total_key AS entry_key,
@@ -217,7 +217,7 @@ WITH sqlgen_source AS (
     entry_customer,
     entry_key
 ), firsts AS (
-  /* Each customer''s first period with revenue. */
+  /* The first period of each customer with revenue. */
   SELECT
     customer_key AS customer_key,
     revenue_key AS revenue_key,
@@ -255,7 +255,7 @@ WITH sqlgen_source AS (
     END AS revenue_state
   FROM firsts
 )
-/* Each change in exactly one component; previous = retained + contraction + churned. */
+/* Each change in exactly one component. previous = retained + contraction + churned. */
 SELECT
   customer_key AS customer_id,
   revenue_key AS period_key,
@@ -424,7 +424,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
-/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
+/* One row per period. quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   CAST(DATEADD(MONTH, calendar_key - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE) AS period_start,
   ROUND(revenue_amount, 2) AS revenue,
@@ -457,7 +457,7 @@ FROM filled';
 -- revenue_cohorts
 EXECUTE sp_executesql N'CREATE OR ALTER VIEW [finance].revenue_cohorts AS
 WITH marked AS (
-  /* Each customer_revenue row with the customer''s cohort: the first period with revenue. */
+  /* Each customer_revenue row with the cohort of the customer: the first period with revenue. */
   SELECT
     period_key AS marked_key,
     revenue AS marked_revenue,
@@ -477,7 +477,7 @@ WITH marked AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
-  /* A cohort''s size: its paying customers in the cohort period. */
+  /* The size of a cohort: its paying customers in the cohort period. */
   SELECT
     revenue_cohort_key AS size_key,
     paying_count AS size_count

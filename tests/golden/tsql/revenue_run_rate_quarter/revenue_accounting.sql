@@ -143,7 +143,7 @@ WITH tallies AS (
   LEFT JOIN tallies AS t
     ON t.tally_key = c.calendar_key
 )
-/* One row per period; quick ratio = (new + resurrected + expansion) / (churned + contraction). */
+/* One row per period. quick ratio = (new + resurrected + expansion) / (churned + contraction). */
 SELECT
   CAST(DATEADD(MONTH, calendar_key - 23640, CAST('1970-01-01' AS DATE)) AS DATE) AS period_start,
   ROUND(revenue_amount, 2) AS revenue,
