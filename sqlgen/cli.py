@@ -111,6 +111,19 @@ def _parser() -> argparse.ArgumentParser:
 
     validate = sub.add_parser("validate", help="check a spec and report every problem")
     validate.add_argument("spec", help="the YAML spec file")
+    for command in (build, validate):
+        command.add_argument("--schema", metavar="SOURCE",
+                             help="also check every table and column the spec names against "
+                                  "a schema source: a DuckDB file, a Parquet or CSV file, a "
+                                  "postgresql:// URL or a column listing CSV (docs/schema.md)")
+
+    init = sub.add_parser("init", help="write a commented starter spec for a table")
+    init.add_argument("source", help="schema source: a DuckDB file, a Parquet or CSV file, a "
+                                     "postgresql:// URL or a column listing CSV")
+    init.add_argument("--table", metavar="T", help="the table (schema.table), when the "
+                                                   "source holds several")
+    init.add_argument("--out", metavar="FILE", default="growth.yml",
+                      help="the spec file to write (default: growth.yml); never overwritten")
 
     demo = sub.add_parser("demo", help="build and run the views on an invented demo dataset")
     demo.add_argument("--folder", default="sqlgen-demo", metavar="DIR",
@@ -153,9 +166,22 @@ def _warn(spec: Spec) -> None:
         print(warning, file=sys.stderr)
 
 
-def _build(args: argparse.Namespace) -> int:
+def _load(args: argparse.Namespace) -> Spec:
+    """The spec, checked against ``--schema`` when given (every problem at once)."""
     spec = load_spec(args.spec)
     _warn(spec)
+    if args.schema:
+        from .schema import open_source
+        from .schemacheck import check_spec
+
+        problems = check_spec(spec, open_source(args.schema))
+        if problems:
+            raise SpecError(problems)
+    return spec
+
+
+def _build(args: argparse.Namespace) -> int:
+    spec = _load(args)
     chosen = args.dialect or Dialects((spec.output.dialect,))
     dialects = _buildable(spec, chosen)
     names = file_names(spec)
@@ -230,12 +256,27 @@ def _check(spec_path: str, names: list[str],
 
 
 def _validate(args: argparse.Namespace) -> int:
-    spec = load_spec(args.spec)
-    _warn(spec)
+    spec = _load(args)
     _buildable(spec, Dialects((spec.output.dialect,)))
     render_files(spec)  # what sqlglot cannot spell for the target is a spec problem too
+    checked = f", columns checked against {_label(args.schema)}" if args.schema else ""
     print(f"{printable(args.spec, False)}: ok ({spec.grain} grain, target "
-          f"{spec.output.dialect})")
+          f"{spec.output.dialect}{checked})")
+    return 0
+
+
+def _label(source: str) -> str:
+    from .schema import redact
+
+    return redact(source)
+
+
+def _init(args: argparse.Namespace) -> int:
+    from .init import write_starter
+
+    write_starter(args.source, args.out, args.table)
+    print(f"{printable(args.out, False)}: starter spec written from {_label(args.source)}; "
+          f"read its comments, then run `sqlgen validate --schema SOURCE {args.out}`")
     return 0
 
 
@@ -246,7 +287,7 @@ def _demo(args: argparse.Namespace) -> int:
     return 0
 
 
-COMMANDS = {"build": _build, "validate": _validate, "demo": _demo}
+COMMANDS = {"build": _build, "validate": _validate, "demo": _demo, "init": _init}
 
 
 def main(argv: list[str] | None = None) -> int:
