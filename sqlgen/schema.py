@@ -335,13 +335,21 @@ def _postgres(url: str) -> Catalog:
     except ImportError:
         raise SchemaSourceError("reading a PostgreSQL schema source needs psycopg: "
                                 "pip install 'sqlgen[postgres]'") from None
-    conninfo = re.sub(r"^postgres(ql)?\+\w+://", "postgresql://", url)
-    with psycopg.connect(conninfo, connect_timeout=10) as conn:
-        conn.read_only = True
-        rows = conn.execute(POSTGRES_QUERY).fetchall()
+    rows = _pg_rows(url, POSTGRES_QUERY)
     cleaned = [(c, s, t, col, _with_scale(d, _text(p), _text(sc)))
                for c, s, t, col, d, p, sc in rows]
     return Catalog(redact(url), "postgres", _tables(cleaned, "postgres"), "postgres")
+
+
+def _pg_rows(url: str, sql: str) -> list[tuple]:
+    """The rows of one query over a read-only PostgreSQL session (a ``postgresql+driver://``
+    URL as SQLAlchemy writes it is taken too)."""
+    import psycopg
+
+    conninfo = re.sub(r"^postgres(ql)?\+\w+://", "postgresql://", url)
+    with psycopg.connect(conninfo, connect_timeout=10) as conn:
+        conn.read_only = True
+        return conn.execute(sql).fetchall()
 
 
 def _text(value: object) -> str:
@@ -377,15 +385,9 @@ def date_span(source: str, catalog: Catalog, table: Table, column: Column,
                                     e.Literal.number(1)).else_(e.Literal.number(0))))
     try:
         if catalog.kind == "postgres":
-            import psycopg
-
             target = e.table_(e.to_identifier(table.name, quoted=True),
                               db=e.to_identifier(table.schema, quoted=True))
-            sql = select.from_(target).sql("postgres")
-            with psycopg.connect(re.sub(r"^postgres(ql)?\+\w+://", "postgresql://", source),
-                                 connect_timeout=10) as conn:
-                conn.read_only = True
-                row = conn.execute(sql).fetchone()
+            row = _pg_rows(source, select.from_(target).sql("postgres"))[0]
         else:
             import duckdb
 

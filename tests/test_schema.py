@@ -329,3 +329,48 @@ def test_init_and_validate_on_live_postgres(capsys, tmp_path, pg):
     assert code == 3 and "Pa55word" not in out + err
     assert err.startswith(f"{bad}:5:14: activity.timestamp: 'occurred_at' is timestamp with "
                           "time zone, but activity.timestamp_type is timestamp")
+
+
+# ---------------------------------------------------------------- sources that cannot be used
+
+def test_sources_that_cannot_be_read(capsys, tmp_path):
+    spec = _spec(tmp_path)
+    (tmp_path / "notes.txt").write_text("hello\n")
+    cases = [
+        (tmp_path / "missing.duckdb", f"Error: schema source {tmp_path}/missing.duckdb: no such "
+                                      "file"),
+        (tmp_path / "notes.txt", f"Error: schema source {tmp_path}/notes.txt: not a DuckDB "
+                                 "database file, nor a .parquet or .csv file"),
+        ("mysql://ana:hidden@h/x", "Error: schema source mysql://ana:***@h/x: 'mysql' URLs are "
+                                   "not read; give a postgresql:// URL"),
+    ]
+    for source, start in cases:
+        code, out, err = run(capsys, "validate", "--schema", source, spec)
+        assert (code, out) == (3, "") and err.startswith(start) and "hidden" not in err
+
+
+def test_a_data_file_is_one_table_named_by_its_stem(capsys, tmp_path):
+    (tmp_path / "visits.csv").write_text("member_id,event_date\nm1,2024-03-01\n")
+    spec = _spec(tmp_path)
+    code, _, err = run(capsys, "validate", "--schema", tmp_path / "visits.csv", spec)
+    assert code == 3
+    assert err.splitlines() == [
+        f"{spec}:3:10: activity.table: table 'raw.app_events' is not in {tmp_path}/visits.csv: "
+        "a csv file holds one table, named by the file: visits",
+        f"{spec}:11:10: revenue.table: table 'billing.charges' is not in {tmp_path}/visits.csv: "
+        "a csv file holds one table, named by the file: visits"]
+
+
+def test_quoted_names_match_exactly_bare_names_in_any_case(capsys, tmp_path):
+    db = tmp_path / "wh.duckdb"
+    with duckdb.connect(str(db)) as conn:
+        conn.execute('CREATE SCHEMA raw; CREATE TABLE raw.app_events ("UserId" VARCHAR, '
+                     '"OccurredAt" DATE, event_name VARCHAR)')
+    text = ("version: 1\nactivity:\n  table: RAW.App_Events\n  user: userid\n"
+            "  timestamp: '\"occurredat\"'\n  timestamp_type: date\n")
+    spec = _spec(tmp_path, text)
+    code, _, err = run(capsys, "validate", "--schema", db, spec)
+    assert (code, err) == (3, f"{spec}:5:14: activity.timestamp: column 'occurredat' is not in "
+                              f"raw.app_events ({db}). Did you mean 'OccurredAt'?\n")
+    spec.write_text(text.replace('"occurredat"', '"OccurredAt"'))
+    assert run(capsys, "validate", "--schema", db, spec)[0] == 0
