@@ -17,7 +17,7 @@ from pathlib import Path
 
 from .errors import OutputError, SqlgenError
 from .names import BARE
-from .schema import Catalog, Column, Table, date_span, open_source, suggest, table_list
+from .schema import DEFAULT_SCHEMAS, Catalog, Column, Table, date_span, open_source, suggest, table_list
 from .spec import VALID_FROM, VALID_UNTIL
 
 # Names a user key is often given, best first (common practice); then any *_id column.
@@ -165,7 +165,8 @@ def _render(catalog: Catalog, table: Table, user: Proposal, time: Proposal,
     start, until, range_why = _range(span)
     grain = _grain(span)
     kind = time_column.kind
-    qualified = ".".join(_name(p) for p in ([table.schema] if table.schema else []) + [table.name])
+    schema = [table.schema] if table.schema and table.schema not in DEFAULT_SCHEMAS else []
+    qualified = ".".join(_name(p) for p in schema + [table.name])
     lines = [
         f"# Starter spec written by `sqlgen init` from {catalog.label}, table {table.display}.",
         "# Every value below is a proposal: read the reasons, change what is wrong, then run",

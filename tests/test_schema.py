@@ -341,8 +341,8 @@ def test_sources_that_cannot_be_read(capsys, tmp_path):
                                       "file"),
         (tmp_path / "notes.txt", f"Error: schema source {tmp_path}/notes.txt: not a DuckDB "
                                  "database file, nor a .parquet or .csv file"),
-        ("mysql://ana:hidden@h/x", "Error: schema source mysql://ana:***@h/x: 'mysql' URLs are "
-                                   "not read; give a postgresql:// URL"),
+        ("mysql://ana:hidden@h/x", "Error: schema source mysql://ana:***@h/x: SQLAlchemy has "
+                                   "no driver installed for 'mysql' (No module named"),
     ]
     for source, start in cases:
         code, out, err = run(capsys, "validate", "--schema", source, spec)
@@ -374,3 +374,33 @@ def test_quoted_names_match_exactly_bare_names_in_any_case(capsys, tmp_path):
                               f"raw.app_events ({db}). Did you mean 'OccurredAt'?\n")
     spec.write_text(text.replace('"occurredat"', '"OccurredAt"'))
     assert run(capsys, "validate", "--schema", db, spec)[0] == 0
+
+
+def test_init_through_sqlalchemy_on_a_sqlite_url(capsys, tmp_path):
+    """Further databases through SQLAlchemy's inspector (the schema extra): SQLite here."""
+    pytest.importorskip("sqlalchemy")
+    import sqlite3
+
+    db = tmp_path / "app.db"
+    with sqlite3.connect(db) as conn:
+        conn.execute("CREATE TABLE app_events (member_id TEXT, happened_at TIMESTAMP, "
+                     "event_name TEXT)")
+        conn.executemany("INSERT INTO app_events VALUES (?, ?, 'opened')",
+                         [(f"m{i % 12}", f"2024-{1 + i % 6:02d}-{1 + i % 27:02d} 08:30:00")
+                          for i in range(200)])
+    url = f"sqlite:///{db}"
+    spec = tmp_path / "started.yml"
+    assert run(capsys, "init", url, "--out", spec)[0] == 0
+    text = spec.read_text()
+    assert "  table: app_events\n" in text and "dialect: sqlite\n" in text
+    assert "user: member_id\n" in text and "timestamp_type: timestamp\n" in text
+    assert run(capsys, "validate", "--schema", url, spec)[0] == 0
+    assert run(capsys, "build", "--schema", url, spec)[0] == 0
+    with sqlite3.connect(db) as conn:
+        conn.executescript((tmp_path / "sql" / "create_all.sql").read_text())
+        assert conn.execute("SELECT SUM(new_users) FROM growth_accounting").fetchone() == (12,)
+    bad = _spec(tmp_path, text.replace("timestamp: happened_at", "timestamp: happend_at"),
+                "bad.yml")
+    code, _, err = run(capsys, "validate", "--schema", url, bad)
+    assert code == 3 and "column 'happend_at' is not in main.app_events" in err
+    assert "Did you mean 'happened_at'?" in err
