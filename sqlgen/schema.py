@@ -93,6 +93,11 @@ class Catalog:
     def find(self, parts: tuple[tuple[str, bool], ...]) -> Table | None:
         """The table a spec's ``[catalog.][schema.]table`` names, or None. A one-part name
         finds a table in the default schema (or the only table of that name)."""
+        found = self.matches(parts)
+        return found[0] if len(found) == 1 else None
+
+    def matches(self, parts: tuple[tuple[str, bool], ...]) -> list[Table]:
+        """Every table ``parts`` could name (more than one: the name is ambiguous)."""
         *prefix, (name, quoted) = parts
         found = [t for t in self.tables if _same(t.name, name, quoted)]
         if len(prefix) >= 1:
@@ -102,8 +107,8 @@ class Catalog:
             catalog, cquoted = prefix[0]
             found = [t for t in found if not t.catalog or _same(t.catalog, catalog, cquoted)]
         if not prefix and len(found) > 1:
-            found = [t for t in found if t.schema in DEFAULT_SCHEMAS] or found[:0]
-        return found[0] if len(found) == 1 else None
+            found = [t for t in found if t.schema in DEFAULT_SCHEMAS] or found
+        return found
 
     def names(self) -> list[str]:
         return [t.display for t in self.tables]

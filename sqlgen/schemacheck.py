@@ -180,6 +180,10 @@ def _time_problem(name: str, section: Any, real: str, kind: str) -> str:
 
 def _missing_table(parts: tuple[names.Part, ...], catalog: Catalog) -> str:
     written = names.display(parts)
+    several = catalog.matches(parts)
+    if len(several) > 1:
+        return (f"table {shown(written)} is ambiguous in {catalog.label}: "
+                f"{', '.join(t.display for t in several[:8])}; qualify it with its schema")
     options = catalog.names() + [t.name for t in catalog.tables]
     hint = suggest(written, options) or suggest(parts[-1][0], options)
     if catalog.kind in ("parquet", "csv"):

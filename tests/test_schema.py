@@ -404,3 +404,15 @@ def test_init_through_sqlalchemy_on_a_sqlite_url(capsys, tmp_path):
     code, _, err = run(capsys, "validate", "--schema", url, bad)
     assert code == 3 and "column 'happend_at' is not in main.app_events" in err
     assert "Did you mean 'happened_at'?" in err
+
+
+def test_a_table_name_in_several_schemas_is_ambiguous(capsys, tmp_path):
+    listing = tmp_path / "columns.csv"
+    listing.write_text("table_schema,table_name,column_name,data_type\n"
+                       "raw,app_events,user_id,text\nstage,app_events,user_id,text\n")
+    spec = _spec(tmp_path, "version: 1\nactivity:\n  table: app_events\n  user: user_id\n"
+                           "  timestamp: occurred_at\n")
+    code, _, err = run(capsys, "validate", "--schema", listing, spec)
+    assert (code, err) == (3, f"{spec}:3:10: activity.table: table 'app_events' is ambiguous "
+                              f"in {listing}: raw.app_events, stage.app_events; qualify it "
+                              "with its schema\n")
