@@ -149,13 +149,23 @@ _SPELLINGS = {"timestamp_tz": "timestamptz", "timestamp_ltz": "timestamptz",
               "timestamp_ntz": "timestamp"}
 
 
+# A column listing may come from any warehouse: its types are read by the first of these
+# dialects that knows the spelling (information_schema's standard names first).
+LISTING_DIALECT = "any"
+_LISTING_READERS = ("postgres", "snowflake", "bigquery", "tsql", "clickhouse", "duckdb")
+
+
 def kind_of(type_text: str, dialect: str = "duckdb") -> tuple[str, int | None]:
     """(kind, scale) of a type as a source spells it: kind is one of timestamptz,
     timestamp, date, decimal, float, integer, text, boolean or other; scale is a
     DECIMAL's scale (None when not a decimal or not given)."""
     text = type_text.strip()
-    if text.lower() in _SPELLINGS:
-        return _SPELLINGS[text.lower()], None
+    bare = re.sub(r"\s*\(.*\)$", "", text).lower()
+    if bare in _SPELLINGS:
+        return _SPELLINGS[bare], None
+    if dialect == LISTING_DIALECT:
+        found = [kind_of(text, name) for name in _LISTING_READERS]
+        return next((k for k in found if k[0] != "other"), ("other", None))
     try:
         node = exp.DataType.build(text, dialect=dialect)
     except (ParseError, ValueError, TypeError, KeyError):
@@ -304,9 +314,8 @@ def _listing(path: Path) -> Catalog:
                          row["column_name"].strip(),
                          _with_scale(row["data_type"].strip(), row.get("numeric_precision"),
                                      row.get("numeric_scale"))))
-    # Exports use the warehouse's own spelling, read as information_schema (standard SQL,
-    # PostgreSQL's reading of it: a bare numeric has no scale given).
-    return Catalog(redact(str(path)), "listing", _tables(rows, "postgres"), "duckdb")
+    # Exports use the warehouse's own spelling (a bare numeric has no scale given).
+    return Catalog(redact(str(path)), "listing", _tables(rows, LISTING_DIALECT), "duckdb")
 
 
 def _with_scale(data_type: str, precision: str | None, scale: str | None) -> str:

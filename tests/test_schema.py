@@ -91,6 +91,16 @@ TYPE_CASES = [
     ("bigint", "postgres", ("integer", None)),
     ("STRUCT(a INTEGER)", "duckdb", ("other", None)),
     ("USER-DEFINED", "postgres", ("other", None)),
+    # A column listing may come from any warehouse ("any"): Snowflake's, BigQuery's,
+    # SQL Server's and ClickHouse's own type names (their manuals; from memory).
+    ("TIMESTAMP_TZ(9)", "any", ("timestamptz", None)),
+    ("TIMESTAMP_NTZ(9)", "any", ("timestamp", None)),
+    ("NUMBER(38,2)", "any", ("decimal", 2)),
+    ("FLOAT64", "any", ("float", None)),
+    ("datetimeoffset", "any", ("timestamptz", None)),
+    ("datetime2", "any", ("timestamp", None)),
+    ("DateTime64(3)", "any", ("timestamp", None)),
+    ("numeric", "any", ("decimal", None)),
 ]
 
 
