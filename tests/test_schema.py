@@ -5,12 +5,12 @@ secrets in a URL never shown."""
 from __future__ import annotations
 
 import datetime as dt
-import os
 from decimal import Decimal
 from pathlib import Path
 
 import duckdb
 import pytest
+from conftest import selected_engines
 
 from sqlgen.cli import main
 from sqlgen.schema import kind_of, open_source, redact
@@ -300,8 +300,8 @@ def test_secrets_never_shown_when_the_server_cannot_be_reached(capsys, tmp_path)
 
 @pytest.fixture
 def pg(engines):
-    if "postgres" not in os.environ.get("SQLGEN_ENGINES", "postgres"):
-        pytest.skip("postgres not selected")
+    if "postgres" not in selected_engines():
+        pytest.skip("postgres not selected (SQLGEN_ENGINES)")
     engine = engines("postgres")
     engine.create_table("raw.app_events", [("user_id", "text"), ("occurred_at", "timestamptz"),
                                            ("event_name", "text")],
