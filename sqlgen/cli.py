@@ -117,6 +117,14 @@ def _parser() -> argparse.ArgumentParser:
                                   "a schema source: a DuckDB file, a Parquet or CSV file, a "
                                   "postgresql:// URL or a column listing CSV (docs/schema.md)")
 
+    checks = sub.add_parser("checks", help="print (or write) the read-only run-time checks "
+                                           "query for a spec")
+    checks.add_argument("spec", help="the YAML spec file")
+    checks.add_argument("--dialect", choices=target_names(), metavar="D",
+                        help="target dialect (default: output.dialect of the spec)")
+    checks.add_argument("--out", metavar="FILE", help="write it here instead of stdout "
+                        "(a file sqlgen checks wrote before, or a new one)")
+
     init = sub.add_parser("init", help="write a commented starter spec for a table")
     init.add_argument("source", help="schema source: a DuckDB file, a Parquet or CSV file, a "
                                      "postgresql:// URL or a column listing CSV")
@@ -271,6 +279,19 @@ def _label(source: str) -> str:
     return redact(source)
 
 
+def _checks(args: argparse.Namespace) -> int:
+    from .checks import checks_sql, write_checks
+
+    spec = load_spec(args.spec)
+    _warn(spec)
+    if args.out:
+        write_checks(spec, args.out, args.dialect)
+        print(f"{printable(args.out, False)}: run-time checks written")
+    else:
+        sys.stdout.write(checks_sql(spec, args.dialect))
+    return 0
+
+
 def _init(args: argparse.Namespace) -> int:
     from .init import write_starter
 
@@ -287,7 +308,8 @@ def _demo(args: argparse.Namespace) -> int:
     return 0
 
 
-COMMANDS = {"build": _build, "validate": _validate, "demo": _demo, "init": _init}
+COMMANDS = {"build": _build, "validate": _validate, "demo": _demo, "init": _init,
+            "checks": _checks}
 
 
 def main(argv: list[str] | None = None) -> int:
