@@ -46,6 +46,7 @@ def engine_target_pairs(only: tuple[str, ...] | None = None, every_target: bool 
             for t in ENGINE_TARGETS[e][:None if every_target else 1]]
 
 
+@pytest.hookimpl(tryfirst=True)  # before xdist's loadgroup reads the marks
 def pytest_collection_modifyitems(items):
     """With xdist's loadgroup, keep one engine's tests of one file on one worker: an engine
     starts at most once per worker and file, and slow engines spread over both workers."""
@@ -55,6 +56,20 @@ def pytest_collection_modifyitems(items):
         if engine:
             item.add_marker(pytest.mark.xdist_group(f"{engine}-{item.module.__name__}"))
 
+
+
+def pytest_collection_finish(session):
+    """Fail loudly when the engine grouping above is silently lost (pytest 9.2 moved the
+    node id xdist 3.8 rewrites for loadgroup): every engine would then start on both
+    workers, two Spark JVMs would share two cores and CI would run past its budget."""
+    if not getattr(session.config.option, "loadgroup", False):
+        return
+    lost = [item.nodeid for item in session.items
+            if item.get_closest_marker("xdist_group") and "@" not in item.nodeid]
+    if lost:
+        raise pytest.UsageError(
+            f"xdist loadgroup ignored the engine groups ({lost[0]} has no @group suffix): "
+            "use the pytest and pytest-xdist versions pinned in pyproject.toml")
 
 def pytest_addoption(parser):
     parser.addoption("--update-golden", action="store_true",
@@ -84,3 +99,4 @@ def engines():
         if not isinstance(found, EngineUnavailable):
             found.close()
     _STARTED.clear()
+
