@@ -179,7 +179,8 @@ def _chart(chart: c.Chart, png: str | None) -> str:
               f'aria-label="{html.escape(chart.title)}"></div>' if chart.spec else "")
     link = (f'<p class="png">PNG for documents: <a href="{html.escape(png)}">'
             f"{html.escape(png)}</a></p>" if png else "")
-    return (f'<figure class="block"><figcaption><h3>{html.escape(chart.title)}</h3>'
+    heading = "" if chart.spec else f"<h3>{html.escape(chart.title)}</h3>"
+    return (f'<figure class="block"><figcaption>{heading}'
             f"<p>{html.escape(chart.description)}</p></figcaption>{figure}{link}"
             f"{_table(chart)}</figure>")
 
@@ -224,6 +225,7 @@ dt { color: #555555; } dd { margin: 0; overflow-wrap: anywhere; }
 .caution p { margin: 4px 0; }
 .summaries { display: flex; gap: 24px; flex-wrap: wrap; }
 .summary table td, .summary table th { padding: 1px 8px 1px 0; }
+.summary th { text-align: left; font-weight: normal; color: #333333; }
 nav ul { padding-left: 18px; margin: 4px 0; }
 .block { margin: 22px 0; page-break-inside: avoid; break-inside: avoid; }
 figure { margin: 0; }
