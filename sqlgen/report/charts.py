@@ -16,6 +16,7 @@ import json
 import math
 from dataclasses import dataclass, field
 
+from ..errors import SqlgenError
 from .run import Rows
 
 WIDTH, HEIGHT = 680, 280  # CSS pixels of each chart, legends and axes included
@@ -55,15 +56,17 @@ class Section:
     messages: tuple[str, ...] = field(default=())
 
 
+class MissingExtra(SqlgenError):
+    """The report's optional packages are not installed."""
+
+    exit_code = 4
+
+
 def _alt():
     try:
         import altair as alt
+        import vl_convert  # noqa: F401
     except ImportError:
-        from ..errors import SqlgenError
-
-        class MissingExtra(SqlgenError):
-            exit_code = 4
-
         raise MissingExtra("the report needs its optional packages: "
                            "pip install 'sqlgen[report]'") from None
     return alt
@@ -77,7 +80,8 @@ def _finish(chart, rows: Rows, title: str, subtitle: str) -> dict:
     ).to_dict()
     spec["autosize"] = {"type": "fit", "contains": "padding"}
     spec["background"] = "#ffffff"
-    spec["datasets"] = {rows.view: rows.records()}
+    spec["padding"] = {"top": 10, "left": 6, "right": 10, "bottom": 6}
+    spec.setdefault("datasets", {})[rows.view] = rows.records()
     spec["config"] = {
         "font": "Helvetica, Arial, sans-serif",
         "view": {"stroke": None},
@@ -325,7 +329,7 @@ def revenue(rows: Rows, grain: str) -> Chart:
     ).transform_fold(parts, as_=["component", "amount"]).transform_calculate(
         component_order=f"indexof({json.dumps(parts)}, datum.component)").mark_bar().encode(
         x=_period_axis(alt, grain),
-        y=alt.Y("amount:Q", title="amount per period, source currency (losses below zero)",
+        y=alt.Y("amount:Q", title="amount (source currency; losses below 0)",
                 stack="zero"),
         color=alt.Color("component:N", scale=colour, title=None, sort=domain),
         order=alt.Order("component_order:Q"), opacity=_opacity(alt),
@@ -340,8 +344,8 @@ def revenue(rows: Rows, grain: str) -> Chart:
                  alt.Tooltip("customers:Q", title="customers", format=",")])
     band, text = _in_progress(alt, base, grain)
     spec = _finish(alt.layer(band, bars, line, text), rows, "Recurring revenue and its movements",
-                   "New, expansion and resurrected revenue above zero; contraction and churned "
-                   "below; the line is the period's recurring revenue.")
+                   "New, expansion and resurrected above zero; contraction and churned below; "
+                   "the line is recurring revenue.")
     return Chart("revenue", "Recurring revenue and its movements",
                  "revenue = previous + new + resurrected + expansion − contraction − churned",
                  spec, rows,

@@ -276,9 +276,25 @@ window.addEventListener('beforeprint', function () {
 
 @functools.cache
 def _bundle(vl_version: str) -> str:
+    """Vega, Vega-Lite and Vega-Embed in one script (``window.vegaEmbed``), from
+    vl-convert. Bundling takes seconds, so the script is kept in the user's cache folder,
+    named by both versions; a cache that cannot be written is skipped."""
     import vl_convert
 
-    return vl_convert.javascript_bundle(SNIPPET, vl_version=vl_version)
+    name = f"vega-bundle-{vl_convert.__version__}-{vl_version}.js"
+    base = os.environ.get("XDG_CACHE_HOME") or str(Path.home() / ".cache")
+    cached = Path(base) / "sqlgen" / name
+    try:
+        return cached.read_text(encoding="utf-8")
+    except OSError:
+        pass
+    text = vl_convert.javascript_bundle(vl_version=vl_version)
+    try:
+        cached.parent.mkdir(parents=True, exist_ok=True)
+        _write(cached, text.encode("utf-8"))
+    except OSError:
+        pass
+    return text
 
 
 def _vl_version() -> str:
@@ -338,7 +354,7 @@ def render_html(spec: Spec, source: str, found: dict[str, Rows], parts: list[c.S
         "number.</footer>",
         "</main>",
         f'<script type="application/json" id="sqlgen-charts">{_script_json(specs)}</script>',
-        f"<script>{_bundle(_vl_version())}</script>",
+        f"<script>{_bundle(_vl_version())}</script>", f"<script>{SNIPPET}</script>",
         "</body>", "</html>", ""])
 
 
