@@ -142,6 +142,7 @@ def _parser() -> argparse.ArgumentParser:
     report.add_argument("--out", default="report.html", metavar="FILE",
                         help="the page to write (default: report.html); the PNGs go to "
                              "FILE's name with -charts/ beside it")
+    report.add_argument("--no-png", action="store_true", help="write the page only")
 
     demo = sub.add_parser("demo", help="build and run the views on an invented demo dataset")
     demo.add_argument("--folder", default="sqlgen-demo", metavar="DIR",
@@ -316,9 +317,10 @@ def _report(args: argparse.Namespace) -> int:
 
     spec = load_spec(args.spec)
     _warn(spec)
-    done = make_report(spec, args.source, Path(args.out))
-    print(f"{printable(str(done.html), False)}: report written from {_label(args.source)}; "
-          f"{len(done.pngs)} PNG(s) in {printable(str(done.html.with_name(done.html.stem + '-charts')), False)}/")
+    done = make_report(spec, args.source, Path(args.out), pngs=not args.no_png)
+    charts = printable(str(done.html.with_name(done.html.stem + "-charts")), False)
+    print(f"{printable(str(done.html), False)}: report written from {_label(args.source)}"
+          + (f"; {len(done.pngs)} PNG(s) in {charts}/" if done.pngs else ""))
     return 0
 
 

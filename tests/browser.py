@@ -45,7 +45,7 @@ class Browser:
         self.events: list[dict] = []
 
     @classmethod
-    def start(cls, timeout: float = 60) -> "Browser":
+    def start(cls, timeout: float = 60) -> Browser:
         import websocket
 
         binary = find_chromium()
@@ -86,7 +86,7 @@ class Browser:
         raise TimeoutError(method)
 
     def open(self, path: Path, width: int = 1000, height: int = 1400,
-             timeout: float = 60) -> "Page":
+             timeout: float = 60) -> Page:
         target = self.send("Target.createTarget", {"url": "about:blank"})["targetId"]
         session = self.send("Target.attachToTarget", {"targetId": target,
                                                       "flatten": True})["sessionId"]
@@ -114,7 +114,7 @@ class Browser:
         self.socket.close()
         shutil.rmtree(self.profile, ignore_errors=True)
 
-    def __enter__(self) -> "Browser":
+    def __enter__(self) -> Browser:
         return self
 
     def __exit__(self, *exc) -> None:

@@ -19,10 +19,11 @@ __all__ = ["Report", "Rows", "make_report", "run_report_views"]
 
 
 def make_report(spec: Spec, source: str, out: Path, progress: bool | None = None,
-                now: dt.datetime | None = None) -> Report:
-    """Run the views of ``spec`` on ``source`` and write the page to ``out``."""
+                now: dt.datetime | None = None, pngs: bool = True) -> Report:
+    """Run the views of ``spec`` on ``source`` and write the page to ``out`` (and a PNG
+    per chart to ``<out stem>-charts/`` unless ``pngs`` is false)."""
     from .charts import _alt
 
     _alt()  # the extra is missing: say so before running anything
     found = run_report_views(spec, source, progress)
-    return write_report(spec, source, found, out, redact(source), now)
+    return write_report(spec, source, found, out, redact(source), now, pngs)

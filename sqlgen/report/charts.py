@@ -27,6 +27,7 @@ BLACK, ORANGE, SKY, GREEN, YELLOW, BLUE, VERMILLION, PURPLE = (
     "#000000", "#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7")
 HEAT = "cividis"  # a sequential scheme readable with colour-vision deficiencies
 IN_PROGRESS_FILL = "#8a8a8a"
+VALIDATE = False  # check each chart against the Vega-Lite schema (slow: the tests turn it on)
 QUICK_RATIO_CAP = 6.0  # the y axis of a quick ratio stops here; the table has every value
 
 
@@ -77,7 +78,7 @@ def _finish(chart, rows: Rows, title: str, subtitle: str) -> dict:
     spec = chart.properties(
         width=WIDTH, height=HEIGHT,
         title={"text": title, "subtitle": subtitle, "anchor": "start"},
-    ).to_dict()
+    ).to_dict(validate=VALIDATE)
     spec["autosize"] = {"type": "fit", "contains": "padding"}
     spec["background"] = "#ffffff"
     spec["padding"] = {"top": 10, "left": 6, "right": 10, "bottom": 6}

@@ -221,7 +221,8 @@ h3 { font-size: 15px; margin: 0 0 2px; }
 p { margin: 4px 0 8px; }
 dl { display: grid; grid-template-columns: max-content 1fr; gap: 2px 14px; margin: 12px 0; }
 dt { color: #555555; } dd { margin: 0; overflow-wrap: anywhere; }
-.caution { border-left: 4px solid #E69F00; background: #fff8e8; padding: 10px 14px; margin: 16px 0; }
+.caution { border-left: 4px solid #E69F00; background: #fff8e8; padding: 10px 14px;
+           margin: 16px 0; }
 .caution p { margin: 4px 0; }
 .summaries { display: flex; gap: 24px; flex-wrap: wrap; }
 .summary table td, .summary table th { padding: 1px 8px 1px 0; }
@@ -331,7 +332,7 @@ def render_html(spec: Spec, source: str, found: dict[str, Rows], parts: list[c.S
         "script-src 'unsafe-inline' 'unsafe-eval'; style-src 'unsafe-inline'; "
         "img-src data:; font-src data:\">",
         f"<title>{html.escape(title)}</title>", f"<style>{CSS}</style>", "</head>",
-        "<body>", "<main>", "<header>", f"<h1>Growth report</h1>",
+        "<body>", "<main>", "<header>", "<h1>Growth report</h1>",
         _facts(spec, source, ran),
         '<div class="caution" role="note">',
         "<p><strong>Management metrics, not audited figures.</strong> These numbers follow "
@@ -363,25 +364,27 @@ def _png_folder(out: Path) -> Path:
 
 
 def write_report(spec: Spec, source: str, found: dict[str, Rows], out: Path,
-                 source_label: str, now: dt.datetime | None = None) -> Report:
-    """Write the page and its PNGs; return where they are."""
+                 source_label: str, now: dt.datetime | None = None,
+                 pngs: bool = True) -> Report:
+    """Write the page and (unless ``pngs`` is false) its PNGs; return where they are."""
     import vl_convert
 
     parts = sections(spec, found)
-    ran = (now or dt.datetime.now(dt.timezone.utc)).strftime("%Y-%m-%d %H:%M UTC")
+    ran = (now or dt.datetime.now(dt.UTC)).strftime("%Y-%m-%d %H:%M UTC")
     folder = _png_folder(out)
-    charts = [ch for s in parts for ch in s.charts if ch.spec]
-    pngs = {ch.key: f"{folder.name}/{ch.key}.png" for ch in charts}
+    charts = [ch for s in parts for ch in s.charts if ch.spec] if pngs else []
+    links = {ch.key: f"{folder.name}/{ch.key}.png" for ch in charts}
     written = []
     try:
-        folder.mkdir(parents=True, exist_ok=True)
+        if charts:
+            folder.mkdir(parents=True, exist_ok=True)
         for ch in charts:
             path = folder / f"{ch.key}.png"
             data = vl_convert.vegalite_to_png(ch.spec, scale=c.PNG_SCALE,
                                               vl_version=_vl_version())
             _write(path, data)
             written.append(path)
-        _write(out, render_html(spec, source_label, found, parts, ran, pngs).encode("utf-8"))
+        _write(out, render_html(spec, source_label, found, parts, ran, links).encode("utf-8"))
     except OSError as err:
         raise OutputError(f"{err.filename or out}: cannot write the report "
                           f"({err.strerror or err})") from None

@@ -11,10 +11,10 @@ from __future__ import annotations
 import datetime as dt
 import re
 import sys
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, replace
 from decimal import Decimal
 from pathlib import Path
-from typing import Callable, Iterator
 
 from ..compiler import create_schema, ddl_statements, view_table
 from ..dialects import TARGETS
