@@ -312,7 +312,7 @@ def _init(args: argparse.Namespace) -> int:
     return 0
 
 
-def _report(args: argparse.Namespace) -> int:
+def _report_page(args: argparse.Namespace) -> int:
     from .report import make_report
 
     spec = load_spec(args.spec)
@@ -332,7 +332,7 @@ def _demo(args: argparse.Namespace) -> int:
 
 
 COMMANDS = {"build": _build, "validate": _validate, "demo": _demo, "init": _init,
-            "checks": _checks, "report": _report}
+            "checks": _checks, "report": _report_page}
 
 
 def main(argv: list[str] | None = None) -> int:
