@@ -127,15 +127,16 @@ WITH payers AS (
          first_month + months + 30
   FROM payers WHERE next_u < 0.75
 )
-SELECT t.member_id, p.plan, CAST(p.price AS DECIMAL(10, 2)) AS plan_amount,
-       p.every AS billing_interval,
-       CAST(DATE '2024-01-01' + to_months(t.start_month)
-            + to_days(CAST(floor(27 * {_u('t.member_no', 't.start_month', "'day'")}) AS INTEGER))
-            AS DATE) AS started_on,
-       CASE WHEN DATE '2024-01-01' + to_months(t.end_month) < DATE '{DATA_END}'
-            THEN CAST(DATE '2024-01-01' + to_months(t.end_month) AS DATE) END AS ended_on
-FROM terms AS t JOIN app.plans AS p USING (plan_no)
-WHERE DATE '2024-01-01' + to_months(t.start_month) < DATE '{DATA_END}';
+SELECT * FROM (
+  SELECT t.member_id, p.plan, CAST(p.price AS DECIMAL(10, 2)) AS plan_amount,
+         p.every AS billing_interval,
+         CAST(DATE '2024-01-01' + to_months(t.start_month)
+              + to_days(CAST(floor(27 * {_u('t.member_no', 't.start_month', "'day'")})
+                             AS INTEGER)) AS DATE) AS started_on,
+         CASE WHEN DATE '2024-01-01' + to_months(t.end_month) < DATE '{DATA_END}'
+              THEN CAST(DATE '2024-01-01' + to_months(t.end_month) AS DATE) END AS ended_on
+  FROM terms AS t JOIN app.plans AS p USING (plan_no)
+) WHERE started_on < DATE '{DATA_END}';
 
 CREATE OR REPLACE TABLE {MARKER_TABLE} AS SELECT 'sqlgen demo database' AS note;
 """

@@ -183,3 +183,17 @@ class Page:
 
 def available() -> bool:
     return find_chromium() is not None and os.name == "posix"
+
+
+if __name__ == "__main__":
+    # python tests/browser.py PAGE.html OUT.png [WIDTH HEIGHT]: a screenshot of the top of a
+    # page (how docs/report-screenshot.png is made from the demo's report).
+    import sys
+
+    page_path, out_path, *size = sys.argv[1:]
+    width, height = (int(size[0]), int(size[1])) if size else (1000, 1500)
+    with Browser.start() as browser:
+        opened = browser.open(Path(page_path), width=width, height=height)
+        if opened.console_errors:
+            sys.exit(f"console errors: {opened.console_errors}")
+        opened.screenshot(Path(out_path))

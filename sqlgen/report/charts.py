@@ -179,8 +179,7 @@ def net_change(rows: Rows, grain: str) -> Chart:
     base = alt.Chart(alt.Data(name=rows.view))
     bars = base.transform_calculate(sign="datum.net_change < 0 ? 'shrank' : 'grew'").mark_bar(
     ).encode(
-        x=_period_axis(alt, grain), y=alt.Y("net_change:Q", title="users (change on the "
-                                                                   "previous period)"),
+        x=_period_axis(alt, grain), y=alt.Y("net_change:Q", title="users, change on last period"),
         color=alt.Color("sign:N", title=None,
                         scale=alt.Scale(domain=["grew", "shrank"], range=[BLUE, ORANGE])),
         opacity=_opacity(alt),
