@@ -347,3 +347,44 @@ def test_postgres_gives_the_numbers_duckdb_gives(full, pg, tmp_path):
     # the views were created in a transaction rolled back: none is left behind
     assert engine.query("SELECT count(*) FROM information_schema.views "
                         "WHERE table_schema = 'growth'") == [(0,)]
+
+
+@pytest.mark.parametrize("kind", ["parquet", "csv"])
+def test_a_data_file_gives_the_numbers_of_the_database(full, tmp_path, kind):
+    """A Parquet or CSV file is read as the spec's activity table (named like the file)."""
+    _folder, db, _spec, _report = full
+    data = tmp_path / f"events.{kind}"
+    con = duckdb.connect(str(db), read_only=True)
+    con.execute(f"COPY app.events TO '{data}' (FORMAT {kind})")
+    con.close()
+    _path, spec = spec_file(tmp_path, MINIMAL)
+    on_file = run_report_views(spec, str(data), progress=False)
+    on_duckdb = run_report_views(spec, str(db), progress=False)
+    assert set(on_file) == {"activity_source_summary", "growth_accounting"}
+    for name, rows in on_duckdb.items():
+        assert on_file[name] == rows, name
+
+
+def test_progress_shows_on_a_terminal_only(monkeypatch):
+    from sqlgen.report import run
+
+    class Tty:
+        def __init__(self, tty):
+            self.tty = tty
+
+        def isatty(self):
+            return self.tty
+
+        def write(self, text):
+            return len(text)
+
+        def flush(self):
+            pass
+
+    monkeypatch.setattr(run.sys, "stderr", Tty(False))
+    assert isinstance(run._progress(5, None), run._Quiet)
+    monkeypatch.setattr(run.sys, "stderr", Tty(True))
+    bar = run._progress(5, None)
+    assert bar.total == 5 and bar.unit == "view"  # tqdm: one step per view
+    bar.close()
+    assert isinstance(run._progress(5, False), run._Quiet)

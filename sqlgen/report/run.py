@@ -16,11 +16,14 @@ from dataclasses import dataclass, replace
 from decimal import Decimal
 from pathlib import Path
 
+from sqlglot import exp
+
 from ..compiler import create_schema, ddl_statements, view_table
 from ..dialects import TARGETS
 from ..errors import SqlgenError
 from ..schema import _URL, redact, scrub
 from ..spec import Spec
+from ..support import require_support
 from ..views import planned_views
 
 # The views a report reads, each with the order its rows are read in.
@@ -51,7 +54,7 @@ class Rows:
     rows: tuple[tuple, ...]
 
     def records(self) -> list[dict]:
-        return [dict(zip(self.columns, row)) for row in self.rows]
+        return [dict(zip(self.columns, row, strict=True)) for row in self.rows]
 
 
 def plain(value: object) -> object:
@@ -81,6 +84,7 @@ def run_report_views(spec: Spec, source: str, progress: bool | None = None) -> d
         spec = session.adapt(spec)
         target = TARGETS[session.target]
         views = planned_views(spec)
+        require_support(spec, target, [view.name for view in views])
         steps = _progress(len(views), progress)
         found: dict[str, Rows] = {}
         try:
@@ -105,10 +109,10 @@ def run_report_views(spec: Spec, source: str, progress: bool | None = None) -> d
 
 
 def _read(session: Session, spec: Spec, target, name: str) -> Rows:
-    table = view_table(spec, name).sql(target.sqlglot_dialect)
-    order = ", ".join(REPORTED[name])
-    columns, rows = session.fetch(f"SELECT * FROM {table}" + (f" ORDER BY {order}" if order
-                                                                 else ""))
+    query = exp.select("*").from_(view_table(spec, name))
+    if REPORTED[name]:
+        query = query.order_by(*REPORTED[name])
+    columns, rows = session.fetch(query.sql(target.sqlglot_dialect))
     return Rows(name, columns, tuple(tuple(plain(v) for v in row) for row in rows))
 
 
@@ -226,16 +230,21 @@ def _data_file(spec: Spec, path: Path, kind: str) -> Session:
     if len({t for t in chosen}) != 1:
         raise ReportSourceError(f"{redact(str(path))}: the spec reads two tables; name the "
                                 "file after one of them, or use a DuckDB file holding both")
-    table = chosen[0]
+    table = chosen[0][-2:]  # schema.table: the file stands for that table in memory
+    node = exp.Table(this=exp.to_identifier(table[-1][0], quoted=True),
+                     db=exp.to_identifier(table[0][0], quoted=True) if len(table) > 1 else None)
+    reader = exp.Anonymous(this="read_parquet" if kind == "parquet" else "read_csv",
+                           expressions=[exp.Literal.string(str(path))])
     con = duckdb.connect(":memory:")
     con.execute("BEGIN")
-    name = ".".join('"' + part.replace('"', '""') + '"' for part, _quoted in table)
-    if len(table) > 1:
-        con.execute(f'CREATE SCHEMA IF NOT EXISTS "{table[-2][0].replace(chr(34), 2 * chr(34))}"')
-    reader = "read_parquet" if kind == "parquet" else "read_csv"
     try:
-        con.execute(f"CREATE VIEW {name} AS SELECT * FROM {reader}(?)", [str(path)])
+        if node.args.get("db"):
+            con.execute(exp.Create(this=exp.Table(this=node.args["db"].copy()), kind="SCHEMA",
+                                   exists=True).sql("duckdb"))
+        con.execute(exp.Create(this=node, kind="VIEW", expression=exp.select("*").from_(
+            reader)).sql("duckdb"))
     except duckdb.Error as err:
+        con.close()
         raise ReportSourceError(f"{redact(str(path))}: cannot be read as {kind} "
                                 f"({_first_line(err)})") from None
     return _duckdb(con)
