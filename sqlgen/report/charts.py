@@ -215,7 +215,8 @@ def _ratio_line(alt, base, field_: str, title: str, colour: str, grain: str, cap
 def _rule(alt, base, at: float, label: str):
     frame = alt.Chart(alt.Data(values=[{"y": at, "label": label}]))
     rule = frame.mark_rule(strokeDash=[5, 4], color="#555555").encode(y="y:Q")
-    text = frame.mark_text(align="left", baseline="bottom", dx=4, dy=-2, fontSize=10,
+    # Under the line: ratios of a growing base sit just above it.
+    text = frame.mark_text(align="left", baseline="top", dx=4, dy=3, fontSize=10,
                            color="#444444").encode(y="y:Q", x=alt.value(0), text="label:N")
     return rule, text
 
