@@ -231,7 +231,9 @@ def test_page_in_chromium_numbers_equal_the_database(full, browser):
     text = page.evaluate("document.body.innerText")
     assert "Management metrics, not audited figures" in text
     assert "per-user views" in text and "aggregates only" in text
-    assert "u01" not in page.evaluate("document.documentElement.outerHTML")  # no user keys
+    page_html = page.evaluate("document.documentElement.outerHTML")
+    assert "u01" not in page_html and "acme-" not in page_html  # no user or customer keys
+    assert "trailing_windows: [7, 28]" in page_html  # the spec, under a toggle
 
 
 def test_pngs_exist_with_the_stated_size(full):

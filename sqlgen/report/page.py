@@ -209,6 +209,15 @@ def _facts(spec: Spec, source: str, ran: str) -> str:
                             for k, v in items) + "</dl>"
 
 
+def _spec_text(spec: Spec) -> str:
+    """The spec file as it was read, under a toggle (nothing when it cannot be read)."""
+    try:
+        text = Path(spec.path or spec.file).read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError):
+        return ""
+    return (f"<details><summary>The spec</summary><pre>{html.escape(text)}</pre></details>")
+
+
 CSS = """
 :root { color-scheme: light; }
 * { box-sizing: border-box; }
@@ -243,6 +252,7 @@ thead th { position: sticky; top: 0; background: #f2f2f2; }
 th, td { padding: 2px 8px; border-bottom: 1px solid #eeeeee; }
 .n { text-align: right; } .t { text-align: left; }
 code { font-size: 12px; }
+pre { background: #f6f6f6; padding: 8px 10px; font-size: 12px; overflow-x: auto; }
 footer { margin-top: 40px; color: #555555; font-size: 12px; }
 @page { size: auto; margin: 12mm; }
 @media print {
@@ -333,7 +343,7 @@ def render_html(spec: Spec, source: str, found: dict[str, Rows], parts: list[c.S
         "img-src data:; font-src data:\">",
         f"<title>{html.escape(title)}</title>", f"<style>{CSS}</style>", "</head>",
         "<body>", "<main>", "<header>", "<h1>Growth report</h1>",
-        _facts(spec, source, ran),
+        _facts(spec, source, ran), _spec_text(spec),
         '<div class="caution" role="note">',
         "<p><strong>Management metrics, not audited figures.</strong> These numbers follow "
         "the source tables as the spec reads them; they are not financial statements nor "
