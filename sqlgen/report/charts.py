@@ -115,7 +115,8 @@ def _in_progress(alt, base, grain: str):
     flagged = base.transform_filter("datum.period_status == 'in_progress'")
     band = flagged.mark_rect(color=IN_PROGRESS_FILL, opacity=0.18).encode(
         x=_period_axis(alt, grain))
-    text = flagged.mark_text(align="right", baseline="top", dx=-4, dy=4, fontSize=10,
+    # Above the plot's top edge, clear of the marks inside the band.
+    text = flagged.mark_text(align="right", baseline="bottom", dx=0, dy=-3, fontSize=10,
                              color="#444444", angle=0).encode(
         x=alt.X("period_start:O", bandPosition=1), y=alt.value(0),
         text=alt.value("in progress"))
