@@ -7,6 +7,7 @@ Every customer, user and amount here is invented.
 
 from __future__ import annotations
 
+import base64
 import datetime as dt
 import json
 import os
@@ -390,3 +391,17 @@ def test_progress_shows_on_a_terminal_only(monkeypatch):
     assert bar.total == 5 and bar.unit == "view"  # tqdm: one step per view
     bar.close()
     assert isinstance(run._progress(5, False), run._Quiet)
+
+
+def test_the_page_fits_a4_and_letter_when_printed(full, browser):
+    """A4 less 12 mm margins each side is 186 mm = 703 CSS pixels (96 per inch), the
+    narrower of A4 and Letter (191.9 mm): printed, nothing is wider than that."""
+    _folder, _db, _spec, report = full
+    page = browser.open(report.html, width=703, height=1000)
+    page.send("Emulation.setEmulatedMedia", {"media": "print"})
+    widths = page.evaluate("document.querySelectorAll('details').forEach(d => d.open = true);"
+                           "[document.documentElement.scrollWidth, window.innerWidth]")
+    assert widths[0] <= widths[1] == 703, widths
+    pdf = page.send("Page.printToPDF", {"paperWidth": 8.27, "paperHeight": 11.69})["data"]
+    assert base64.b64decode(pdf)[:5] == b"%PDF-"
+    assert page.console_errors == []

@@ -240,7 +240,7 @@ nav ul { padding-left: 18px; margin: 4px 0; }
 .block { margin: 22px 0; page-break-inside: avoid; break-inside: avoid; }
 figure { margin: 0; }
 figcaption p { color: #555555; font-size: 13px; }
-.chart { width: 680px; max-width: 100%; margin: 6px 0; }
+.chart { width: 680px; max-width: 100%; margin: 6px 0; overflow: hidden; }
 .chart svg { max-width: 100%; height: auto; }
 .message { background: #f3f6fa; border-left: 4px solid #0072B2; padding: 10px 14px; }
 .png { font-size: 12px; color: #555555; margin: 0; }
