@@ -33,9 +33,7 @@ from sqlgen.spec import parse_spec
 pytest.importorskip("altair")
 pytest.importorskip("vl_convert")
 
-# One worker runs the whole module, so the browser and the full report start once; the
-# group is the one conftest gives this module's PostgreSQL test.
-pytestmark = [pytest.mark.slow, pytest.mark.xdist_group("postgres-test_report")]
+pytestmark = pytest.mark.slow
 
 SPEC = """\
 version: 1
@@ -145,7 +143,7 @@ def png_size(path: Path) -> tuple[int, int]:
     return struct.unpack(">II", data[16:24])
 
 
-@pytest.fixture(scope="module")
+@pytest.fixture(scope="session")  # once per worker, whatever runs in between
 def browser():
     if find_chromium() is None:
         if os.environ.get("CI") == "true":
@@ -158,7 +156,7 @@ def browser():
         pytest.fail(str(err))
 
 
-@pytest.fixture(scope="module")
+@pytest.fixture(scope="session")
 def full(tmp_path_factory):
     folder = tmp_path_factory.mktemp("report")
     db = duckdb_file(folder / "warehouse.duckdb", events(), plans())
