@@ -16,14 +16,14 @@ ensure_venv() {
 case "${1:-}" in
   demo)
     ensure_venv
-    "$VENV/bin/python" -m pip install -q .
+    "$VENV/bin/python" -m pip install -q '.[report]'
     shift
     exec "$VENV/bin/sqlgen" demo "$@"
     ;;
   test)
     ensure_venv
     bash .ci/setup_engines.sh
-    "$VENV/bin/python" -m pip install -q -e '.[test,bench]'
+    "$VENV/bin/python" -m pip install -q -e '.[test,bench,report]'
     # Only the CDNOW data file of this package is used; its own dependencies are not needed.
     "$VENV/bin/python" -m pip install -q --no-deps 'lifetimes==0.11.3'
     shift

@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# Install the system pieces the test engines need; safe to run again.
+# Install the system pieces the test engines (and the browser tests) need; safe to run again.
 # Python packages come from the project's own setup; servers are started by tests/engines.py.
 set -euo pipefail
 
@@ -23,6 +23,12 @@ fi
 if [ ! -x "$PG_BIN/initdb" ]; then
     apt-get update
     DEBIAN_FRONTEND=noninteractive apt-get install -y --no-install-recommends postgresql-15
+fi
+
+# Headless Chromium for the report page tests (tests/browser.py), from Debian's packages.
+if ! command -v chromium >/dev/null 2>&1; then
+    apt-get update
+    DEBIAN_FRONTEND=noninteractive apt-get install -y --no-install-recommends chromium
 fi
 
 # initdb refuses to run as root: the harness runs it as this unprivileged user.

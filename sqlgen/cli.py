@@ -133,6 +133,17 @@ def _parser() -> argparse.ArgumentParser:
     init.add_argument("--out", metavar="FILE", default="growth.yml",
                       help="the spec file to write (default: growth.yml); never overwritten")
 
+    report = sub.add_parser("report", help="run a spec's views on a source and write a "
+                                           "self-contained page of charts (report extra)")
+    report.add_argument("spec", help="the YAML spec file")
+    report.add_argument("--from", dest="source", required=True, metavar="SOURCE",
+                        help="where the spec's tables are: a DuckDB file, a Parquet or CSV "
+                             "file, or a postgresql:// URL (docs/report.md)")
+    report.add_argument("--out", default="report.html", metavar="FILE",
+                        help="the page to write (default: report.html); the PNGs go to "
+                             "FILE's name with -charts/ beside it")
+    report.add_argument("--no-png", action="store_true", help="write the page only")
+
     demo = sub.add_parser("demo", help="build and run the views on an invented demo dataset")
     demo.add_argument("--folder", default="sqlgen-demo", metavar="DIR",
                       help="where the demo database, spec and SQL go (default: sqlgen-demo)")
@@ -301,6 +312,18 @@ def _init(args: argparse.Namespace) -> int:
     return 0
 
 
+def _report_page(args: argparse.Namespace) -> int:
+    from .report import make_report
+
+    spec = load_spec(args.spec)
+    _warn(spec)
+    done = make_report(spec, args.source, Path(args.out), pngs=not args.no_png)
+    charts = printable(str(done.html.with_name(done.html.stem + "-charts")), False)
+    print(f"{printable(str(done.html), False)}: report written from {_label(args.source)}"
+          + (f"; {len(done.pngs)} PNG(s) in {charts}/" if done.pngs else ""))
+    return 0
+
+
 def _demo(args: argparse.Namespace) -> int:
     from .demo import run_demo
 
@@ -309,7 +332,7 @@ def _demo(args: argparse.Namespace) -> int:
 
 
 COMMANDS = {"build": _build, "validate": _validate, "demo": _demo, "init": _init,
-            "checks": _checks}
+            "checks": _checks, "report": _report_page}
 
 
 def main(argv: list[str] | None = None) -> int:

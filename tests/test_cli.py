@@ -137,6 +137,9 @@ def test_demo_prints_the_table(tmp_path):
     assert "Quillfinch" in result.stdout and "quick ratio" in result.stdout
     lines = [line for line in result.stdout.splitlines() if line[:4] in ("2024", "2025")]
     assert len(lines) == 24
+    # It ends with the report page's path (the page itself: tests/test_report.py).
+    assert result.stdout.splitlines()[-1] == str(tmp_path / "demo" / "report.html")
+    assert (tmp_path / "demo" / "report-charts" / "revenue.png").stat().st_size > 0
     again = sqlgen("demo", "--folder", str(tmp_path / "demo"))
     assert again.stdout == result.stdout  # seeded: the same every run
 
