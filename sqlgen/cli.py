@@ -155,8 +155,9 @@ def _buildable(spec: Spec, chosen: Dialects) -> list[str]:
     """The dialects to build. Any that cannot express the spec: with ``all``, skipped and
     listed on stderr with every reason (an error when none is left); when named, an error
     listing every gap of every named dialect."""
-    views = [view.name for view in planned_views(spec)]
-    found = {name: gaps(spec, TARGETS[name], views) for name in chosen.names}
+    found = {name: [gap for part in spec.parts()
+                    for gap in gaps(part, TARGETS[name], [v.name for v in planned_views(part)])]
+             for name in chosen.names}
     blocked = [gap for name in chosen.names for gap in found[name]]
     ok = [name for name in chosen.names if not found[name]]
     if blocked and (not chosen.every or not ok):
