@@ -391,7 +391,37 @@ def parse_spec(text: str, filename: str = "spec.yml") -> Spec:
     positions = {"": (root.line, root.col), **checker.positions}
     spec = replace(_build(values, filename, set(checker.positions)), positions=positions,
                    path=filename)
+    problems = _built_checks(spec, checker)
+    if problems:
+        raise SpecError(problems)
     return replace(spec, warnings=tuple(_warnings(checker, spec)))
+
+
+def _built_checks(spec: Spec, checker: _Checker) -> list[Problem]:
+    """Checks of values a definition may take from `activity` or the top level: a
+    report_from that would leave every period out; first_seen with trailing_windows."""
+    found = []
+    for part in spec.parts():
+        source = part.activity
+        at = f"definitions.{part.definition}" if part.definition else "activity"
+        if source is None:
+            continue
+        if source.report_from is not None and source.report_from >= source.valid_until:
+            key = next((k for k in (f"{at}.report_from", "activity.report_from", "report_from")
+                        if k in checker.positions), "report_from")
+            line, col = checker.positions[key]
+            found.append(Problem(checker.filename, line, col, key,
+                                 f"{source.report_from} is on or after valid_until "
+                                 f"{source.valid_until}{' of ' + at if part.definition else ''}"
+                                 ": every period would be left out; give an earlier date"))
+        if source.first_seen is not None and spec.trailing_windows:
+            line, col = checker.positions["trailing_windows"]
+            found.append(Problem(checker.filename, line, col, "trailing_windows",
+                                 f"trailing_activity does not read first_seen (set in {at}): "
+                                 "its new users would not follow the first-seen rule; "
+                                 "remove trailing_windows or first_seen"))
+            break
+    return found
 
 
 def _warnings(checker: _Checker, spec: Spec) -> list[Problem]:
