@@ -139,3 +139,35 @@ def test_hash_of_specs_without_the_new_keys_is_unchanged():
     assert before != parse_spec(GOOD + "report_from: 2024-01-01\n", "s.yml").digest()
     assert before != parse_spec(SEEN, "s.yml").digest()
     assert before != parse_spec(GOOD + "definitions:\n  b:\n", "s.yml").digest()
+
+
+def test_schema_check_reads_first_seen_and_definitions(tmp_path):
+    """validate --schema checks the users table and each definition's own keys, once each."""
+    import duckdb
+
+    from sqlgen.schema import open_source
+    from sqlgen.schemacheck import check_spec
+
+    path = tmp_path / "w.duckdb"
+    con = duckdb.connect(str(path))
+    con.execute("CREATE SCHEMA raw; CREATE SCHEMA app; "
+                "CREATE TABLE raw.app_events(user_id TEXT, occurred_at TIMESTAMP, event_name TEXT); "
+                "CREATE TABLE app.users(uid TEXT, signed_up_at TIMESTAMPTZ); "
+                "CREATE TABLE raw.orders(user_id TEXT, ordered_at DATE)")
+    con.close()
+    text = SEEN + ("definitions:\n  buyers:\n    table: raw.orders\n    timestamp: ordered_at\n"
+                   "  openers:\n    where: \"event_nam = 'x'\"\n")
+    found = [str(p) for p in check_spec(parse_spec(text, "s.yml"), open_source(str(path)))]
+    label = f"({path})"
+    assert found == [
+        f"s.yml:8:11: activity.first_seen.user: column 'user_id' is not in app.users {label}. "
+        "Did you mean 'uid'?",
+        "s.yml:9:16: activity.first_seen.timestamp: 'signed_up_at' is TIMESTAMP WITH TIME "
+        "ZONE, but activity.first_seen.timestamp_type is timestamp (an instant read as a local "
+        "time: the periods would move with the session's time zone); set timestamp_type: "
+        "timestamptz",
+        "s.yml:14:16: definitions.buyers.timestamp: 'ordered_at' is DATE, but "
+        "activity.timestamp_type is timestamp (the declared type must match the column's); "
+        "set timestamp_type: date",
+        f"s.yml:16:12: definitions.openers.where: column 'event_nam' is not in raw.app_events "
+        f"{label}. Did you mean 'event_name'?"]
