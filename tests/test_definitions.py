@@ -183,6 +183,45 @@ def test_first_seen_fixture(engines, engine_name, target):
                       COHORT_KEYS, rc.COHORT_COLUMNS)
 
 
+@pytest.mark.parametrize("engine_name,target", PAIRS)
+def test_first_seen_types_and_zone(engines, engine_name, target):
+    """The first-seen column as a date and as an instant, with a reporting zone (where the
+    target has zones): the users table's dates follow the activity's zone rule (an instant
+    is converted, a date used as stored); compared with the reference."""
+    from sqlgen.dialects import TARGETS
+    from sqlgen.support import support
+
+    engine = engines(engine_name)
+    raw = ref.read_fixture_events(ref.FIXTURES_DIR / "first_seen" / "events.csv")
+    events = [(u, ts) for u, ts, _name in raw]
+    zone = (None if support(TARGETS[target], "activity.timezone")[0] == "unsupported"
+            else "America/New_York")
+    # b's sign-up, 2024-02-01 00:00 UTC, is January 31 in New York: b is then resurrected.
+    as_kind = {"date": lambda ts: ts.date(),
+               "timestamptz": lambda ts: ts.replace(tzinfo=dt.UTC)}
+    for kind, convert in as_kind.items():
+        users = storable_rows(engine_name, [(u, None if ts is None else convert(ts))
+                                            for u, ts in first_seen_rows()])
+        engine.reset()
+        load_events(engine, raw, target=target)
+        load_users(engine, users, target, kind)
+        text = spec(target, first_seen=kind, cohorts=True)
+        if zone:
+            text = text.replace("  first_seen:", f"  timezone: {zone}\n  first_seen:")
+        create_views(engine, text, target)
+        got = views(engine, target, ["growth_accounting", "user_states", "cohort_retention"])
+        seen = ref.first_seen_dates(users, zone if kind != "date" else None)
+        assert_growth(got["growth_accounting"], ref.growth_accounting(
+            events, "month", timezone=zone, first_seen=seen))
+        assert states(got["user_states"]) == {(str(u), p, s) for u, p, s in ref.user_states(
+            events, "month", timezone=zone, first_seen=seen)}
+        assert_rows_match(got["cohort_retention"],
+                          rc.cohort_retention(events, "month", timezone=zone, first_seen=seen),
+                          COHORT_KEYS, rc.COHORT_COLUMNS)
+        if zone and kind == "timestamptz":
+            assert ("b", D(2024, 2, 1), "resurrected") in states(got["user_states"])
+
+
 # ------------------------------------------------------------------ hypothesis data
 
 REPORT_DATES = (None, D(2020, 1, 1), D(2020, 12, 29), D(2021, 3, 14), D(2024, 2, 29))
