@@ -94,6 +94,7 @@ def render(view: View, spec: Spec) -> str:
         source=spec.activity,
         revenue=spec.revenue,
         windows=spec.trailing_windows,
+        definitions=[d.name for d in spec.definitions],
         ref=lambda name: f"{VIEW_MARKER}{name}",
     )
 

@@ -171,3 +171,24 @@ def test_schema_check_reads_first_seen_and_definitions(tmp_path):
         "set timestamp_type: date",
         f"s.yml:16:12: definitions.openers.where: column 'event_nam' is not in raw.app_events "
         f"{label}. Did you mean 'event_name'?"]
+
+
+def test_create_all_and_checks_cover_every_definition():
+    """create_all.sql creates every definition's views on DuckDB; the checks query reads
+    each definition's source summary (rows with a NULL user, here)."""
+    import duckdb
+
+    from sqlgen.checks import checks_sql
+
+    text = GOOD + "definitions:\n  buyers:\n    where: \"event_name = 'purchase'\"\n"
+    spec = parse_spec(text, "s.yml")
+    con = duckdb.connect()
+    con.execute("CREATE SCHEMA raw; CREATE TABLE raw.app_events AS SELECT * FROM (VALUES "
+                "('a', TIMESTAMP '2024-01-05 10:00', 'purchase'), "
+                "(NULL, TIMESTAMP '2024-01-06 10:00', 'purchase'), "
+                "('b', TIMESTAMP '2024-02-01 10:00', 'app_opened')) "
+                "AS t(user_id, occurred_at, event_name)")
+    con.execute(render_files(spec)["create_all.sql"])
+    assert con.execute("SELECT COUNT(*) FROM buyers_growth_accounting").fetchone() == (1,)
+    assert sorted(con.execute(checks_sql(spec)).fetchall()) == [
+        ("activity", "null_user", 1), ("definitions.buyers", "null_user", 1)]
