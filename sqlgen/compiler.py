@@ -24,8 +24,8 @@ from .comments import comment_text
 from .errors import SqlgenError, UnsupportedError
 from .render import bind, parse, render, templates_dir
 from .spec import Spec
-from .support import require_support, spec_key, support
-from .views import View, planned, planned_views
+from .support import spec_gaps, spec_key, support
+from .views import View, planned
 
 CAUTION = ("Management metrics, not audited financial statements: check definitions before "
            "quoting a figure.")
@@ -268,8 +268,9 @@ def compile_spec(spec: Spec, target_name: str | None = None,
 
 
 def _compile(spec: Spec, target: Target, queries: Queries | None) -> list[CompiledView]:
-    for part in spec.parts():
-        require_support(part, target, [v.name for v in planned_views(part)])
+    found = spec_gaps(spec, target)
+    if found:
+        raise UnsupportedError.of(found)
     queries = queries or Queries(spec, [target])
     out = []
     for part, view in planned(spec):
@@ -344,8 +345,8 @@ def _statements(spec: Spec, views: list[tuple[Spec, View]], names: list[str],
     targets = []
     for name in names:
         try:
-            for part in spec.parts():
-                require_support(part, TARGETS[name], [v.name for v in planned_views(part)])
+            if spec_gaps(spec, TARGETS[name]):
+                continue
             targets.append(TARGETS[name])
         except SqlgenError:
             pass

@@ -192,3 +192,19 @@ def test_create_all_and_checks_cover_every_definition():
     assert con.execute("SELECT COUNT(*) FROM buyers_growth_accounting").fetchone() == (1,)
     assert sorted(con.execute(checks_sql(spec)).fetchall()) == [
         ("activity", "null_user", 1), ("definitions.buyers", "null_user", 1)]
+
+
+def test_a_definition_gap_names_the_definition_key():
+    """A target that cannot express a definition's key refuses it at the definition's
+    place and key, once per gap (not once per definition)."""
+    from sqlgen import UnsupportedError, compile_spec
+
+    text = ("version: 1\nactivity:\n  table: app_events\n  user: user_id\n  timestamp: ts\n"
+            "definitions:\n  ny:\n    timezone: America/New_York\n  other:\n"
+            "output:\n  dialect: sqlite\n")
+    with pytest.raises(UnsupportedError) as info:
+        compile_spec(parse_spec(text, "s.yml"))
+    assert [str(gap) for gap in info.value.gaps] == [
+        "s.yml:8:15: definitions.ny.timezone: dialect 'sqlite' cannot generate "
+        "activity.timezone: SQLite has no time zone database; convert to local time before "
+        "loading"]
