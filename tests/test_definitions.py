@@ -222,6 +222,26 @@ def test_first_seen_types_and_zone(engines, engine_name, target):
             assert ("b", D(2024, 2, 1), "resurrected") in states(got["user_states"])
 
 
+@pytest.mark.parametrize("engine_name,target", PAIRS)
+def test_report_from_in_engagement_and_trailing(engines, engine_name, target):
+    """report_from leaves out the engagement periods and trailing days before it; the rest
+    equal the reference's rows (tests/reference_cohorts.py), computed over all the data."""
+    engine = engines(engine_name)
+    events = ref.fixture_events("lifecycle")
+    engine.reset()
+    load_events(engine, events, target=target)
+    report = D(2023, 5, 15)
+    text = spec(target, report_from=report) + "engagement: true\ntrailing_windows: [7, 28]\n"
+    create_views(engine, text, target)
+    got = views(engine, target, ["engagement_depth", "trailing_activity"])
+    depth = [r for r in rc.engagement_depth(events, "month") if r["period_start"] >= D(2023, 5, 1)]
+    assert_rows_match(got["engagement_depth"], depth, ("period_start", "active_days"),
+                      rc.ENGAGEMENT_COLUMNS)
+    trailing = [r for r in rc.trailing_activity(events, (7, 28)) if r["day"] >= report]
+    assert_rows_match(got["trailing_activity"], trailing, ("window_days", "day"),
+                      rc.TRAILING_COLUMNS)
+
+
 # ------------------------------------------------------------------ hypothesis data
 
 REPORT_DATES = (None, D(2020, 1, 1), D(2020, 12, 29), D(2021, 3, 14), D(2024, 2, 29))
