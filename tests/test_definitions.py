@@ -39,6 +39,18 @@ def load_users(engine, rows, target: str, kind: str = "timestamp") -> None:
                         rows)
 
 
+def storable_users(engine_name: str, rows):
+    """The users rows an engine can load: harness.storable_rows, and on MySQL no instant
+    outside what its TIMESTAMP holds (strategies.MYSQL_INSTANTS)."""
+    rows = storable_rows(engine_name, rows)
+    if engine_name != "mysql":
+        return rows
+    low, high = strategies.MYSQL_INSTANTS
+    return [(u, ts) for u, ts in rows
+            if not (isinstance(ts, dt.datetime) and ts.tzinfo is not None)
+            or low <= ts.replace(tzinfo=None) <= high]
+
+
 def spec(target: str, grain: str = "month", week_start: str = "monday", *,
          first_seen: str | None = None, report_from=None, definitions: str = "",
          cohorts: bool = False) -> str:
@@ -199,9 +211,11 @@ def test_first_seen_types_and_zone(engines, engine_name, target):
     # b's sign-up, 2024-02-01 00:00 UTC, is January 31 in New York: b is then resurrected.
     as_kind = {"date": lambda ts: ts.date(),
                "timestamptz": lambda ts: ts.replace(tzinfo=dt.UTC)}
+    if engine_name == "spark":  # the slowest engine: the instant case only (CI budget)
+        as_kind.pop("date")
     for kind, convert in as_kind.items():
-        users = storable_rows(engine_name, [(u, None if ts is None else convert(ts))
-                                            for u, ts in first_seen_rows()])
+        users = storable_users(engine_name, [(u, None if ts is None else convert(ts))
+                                             for u, ts in first_seen_rows()])
         engine.reset()
         load_events(engine, raw, target=target)
         load_users(engine, users, target, kind)
@@ -271,7 +285,7 @@ purchasers:
 def test_random_data_matches_reference(engines, engine_name, target):
     engine = engines(engine_name)
 
-    @settings(max_examples=max(2, HYPOTHESIS_EXAMPLES[engine_name] // 2))
+    @settings(max_examples=max(1, HYPOTHESIS_EXAMPLES[engine_name] // 2))
     @given(case=cases(engine=engine_name))
     def check(case):
         raw, users, grain, week_start, report_from = case
