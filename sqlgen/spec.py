@@ -502,7 +502,7 @@ def _view_key(name: str) -> str:
 
 def _activity_view_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
     """engagement and trailing_windows read activity: refuse them in a spec without it."""
-    if v.get("activity") or not v.get("revenue"):
+    if v.get("activity") or v.get("definitions") or not v.get("revenue"):
         return
     for name in ("engagement", "trailing_windows"):
         node = root.value.get(name)

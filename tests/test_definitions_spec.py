@@ -208,3 +208,17 @@ def test_a_definition_gap_names_the_definition_key():
         "s.yml:8:15: definitions.ny.timezone: dialect 'sqlite' cannot generate "
         "activity.timezone: SQLite has no time zone database; convert to local time before "
         "loading"]
+
+
+def test_revenue_with_definitions_and_no_activity():
+    """A spec may hold revenue and definitions only: the activity views are the
+    definitions' (engagement is then allowed), revenue's keep their names."""
+    text = ("version: 1\nrevenue:\n  table: billing.charges\n  customer: account_id\n"
+            "  timestamp: charged_at\n  amount: amount\ndefinitions:\n  buyers:\n"
+            "    table: shop.orders\n    user: customer_id\n    timestamp: ordered_at\n"
+            "engagement: true\ncohorts: true\n")
+    assert file_names(parse_spec(text, "s.yml")) == [
+        "revenue_source_summary.sql", "customer_revenue.sql", "revenue_accounting.sql",
+        "revenue_cohorts.sql", "buyers_activity_source_summary.sql", "buyers_user_activity.sql",
+        "buyers_user_states.sql", "buyers_growth_accounting.sql", "buyers_cohort_retention.sql",
+        "buyers_engagement_depth.sql", "create_all.sql"]
