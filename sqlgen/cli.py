@@ -21,8 +21,7 @@ from .errors import EXIT_OUTPUT, SpecError, SqlgenError, UnsupportedError
 from .output import (check_files, is_up_to_date, plan_folder, refuse, spec_owner, tidy,
                      write_folders)
 from .spec import Spec, load_spec
-from .support import gaps
-from .views import planned_views
+from .support import spec_gaps
 
 
 @dataclass(frozen=True)
@@ -166,8 +165,7 @@ def _buildable(spec: Spec, chosen: Dialects) -> list[str]:
     """The dialects to build. Any that cannot express the spec: with ``all``, skipped and
     listed on stderr with every reason (an error when none is left); when named, an error
     listing every gap of every named dialect."""
-    views = [view.name for view in planned_views(spec)]
-    found = {name: gaps(spec, TARGETS[name], views) for name in chosen.names}
+    found = {name: spec_gaps(spec, TARGETS[name]) for name in chosen.names}
     blocked = [gap for name in chosen.names for gap in found[name]]
     ok = [name for name in chosen.names if not found[name]]
     if blocked and (not chosen.every or not ok):

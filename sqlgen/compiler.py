@@ -24,8 +24,8 @@ from .comments import comment_text
 from .errors import SqlgenError, UnsupportedError
 from .render import bind, parse, render, templates_dir
 from .spec import Spec
-from .support import require_support, spec_key, support
-from .views import View, planned_views
+from .support import spec_gaps, spec_key, support
+from .views import View, planned
 
 CAUTION = ("Management metrics, not audited financial statements: check definitions before "
            "quoting a figure.")
@@ -44,6 +44,7 @@ class CompiledView:
     qualified_name: str
     statements: tuple[str, ...]
     text: str  # the file's content
+    part: Spec | None = None  # the part of the spec it belongs to (Spec.parts)
 
 
 def view_table(spec: Spec, name: str) -> exp.Table:
@@ -80,26 +81,30 @@ class Queries:
         self._shared = first[:shared]
         self._rest = {name: chain[shared:] for name, chain in chains.items()}
         self._uses = len(targets)
-        self._trees: dict[str, tuple[exp.Expression, int]] = {}  # view -> (tree, uses left)
-        # (target, view) -> statements compiled ahead, in other processes (render_targets)
-        self.statements: dict[tuple[str, str], tuple[str, ...]] = {}
+        # (definition, view) -> (tree, uses left)
+        self._trees: dict[tuple[str, str], tuple[exp.Expression, int]] = {}
+        # (target, definition, view) -> statements compiled ahead, in other processes
+        # (render_targets)
+        self.statements: dict[tuple[str, str, str], tuple[str, ...]] = {}
 
-    def query(self, view: View, target: Target) -> exp.Expression:
-        """The view's SELECT rewritten for ``target`` (one of this build's targets)."""
+    def query(self, view: View, target: Target, part: Spec | None = None) -> exp.Expression:
+        """The view's SELECT rewritten for ``target`` (one of this build's targets), for
+        a part of the spec (``Spec.parts``; by default the spec itself)."""
+        part = part or self.spec
         if target.name not in self._rest:
-            return Queries(self.spec, [target]).query(view, target)
-        tree, left = self._trees.get(view.name) or (self._prepared(view), self._uses)
+            return Queries(part, [target]).query(view, target)
+        key = (part.definition, view.name)
+        tree, left = self._trees.get(key) or (self._prepared(view, part), self._uses)
         if left > 1:
-            self._trees[view.name] = (tree, left - 1)
+            self._trees[key] = (tree, left - 1)
             tree = tree.copy()
         else:  # the last use takes the tree itself; a further call prepares it again
-            self._trees.pop(view.name, None)
+            self._trees.pop(key, None)
         for rewrite in self._rest[target.name]:
             tree = rewrite(tree)
         return tree
 
-    def _prepared(self, view: View) -> exp.Expression:
-        spec = self.spec
+    def _prepared(self, view: View, spec: Spec) -> exp.Expression:
         tree = _without_positions(parse(render(view, spec)))
         tree = bind(tree, spec, lambda name: view_table(spec, name))
         for rewrite in self._shared:
@@ -130,8 +135,9 @@ def _without_positions(tree: exp.Expression) -> exp.Expression:
 
 def compile_query(view: View, spec: Spec, target: Target,
                   queries: Queries | None = None) -> exp.Expression:
-    """The view's SELECT as a sqlglot tree rewritten for the target."""
-    return (queries or Queries(spec, [target])).query(view, target)
+    """The view's SELECT as a sqlglot tree rewritten for the target (``spec`` may be a
+    part of the spec of ``queries``)."""
+    return (queries or Queries(spec, [target])).query(view, target, spec)
 
 
 def _generate(node: exp.Expression, target: Target, key: str) -> str:
@@ -174,7 +180,8 @@ def header(spec: Spec, target: Target, view: View | None) -> list[str]:
     and ``where`` text cannot end the comment line they are shown on.
     """
     lines = [
-        f"{__version__} from {spec.file} (spec {spec.digest()}); target {target.name}.",
+        f"{__version__} from {spec.file} (spec {(spec.parent or spec).digest()}); "
+        f"target {target.name}.",
         "Do not edit: change the spec and run `sqlgen build` again.",
     ]
     if view is not None:
@@ -194,10 +201,11 @@ def deciding_lines(spec: Spec, view: View | None) -> list[str]:
     """What decides a view's numbers (all the spec's sources for create_all.sql): source
     tables, grain and week start, timestamp type and time zone, ``where``, valid range."""
     sections = [("activity", spec.activity), ("revenue", spec.revenue)]
-    lines = []
+    lines = [f"activity definition: {spec.definition}"] if spec.definition else []
     for name, source in sections:
         if source is not None and (view is None or view.reads == name):
             lines += _source_lines(name, source)
+            lines += _activity_lines(source) if name == "activity" else []
     lines.append(f"grain: {spec.grain}"
                  + (f", weeks start on {spec.week_start}" if spec.grain == "week" else ""))
     return lines
@@ -215,6 +223,20 @@ def _source_lines(name: str, source) -> list[str]:
     if low is not None or high is not None:
         lines.append(f"{what} valid range: {low or 'open'} to {high or 'open'}; rows "
                      "outside it are left out")
+    return lines
+
+
+def _activity_lines(source) -> list[str]:
+    """First-seen dates and the reporting start, when the spec sets them."""
+    lines = []
+    seen = source.first_seen
+    if seen is not None:
+        lines.append(f"first seen: {names.display(seen.table)}, the earliest row per user; "
+                     "a user first seen before their first active period is resurrected "
+                     "in it, not new")
+    if source.report_from is not None:
+        lines.append(f"report from: {source.report_from}; earlier periods are computed "
+                     "but not shown")
     return lines
 
 
@@ -246,18 +268,19 @@ def compile_spec(spec: Spec, target_name: str | None = None,
 
 
 def _compile(spec: Spec, target: Target, queries: Queries | None) -> list[CompiledView]:
-    views = planned_views(spec)
-    require_support(spec, target, [v.name for v in views])
+    found = spec_gaps(spec, target)
+    if found:
+        raise UnsupportedError.of(found)
     queries = queries or Queries(spec, [target])
     out = []
-    for view in views:
-        statements = (queries.statements.get((target.name, view.name))
-                      or ddl_statements(view, spec, target, queries))
+    for part, view in planned(spec):
+        statements = (queries.statements.get((target.name, part.definition, view.name))
+                      or ddl_statements(view, part, target, queries))
         body = "\n\n".join(s + ";" for s in statements)
-        text = "\n".join(header(spec, target, view)) + "\n\n" + body + "\n"
-        out.append(CompiledView(view, view_table(spec, view.name).sql(target.sqlglot_dialect,
+        text = "\n".join(header(part, target, view)) + "\n\n" + body + "\n"
+        out.append(CompiledView(view, view_table(part, view.name).sql(target.sqlglot_dialect,
                                                                       copy=False),
-                                statements, text))
+                                statements, text, part))
     return out
 
 
@@ -266,7 +289,8 @@ def file_names(spec: Spec) -> list[str]:
     each created view's own name (prefix included) and ``<prefix>create_all.sql``. The one
     place that names files, so that specs with other prefixes share a folder."""
     prefix = spec.output.prefix
-    return [f"{prefix}{view.name}.sql" for view in planned_views(spec)] + [prefix + CREATE_ALL]
+    return ([f"{part.output.prefix}{view.name}.sql" for part, view in planned(spec)]
+            + [prefix + CREATE_ALL])
 
 
 def render_files(spec: Spec, target_name: str | None = None,
@@ -288,7 +312,7 @@ def render_targets(spec: Spec, target_names: list[str],
     way, and so is the error: the first one met compiling target by target, view by view.
     """
     queries = Queries(spec, [TARGETS[name] for name in target_names])
-    views = planned_views(spec)
+    views = planned(spec)
     jobs = min(jobs, len(views))
     if jobs > 1 and sys.platform.startswith("linux") and threading.active_count() == 1:
         names = list(dict.fromkeys(target_names))
@@ -314,22 +338,24 @@ def render_targets(spec: Spec, target_names: list[str],
     return {name: render_files(spec, name, queries) for name in target_names}
 
 
-def _statements(spec: Spec, views: list[View], names: list[str],
-                queries: Queries) -> dict[tuple[str, str], tuple[str, ...]]:
-    """(target, view) -> DDL statements for these views and targets; what fails is left out."""
-    every_view = [v.name for v in planned_views(spec)]
+def _statements(spec: Spec, views: list[tuple[Spec, View]], names: list[str],
+                queries: Queries) -> dict[tuple[str, str, str], tuple[str, ...]]:
+    """(target, definition, view) -> DDL statements for these (part, view) pairs and
+    targets; what fails is left out."""
     targets = []
     for name in names:
         try:
-            require_support(spec, TARGETS[name], every_view)
+            if spec_gaps(spec, TARGETS[name]):
+                continue
             targets.append(TARGETS[name])
         except SqlgenError:
             pass
     done = {}
-    for view in views:
+    for part, view in views:
         for target in targets:
             try:
-                done[(target.name, view.name)] = ddl_statements(view, spec, target, queries)
+                done[(target.name, part.definition, view.name)] = ddl_statements(
+                    view, part, target, queries)
             except SqlgenError:
                 pass
     return done
@@ -408,7 +434,8 @@ def _create_all(spec: Spec, target: Target, compiled: list[CompiledView]) -> str
     statements = [s for s in (create_schema(spec, target),) if s]
     if target.view_ddl == "replace" and target.ddl_note:
         for c in reversed(compiled):
-            drop = exp.Drop(tables=[view_table(spec, c.view.name)], kind="VIEW", exists=True,
+            drop = exp.Drop(tables=[view_table(c.part or spec, c.view.name)], kind="VIEW",
+                            exists=True,
                             cascade=True)
             statements.append(_generate(drop, target, "view DDL"))
     run = _through_exec if target.exec_batch else (lambda statement: statement + ";")

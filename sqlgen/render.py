@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import datetime as dt
 import functools
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from importlib import resources
 from pathlib import Path
 
@@ -94,6 +94,7 @@ def render(view: View, spec: Spec) -> str:
         source=spec.activity,
         revenue=spec.revenue,
         windows=spec.trailing_windows,
+        definitions=[d.name for d in spec.definitions],
         ref=lambda name: f"{VIEW_MARKER}{name}",
     )
 
@@ -126,8 +127,24 @@ def markers(spec: Spec) -> Markers:
         tables["__activity_table__"] = names.table(source.table)
         literals["__timezone__"] = exp.Literal.string(source.timezone or "UTC")
         literals.update(_range_markers("activity", source))
+        _first_seen_markers(source, columns, tables, literals)
+        if source.report_from is not None:
+            literals["__report_from__"] = exp.Literal.string(source.report_from.isoformat())
     _revenue_markers(spec, columns, tables, literals)
     return Markers(columns, tables, literals)
+
+
+def _first_seen_markers(source, columns: dict, tables: dict, literals: dict) -> None:
+    """Markers of the first-seen table: ``__seen_table__``, ``__seen_user__``,
+    ``__seen_timestamp__`` and its near-range bounds (``'__seen_near_from__'``...), in the
+    type of its own column and the valid range of the activity."""
+    seen = source.first_seen
+    if seen is None:
+        return
+    columns["__seen_user__"] = names.column(seen.user)
+    columns["__seen_timestamp__"] = names.column(seen.timestamp)
+    tables["__seen_table__"] = names.table(seen.table)
+    literals.update(_range_markers("seen", replace(source, timestamp_type=seen.timestamp_type)))
 
 
 def _revenue_markers(spec: Spec, columns: dict, tables: dict, literals: dict) -> None:

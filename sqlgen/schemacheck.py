@@ -58,6 +58,8 @@ def _attr(name: str) -> Callable[[Any], names.Part | None]:
 COLUMN_USES: tuple[ColumnUse, ...] = (
     ColumnUse("activity", "user", "key", _attr("user")),
     ColumnUse("activity", "timestamp", "time", _attr("timestamp")),
+    ColumnUse("activity.first_seen", "user", "key", _attr("user")),
+    ColumnUse("activity.first_seen", "timestamp", "time", _attr("timestamp")),
     ColumnUse("revenue", "customer", "key", _attr("customer")),
     ColumnUse("revenue", "timestamp", "time", _attr("timestamp")),
     ColumnUse("revenue", "start", "time", _attr("start")),
@@ -65,14 +67,34 @@ COLUMN_USES: tuple[ColumnUse, ...] = (
     ColumnUse("revenue", "amount", "money", _attr("amount")),
     ColumnUse("revenue", "interval_column", "text", _attr("interval_column")),
 )
-SECTIONS = ("activity", "revenue")
+SECTIONS = ("activity", "activity.first_seen", "revenue")
+
+
+def _section(spec: Spec, name: str) -> Any:
+    """The section a spec path names (``activity.first_seen``: the activity's users table)."""
+    found: Any = spec
+    for step in name.split("."):
+        found = getattr(found, step, None) if found is not None else None
+    return found
 
 
 def check_spec(spec: Spec, catalog: Catalog) -> list[Problem]:
-    """Every problem of ``spec`` against the tables of ``catalog`` (empty when none)."""
+    """Every problem of ``spec`` against the tables of ``catalog`` (empty when none): its
+    own sections, then each definition's (a key it takes from `activity` is reported once,
+    under `activity`)."""
+    problems: list[Problem] = []
+    for part in spec.parts():
+        for problem in _check_part(part, catalog):
+            problem = _relabel(spec, part, problem)
+            if problem not in problems:
+                problems.append(problem)
+    return problems
+
+
+def _check_part(spec: Spec, catalog: Catalog) -> list[Problem]:
     problems: list[Problem] = []
     for name in SECTIONS:
-        section = getattr(spec, name, None)
+        section = _section(spec, name)
         if section is None:
             continue
         table = catalog.find(section.table)
@@ -82,6 +104,19 @@ def check_spec(spec: Spec, catalog: Catalog) -> list[Problem]:
             continue
         problems += _check_section(spec, name, section, table, catalog)
     return problems
+
+
+def _relabel(spec: Spec, part: Spec, problem: Problem) -> Problem:
+    """A definition's problem under its own key when the definition wrote it."""
+    if not part.definition or not problem.key.startswith("activity"):
+        return problem
+    own = f"definitions.{part.definition}" + problem.key[len("activity"):]
+    written = own
+    while written and written not in spec.positions:
+        written = written.rpartition(".")[0]
+    if written.count(".") <= 1:  # taken from activity: reported there
+        return _problem(spec, problem.key, problem.message)
+    return _problem(spec, own, problem.message)
 
 
 def _check_section(spec: Spec, name: str, section: Any, table: Table,
@@ -109,7 +144,7 @@ def _named_columns(spec: Spec, name: str, section: Any
                 yield f"{name}.{use.key}", part, use.use
         for suffix, part in (use.many(section) if use.many else []):
             yield f"{name}.{use.key}{suffix}", part, use.use
-    if section.where:
+    if getattr(section, "where", None):
         for part in where_columns(section.where, spec):
             yield f"{name}.where", part, "any"
 

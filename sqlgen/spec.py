@@ -89,6 +89,36 @@ KEYS: tuple[Key, ...] = (
         "First local date after the valid rows (exclusive). Rows dated on or after it are "
         "left out and counted like those before `valid_from`; the default leaves out the "
         "sentinel 9999-12-31.", default=VALID_UNTIL, example="2031-01-01"),
+    Key("activity.first_seen", "mapping",
+        "Optional table with the date each user was first seen (signed up): a user first "
+        "seen in a period before their first active period is resurrected, not new, in it; "
+        "cohorts are by first-seen period. A user's earliest row counts; see "
+        "docs/definitions.md."),
+    Key("activity.first_seen.table", "table", "Users table, optionally qualified: `app.users`.",
+        required=True, example="app.users"),
+    Key("activity.first_seen.user", "column",
+        "Column of that table holding the user key (the same values as `activity.user`).",
+        required=True, example="user_id"),
+    Key("activity.first_seen.timestamp", "column",
+        "Column holding when the user was first seen. Converted to a local date like the "
+        "activity timestamp; NULL or outside the valid range: not seen.", required=True,
+        example="signed_up_at"),
+    Key("activity.first_seen.timestamp_type", "choice",
+        "Type of that column, as for `activity.timestamp_type`.", default="timestamp",
+        choices=TIMESTAMP_TYPES),
+    Key("activity.report_from", "date",
+        "Optional first date to report, a date like `2023-01-01`: every view leaves out the "
+        "periods before the one holding it (they are still computed, so the states of the "
+        "first period shown are known). Overrides the top-level `report_from`.",
+        example="2023-01-01"),
+    Key("definitions", "definitions",
+        "Optional further activity definitions, by name: each takes the keys of `activity` "
+        "(a key left out is taken from `activity`, except `where`) and gets its own views, "
+        "named `<prefix><name>_<view>` (see docs/definitions.md).",
+        example="{purchasers: {where: \"event_name = 'purchase'\"}}"),
+    Key("report_from", "date",
+        "Optional first date to report for every activity definition without its own "
+        "`report_from`.", example="2023-01-01"),
     Key("revenue", "mapping",
         "Where recurring revenue comes from, in one currency (see docs/revenue.md). A spec "
         "needs `activity`, `revenue` or both."),
@@ -185,6 +215,16 @@ KEYS_BY_PATH = {key.path: key for key in KEYS}
 
 
 @dataclass(frozen=True)
+class FirstSeen:
+    """A users table with the date each user was first seen (``activity.first_seen``)."""
+
+    table: tuple[names.Part, ...]
+    user: names.Part
+    timestamp: names.Part
+    timestamp_type: str
+
+
+@dataclass(frozen=True)
 class ActivitySource:
     table: tuple[names.Part, ...]
     user: names.Part
@@ -194,6 +234,16 @@ class ActivitySource:
     timezone: str | None
     valid_from: dt.date = VALID_FROM
     valid_until: dt.date = VALID_UNTIL
+    first_seen: FirstSeen | None = None
+    report_from: dt.date | None = None
+
+
+@dataclass(frozen=True)
+class Definition:
+    """A further activity definition (``definitions.<name>``): its own source and views."""
+
+    name: str
+    source: ActivitySource
 
 
 @dataclass(frozen=True)
@@ -253,6 +303,26 @@ class Spec:
     path: str = field(default="", compare=False, repr=False)
     # Located notes about keys that are valid but have no effect; the caller shows them.
     warnings: tuple[Problem, ...] = field(default=(), compare=False, repr=False)
+    definitions: tuple[Definition, ...] = ()
+    # A part of a spec with definitions (see ``parts``): the definition's name, and the spec.
+    definition: str = field(default="", compare=False)
+    parent: Spec | None = field(default=None, compare=False, repr=False)
+
+    def parts(self) -> tuple[Spec, ...]:
+        """The spec itself (its `activity` and `revenue` views), then one spec per
+        definition: its source as `activity`, no revenue, and the prefix
+        ``<prefix><name>_``. Compiling each part compiles the whole spec."""
+        subs = []
+        for d in self.definitions:
+            at = f"definitions.{d.name}"
+            positions = {**self.positions, **{"activity" + k[len(at):]: pos
+                                             for k, pos in self.positions.items()
+                                             if k == at or k.startswith(at + ".")}}
+            subs.append(replace(self, activity=d.source, revenue=None, definitions=(),
+                                output=replace(self.output,
+                                               prefix=f"{self.output.prefix}{d.name}_"),
+                                definition=d.name, parent=self, positions=positions))
+        return (self, *subs)
 
     def where(self, key: str) -> str:
         """``file:line:col`` of a spec key (or the nearest section written), for messages."""
@@ -277,7 +347,13 @@ class Spec:
         for name, off in (("cohorts", False), ("engagement", False), ("trailing_windows", [])):
             if data.get(name) == off:
                 data.pop(name)  # nor do specs without these views
-        for source in (data.get("activity"), data.get("revenue")):
+        if not data.get("definitions"):
+            data.pop("definitions", None)  # specs without definitions keep their hash
+        else:
+            data["definitions"] = [asdict(d) for d in self.definitions]
+        sources = [data.get("activity"), data.get("revenue")]
+        sources += [d["source"] for d in data.get("definitions", [])]
+        for source in sources:
             _range_digest(source or {})
         text = json.dumps(data, sort_keys=True, separators=(",", ":"))
         return hashlib.sha256(text.encode()).hexdigest()[:16]
@@ -286,12 +362,13 @@ class Spec:
 def _range_digest(source: dict[str, Any]) -> None:
     """A source's valid range in the digest only when set away from the default (specs
     written before the range existed keep their hash), as ISO text."""
-    for name, default in (("valid_from", VALID_FROM), ("valid_until", VALID_UNTIL)):
+    for name, default in (("valid_from", VALID_FROM), ("valid_until", VALID_UNTIL),
+                          ("report_from", None), ("first_seen", None)):
         if name not in source:
             continue
         if source[name] == default:
-            source.pop(name)
-        else:
+            source.pop(name)  # (first_seen and report_from: specs without them, as before)
+        elif isinstance(source[name], dt.date):
             source[name] = source[name].isoformat()
 
 
@@ -312,8 +389,39 @@ def parse_spec(text: str, filename: str = "spec.yml") -> Spec:
     if checker.problems:
         raise SpecError(checker.problems)
     positions = {"": (root.line, root.col), **checker.positions}
-    spec = replace(_build(values, filename), positions=positions, path=filename)
+    spec = replace(_build(values, filename, set(checker.positions)), positions=positions,
+                   path=filename)
+    problems = _built_checks(spec, checker)
+    if problems:
+        raise SpecError(problems)
     return replace(spec, warnings=tuple(_warnings(checker, spec)))
+
+
+def _built_checks(spec: Spec, checker: _Checker) -> list[Problem]:
+    """Checks of values a definition may take from `activity` or the top level: a
+    report_from that would leave every period out; first_seen with trailing_windows."""
+    found = []
+    for part in spec.parts():
+        source = part.activity
+        at = f"definitions.{part.definition}" if part.definition else "activity"
+        if source is None:
+            continue
+        if source.report_from is not None and source.report_from >= source.valid_until:
+            key = next((k for k in (f"{at}.report_from", "activity.report_from", "report_from")
+                        if k in checker.positions), "report_from")
+            line, col = checker.positions[key]
+            found.append(Problem(checker.filename, line, col, key,
+                                 f"{source.report_from} is on or after valid_until "
+                                 f"{source.valid_until}{' of ' + at if part.definition else ''}"
+                                 ": every period would be left out; give an earlier date"))
+        if source.first_seen is not None and spec.trailing_windows:
+            line, col = checker.positions["trailing_windows"]
+            found.append(Problem(checker.filename, line, col, "trailing_windows",
+                                 f"trailing_activity does not read first_seen (set in {at}): "
+                                 "its new users would not follow the first-seen rule; "
+                                 "remove trailing_windows or first_seen"))
+            break
+    return found
 
 
 def _warnings(checker: _Checker, spec: Spec) -> list[Problem]:
@@ -332,7 +440,7 @@ def _warnings(checker: _Checker, spec: Spec) -> list[Problem]:
 def _cross_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
     if not isinstance(root.value, dict):
         return
-    if not v.get("activity") and not v.get("revenue"):
+    if not v.get("activity") and not v.get("revenue") and not v.get("definitions"):
         checker.report((root.line, root.col), "activity",
                        "required key is missing from the spec; a spec needs activity, "
                        "revenue or both")
@@ -341,15 +449,60 @@ def _cross_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
         if section is not None and isinstance(section.value, dict):
             _date_zone_check(checker, section, name, v)
             _range_checks(checker, section, name, v)
+    _definition_checks(checker, root, v)
     revenue = root.value.get("revenue")
     if revenue is not None and isinstance(revenue.value, dict):
         _revenue_shape_checks(checker, revenue, v)
     _activity_view_checks(checker, root, v)
 
 
+PG_NAME_LIMIT = 63  # PostgreSQL cuts longer identifiers (NAMEDATALEN - 1, from its manual)
+
+
+def _definition_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
+    """Each definition has the keys it cannot take from `activity`, and names views that
+    collide with no other view's name (without case, and cut as PostgreSQL cuts them)."""
+    from .views import VIEWS  # views reads the Spec type
+
+    node = root.value.get("definitions")
+    if node is None or not isinstance(node.value, dict):
+        return
+    prefix = v.get("output.prefix") or ""
+    taken = {_view_key(prefix + view.name): view.name for view in VIEWS}
+    for name in v.get("definitions") or ():
+        pos = node.key_pos[name]
+        path = f"definitions.{name}"
+        if not v.get("activity"):
+            for leaf in ("table", "user", "timestamp"):
+                if f"{path}.{leaf}" not in checker.positions:
+                    example = KEYS_BY_PATH[f"activity.{leaf}"].example
+                    checker.report(pos, f"{path}.{leaf}",
+                                   f"required key is missing from {path} (the spec has no "
+                                   f"activity section to take it from); e.g. {leaf}: {example}")
+        for view in VIEWS:
+            full = f"{prefix}{name}_{view.name}"
+            if len(full) > PG_NAME_LIMIT:
+                checker.report(pos, path,
+                               f"gives the view name {full} ({len(full)} characters), longer "
+                               f"than the {PG_NAME_LIMIT} PostgreSQL keeps, so names could "
+                               "collide; use a shorter name")
+                break
+            other = taken.get(_view_key(full))
+            if other is not None:
+                checker.report(pos, path, f"gives the view name {full}, the same as the "
+                               f"view {prefix}{other}; rename the definition")
+                break
+            taken[_view_key(full)] = full
+
+
+def _view_key(name: str) -> str:
+    """A view name as engines compare it: without case, cut as PostgreSQL cuts it."""
+    return name.lower()[:PG_NAME_LIMIT]
+
+
 def _activity_view_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
     """engagement and trailing_windows read activity: refuse them in a spec without it."""
-    if v.get("activity") or not v.get("revenue"):
+    if v.get("activity") or v.get("definitions") or not v.get("revenue"):
         return
     for name in ("engagement", "trailing_windows"):
         node = root.value.get(name)
@@ -430,21 +583,51 @@ def _revenue_shape_checks(checker: _Checker, section: Node, v: dict[str, Any]) -
                        "give interval (one value for every row) or interval_column, not both")
 
 
-def _build(v: dict[str, Any], filename: str) -> Spec:
+def _build(v: dict[str, Any], filename: str, given: set[str] = frozenset()) -> Spec:
     activity = None
     if v.get("activity"):
-        activity = ActivitySource(
-            table=v["activity.table"], user=v["activity.user"],
-            timestamp=v["activity.timestamp"], timestamp_type=v["activity.timestamp_type"],
-            where=v["activity.where"], timezone=v["activity.timezone"],
-            valid_from=v["activity.valid_from"], valid_until=v["activity.valid_until"])
+        activity = _activity_source(v, "activity", v.get("report_from"))
+    definitions = []
+    for name in v.get("definitions") or ():
+        path = f"definitions.{name}"
+        def value(leaf: str) -> Any:
+            """The definition's own value, else activity's (never activity's where)."""
+            if f"{path}.{leaf}" in given or not v.get("activity") or leaf == "where":
+                return v[f"{path}.{leaf}"]
+            return v[f"activity.{leaf}"]
+        own = {leaf: value(leaf) for leaf in ("table", "user", "timestamp", "timestamp_type",
+                                             "where", "timezone", "valid_from", "valid_until")}
+        seen = (_first_seen(v, path) if f"{path}.first_seen" in given
+                else activity.first_seen if activity else None)
+        report = value("report_from") or v.get("report_from")
+        definitions.append(Definition(name, ActivitySource(**own, first_seen=seen,
+                                                           report_from=report)))
     output = Output(dialect=v["output.dialect"], schema=v["output.schema"],
                     prefix=v["output.prefix"], folder=v["output.folder"])
     return Spec(version=v["version"], activity=activity, grain=v["grain"],
                 week_start=v["week_start"], output=output, cohorts=v["cohorts"],
                 engagement=v["engagement"], trailing_windows=tuple(v["trailing_windows"] or ()),
                 file=os.path.basename(filename), revenue=_build_revenue(v),
-                allow_functions=tuple(v["allow_functions"] or ()))
+                allow_functions=tuple(v["allow_functions"] or ()),
+                definitions=tuple(definitions))
+
+
+def _activity_source(v: dict[str, Any], path: str, report_from: dt.date | None) -> ActivitySource:
+    return ActivitySource(
+        table=v[f"{path}.table"], user=v[f"{path}.user"],
+        timestamp=v[f"{path}.timestamp"], timestamp_type=v[f"{path}.timestamp_type"],
+        where=v[f"{path}.where"], timezone=v[f"{path}.timezone"],
+        valid_from=v[f"{path}.valid_from"], valid_until=v[f"{path}.valid_until"],
+        first_seen=_first_seen(v, path),
+        report_from=v.get(f"{path}.report_from") or report_from)
+
+
+def _first_seen(v: dict[str, Any], path: str) -> FirstSeen | None:
+    if not v.get(f"{path}.first_seen"):
+        return None
+    at = f"{path}.first_seen"
+    return FirstSeen(table=v[f"{at}.table"], user=v[f"{at}.user"],
+                     timestamp=v[f"{at}.timestamp"], timestamp_type=v[f"{at}.timestamp_type"])
 
 
 def _build_revenue(v: dict[str, Any]) -> RevenueSource | None:
@@ -489,7 +672,7 @@ class _Checker:
             where = prefix or "the spec"
             self.report((node.line, node.col), prefix, f"{where} must be a mapping of keys")
             return self.values
-        children = [k for k in KEYS if _parent(k.path) == prefix]
+        children = _children(prefix)
         allowed = [_leaf(k.path) for k in children]
         for name, pos in node.key_pos.items():
             if name not in allowed:
@@ -528,6 +711,9 @@ class _Checker:
             self.values[key.path] = True  # the section is present
             self.section(child, key.path)
             return
+        if key.kind == "definitions":
+            self.values[key.path] = self.definitions(child)
+            return
         try:
             self.values[key.path] = _CHECKS[key.kind](self, key, child.value)
         except _Reported:
@@ -537,11 +723,69 @@ class _Checker:
             self.report((child.line, child.col), key.path, str(err))
 
 
+    def definitions(self, node: Node) -> tuple[str, ...]:
+        """Each definition's name, then its keys, checked as those of `activity`."""
+        if not isinstance(node.value, dict):
+            self.report((node.line, node.col), "definitions",
+                        "expected a mapping of definition names to activity keys, e.g. "
+                        "purchasers: {where: \"event_name = 'purchase'\"}")
+            return ()
+        found: dict[str, str] = {}
+        for name, child in node.value.items():
+            pos = node.key_pos[name]
+            path = f"definitions.{name}"
+            problem = _definition_name_problem(name, found)
+            if problem:
+                self.report(pos, path if names.BARE.fullmatch(str(name)) else "definitions",
+                            problem)
+                continue
+            found[name.lower()] = name
+            self.positions[path] = pos
+            if child.value is None:
+                child = Node({}, child.line, child.col)
+            self.section(child, path)
+        return tuple(found.values())
+
+
+def _definition_name_problem(name: Any, found: dict[str, str]) -> str:
+    """Why a definition name cannot be used ("" when it can): it names views."""
+    if not isinstance(name, str) or not names.BARE.fullmatch(name):
+        return (f"definition name {_describe(name)} must be letters, digits and _ (starting "
+                "with a letter or _): it becomes part of view names")
+    if name.lower().startswith(names.RESERVED_PREFIX):
+        return f"names starting with {names.RESERVED_PREFIX!r} are reserved"
+    if name.lower() in found:
+        return (f"definition {shown(name)} has the same name as definition "
+                f"{shown(found[name.lower()])} (view names are compared without regard to "
+                "case); rename one")
+    return ""
+
+
+def _canonical(path: str) -> str:
+    """The KEYS path a spec path is checked as: `definitions.<name>.x` as `activity.x`."""
+    parts = path.split(".")
+    if parts[0] == "definitions" and len(parts) >= 2:
+        return ".".join(["activity", *parts[2:]])
+    return path
+
+
+def _children(prefix: str) -> list[Key]:
+    """The keys of a section, with paths under ``prefix``. In a definition the keys of
+    `activity` itself are optional: one left out is taken from `activity`."""
+    canon = _canonical(prefix)
+    keys = [k for k in KEYS if _parent(k.path) == canon]
+    if canon == prefix:
+        return keys
+    return [replace(k, path=prefix + k.path[len(canon):],
+                    required=k.required and canon != "activity") for k in keys]
+
+
 _READ_FIRST = ("output", "output.dialect", "allow_functions")
 
 
 def _requires_keys(section: str) -> bool:
     """True when an optional section has required keys: left out, they are not asked for."""
+    section = _canonical(section)
     return any(k.required and k.path.startswith(section + ".") for k in KEYS)
 
 

@@ -110,6 +110,25 @@ def spec_key(key: str) -> str:
     return view.spec_key if view is not None else key
 
 
+def spec_gaps(spec: Spec, target: Target) -> list[Gap]:
+    """Every gap of a spec's views and of each definition's (``Spec.parts``), each once; a
+    definition's gap names the definition's own key when the definition wrote it."""
+    from dataclasses import replace
+
+    from .views import planned_views
+
+    found: list[Gap] = []
+    for part in spec.parts():
+        for gap in gaps(part, target, [v.name for v in planned_views(part)]):
+            own = f"definitions.{part.definition}" + gap.spec_key[len("activity"):]
+            if (part.definition and part.parent and gap.spec_key.startswith("activity")
+                    and own in part.parent.positions):
+                gap = replace(gap, spec_key=own)
+            if gap not in found:
+                found.append(gap)
+    return found
+
+
 def require_support(spec: Spec, target: Target, views: list[str]) -> None:
     """Raise UnsupportedError naming the dialect, spec key and place of every gap."""
     found = gaps(spec, target, views)

@@ -280,3 +280,9 @@ def planned_views(spec: Spec) -> list[View]:
     for view in chosen:
         visit(view)
     return ordered
+
+
+def planned(spec: Spec) -> list[tuple[Spec, View]]:
+    """(part, view) for every view a spec creates: the spec's own views, then each
+    definition's (``Spec.parts``); a view's name is its part's prefix and its own name."""
+    return [(part, view) for part in spec.parts() for view in planned_views(part)]

@@ -10,6 +10,8 @@
                     the last active date of each (the only other column any period view
                     needs, for period_status). This one grouping is the unavoidable pass over
                     the events; everything after it reads a table many times smaller.
+                    With first_seen, also seen_key: the period the user was first seen in
+                    (NULL when the users table has no valid date for the user).
   user_periods()    keyed() and the CTE user_periods: one row per user and active period
                     with its events, distinct active days and first and last active dates.
 A view reads these CTEs rather than another view, so that each is computed once per query
@@ -45,11 +47,53 @@ sqlgen_source AS (
 {%- endmacro -%}
 
 {%- macro active_periods() -%}
+{%- if source.first_seen %}
+{{ keyed() }}, grouped_periods AS (
+  /* One row per user and active period (the one grouping of the events), with the last active date. */
+  SELECT user_id, period_key, MAX(activity_date) AS last_date
+  FROM keyed
+  GROUP BY user_id, period_key
+), {{ first_seen_ctes() }}, active_periods AS (
+  /* Each active (user, period) with the period the user was first seen in (NULL: no valid first-seen date). */
+  SELECT g.user_id, g.period_key, g.last_date, CASE WHEN s.sqlgen_seen_found = 1 THEN s.sqlgen_seen_key END AS seen_key
+  FROM grouped_periods AS g
+  LEFT JOIN first_seen AS s
+    ON s.sqlgen_seen_user = g.user_id
+)
+{%- else %}
 {{ keyed() }}, active_periods AS (
   /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT user_id, period_key, MAX(activity_date) AS last_date
   FROM keyed
   GROUP BY user_id, period_key
+)
+{%- endif %}
+{%- endmacro -%}
+
+{#- The users table of first_seen: one row per user with the period key of the earliest
+    valid first-seen date (NULL or sentinel dates are ignored, as activity rows are), and
+    sqlgen_seen_found = 1 so that a user missing from it is told apart after a LEFT JOIN
+    even where unmatched columns read as 0 rather than NULL (ClickHouse by default). -#}
+{%- macro first_seen_ctes() -%}
+seen_source AS (
+  /* The first-seen rows with a user and a timestamp; a timestamp far outside the valid range becomes NULL. */
+  SELECT __seen_user__ AS sqlgen_seen_user, {{ p.near_value('__seen_timestamp__', source.first_seen.timestamp_type, 'seen') }} AS sqlgen_seen_ts
+  FROM __seen_table__
+  WHERE __seen_user__ IS NOT NULL AND __seen_timestamp__ IS NOT NULL
+), seen_local AS (
+  /* The local calendar date of each first-seen row, by the time zone rule of the spec. */
+  SELECT sqlgen_seen_user, {{ p.local_date('sqlgen_seen_ts', source.first_seen.timestamp_type) }} AS sqlgen_seen_date
+  FROM seen_source
+), seen_dates AS (
+  /* The earliest valid first-seen date of each user (a user listed twice: the earliest row). */
+  SELECT sqlgen_seen_user, MIN(sqlgen_seen_date) AS sqlgen_seen_first
+  FROM seen_local
+  WHERE {{ p.in_range('sqlgen_seen_date', 'activity') }}
+  GROUP BY sqlgen_seen_user
+), first_seen AS (
+  /* The period key of that date. */
+  SELECT sqlgen_seen_user, {{ p.period_key('sqlgen_seen_first') }} AS sqlgen_seen_key, 1 AS sqlgen_seen_found
+  FROM seen_dates
 )
 {%- endmacro -%}
 

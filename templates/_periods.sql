@@ -32,11 +32,13 @@ CAST(DATE '1970-01-01' + INTERVAL ({{ k }} - 23640) MONTH AS DATE)
 {%- endif -%}
 {%- endmacro -%}
 
-{#- The local calendar date of an activity timestamp (the spec's time zone rule). -#}
-{%- macro local_date(ts) -%}
-{%- if source.timestamp_type == 'date' -%}
+{#- The local calendar date of an activity timestamp (the spec's time zone rule); kind: the
+    column's type when it is not the activity timestamp's (the first-seen column). -#}
+{%- macro local_date(ts, kind=None) -%}
+{%- set kind = kind or source.timestamp_type -%}
+{%- if kind == 'date' -%}
 CAST({{ ts }} AS DATE)
-{%- elif source.timestamp_type == 'timestamptz' -%}
+{%- elif kind == 'timestamptz' -%}
 CAST({{ ts }} AT TIME ZONE {{ "'__timezone__'" if source.timezone else "'UTC'" }} AS DATE)
 {%- elif source.timezone -%}
 CAST(({{ ts }} AT TIME ZONE 'UTC') AT TIME ZONE '__timezone__' AS DATE)
@@ -56,6 +58,11 @@ A row whose near value is NULL or whose local date fails in_range is out of rang
 {%- macro near_value(ts, kind, prefix) -%}
 {%- set type = 'DATE' if kind == 'date' else 'TIMESTAMP' -%}
 CASE WHEN {{ ts }} >= CAST('__{{ prefix }}_near_from__' AS {{ type }}) AND {{ ts }} < CAST('__{{ prefix }}_near_until__' AS {{ type }}) THEN {{ ts }} END
+{%- endmacro -%}
+
+{#- The period key of the period holding report_from: earlier periods are not shown. -#}
+{%- macro report_key() -%}
+{{ period_key("CAST('__report_from__' AS DATE)") }}
 {%- endmacro -%}
 
 {%- macro in_range(d, prefix) -%}

@@ -4,7 +4,33 @@
     DuckDB would inline active_periods and turn the MIN window into a join of two groupings
     of the events (measured in bench/: 1.80x the floor against 1.14x). -#}
 {#- Cohort = a user's first active period; one row per cohort and age (periods since the
-    cohort period) up to the last period with data, zero rows included: a full triangle. -#}
+    cohort period) up to the last period with data, zero rows included: a full triangle.
+    With first_seen the cohort is the earlier of the first-seen and first active periods,
+    and a cohort's size counts its users whether or not they were active at age 0. -#}
+{%- set fs = source.first_seen -%}
+{%- if fs %}
+WITH {{ a.active_periods() }}, marked AS (
+  /* Each active (user, period) with the cohort of the user (the earlier of the first-seen and first active periods), and the first active period. */
+  SELECT
+    period_key AS marked_key,
+    MIN(CASE WHEN seen_key < period_key THEN seen_key ELSE period_key END) OVER (PARTITION BY user_id) AS marked_cohort_key,
+    MIN(period_key) OVER (PARTITION BY user_id) AS marked_first_key
+  FROM active_periods
+), cohort_actives AS (
+  /* Actives per cohort and period. */
+  SELECT marked_cohort_key AS active_cohort_key, marked_key AS active_key, COUNT(*) AS active_count
+  FROM marked
+  GROUP BY marked_cohort_key, marked_key
+), cohort_sizes AS (
+  /* The size of a cohort: its users, each counted once (in the user's first active period). */
+  SELECT marked_cohort_key AS size_key, COUNT(CASE WHEN marked_key = marked_first_key THEN 1 END) AS size_count
+  FROM marked
+  GROUP BY marked_cohort_key
+), data_range AS (
+  /* The first cohort and the last period with data. */
+  SELECT MIN(marked_cohort_key) AS first_data_key, MAX(marked_key) AS last_data_key
+  FROM marked
+){% else %}
 WITH {{ a.active_periods() }}, marked AS (
   /* Each active (user, period) with the cohort of the user: the first active period. */
   SELECT
@@ -25,7 +51,7 @@ WITH {{ a.active_periods() }}, marked AS (
   /* The first and last period with data. */
   SELECT MIN(period_key) AS first_data_key, MAX(period_key) AS last_data_key
   FROM active_periods
-), {{ p.digits_cte() }}, ages AS (
+){% endif %}, {{ p.digits_cte() }}, ages AS (
   /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT {{ p.counting_value(grain.calendar_digits) }} AS age_number
   FROM data_range AS r
@@ -56,3 +82,7 @@ SELECT
 FROM triangle AS t
 LEFT JOIN cohort_actives AS c
   ON c.active_cohort_key = t.cell_cohort_key AND c.active_key = t.cell_key
+{%- if source.report_from %}
+/* Only the cohorts from report_from on: an earlier cohort is not shown at any age. */
+WHERE t.cell_cohort_key >= {{ p.report_key() }}
+{%- endif %}

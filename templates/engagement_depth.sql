@@ -83,3 +83,6 @@ LEFT JOIN depth_counts AS d
   ON d.depth_key = c.cell_key AND d.depth_days = c.cell_days
 LEFT JOIN period_totals AS t
   ON t.total_key = c.cell_key
+{%- if source.report_from %}
+WHERE c.cell_key >= {{ p.report_key() }}
+{%- endif %}

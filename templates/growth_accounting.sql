@@ -5,13 +5,17 @@
     (an earlier one). Churn needs no second pass: of last period's actives, those not
     retained now are churned, so churned = previous actives - retained. The events are
     read once: the data range comes from the per-period tallies, not from a second read
-    (engines that inline CTEs would group the events twice). -#}
+    (engines that inline CTEs would group the events twice).
+    With first_seen, a user's first active period counts as resurrected, not new, when
+    the user was first seen in an earlier period (seen_key < period_key). -#}
+{%- set fs = source.first_seen -%}
 WITH {{ a.active_periods() }}, sequenced AS (
   /* Each active (user, period) with the previous active period of the user (NULL: the first). */
   SELECT
     period_key,
     last_date,
-    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
+    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key{% if fs %},
+    seen_key{% endif %}
   FROM active_periods
 ), tallies AS (
   /* Per period: actives. new (no earlier period), retained (the period before), resurrected (an earlier one). */
@@ -19,9 +23,15 @@ WITH {{ a.active_periods() }}, sequenced AS (
     period_key AS tally_key,
     MAX(last_date) AS through_tally,
     COUNT(*) AS active_tally,
+{%- if fs %}
+    COUNT(CASE WHEN prior_key IS NULL AND (seen_key IS NULL OR seen_key >= period_key) THEN 1 END) AS new_tally,
+    COUNT(CASE WHEN prior_key = period_key - {{ grain.step }} THEN 1 END) AS retained_tally,
+    COUNT(CASE WHEN prior_key < period_key - {{ grain.step }} OR (prior_key IS NULL AND seen_key < period_key) THEN 1 END) AS resurrected_tally
+{%- else %}
     COUNT(CASE WHEN prior_key IS NULL THEN 1 END) AS new_tally,
     COUNT(CASE WHEN prior_key = period_key - {{ grain.step }} THEN 1 END) AS retained_tally,
     COUNT(CASE WHEN prior_key < period_key - {{ grain.step }} THEN 1 END) AS resurrected_tally
+{%- endif %}
   FROM sequenced
   GROUP BY period_key
 ), data_range AS (
@@ -98,3 +108,7 @@ SELECT
   status AS period_status,
   calendar_key AS period_key
 FROM balanced
+{%- if source.report_from %}
+/* Only the periods from report_from on: the earlier ones were computed, so previous_active_users of the first row shown is real. */
+WHERE calendar_key >= {{ p.report_key() }}
+{%- endif %}

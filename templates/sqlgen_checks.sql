@@ -7,6 +7,13 @@
       ('activity', 'out_of_range', 'out_of_range_rows', 'activity_source_summary'),
       ('activity', 'unconverted', 'unconverted_rows', 'activity_source_summary'),
     ] if source else [] -%}
+{#- Each activity definition's own summary (definitions.<name>). -#}
+{%- for name in definitions -%}
+{%- for check in [('null_user', 'null_user_rows'), ('null_timestamp', 'null_timestamp_rows'),
+                  ('out_of_range', 'out_of_range_rows'), ('unconverted', 'unconverted_rows')] -%}
+{%- set _ = activity_checks.append(('definitions.' ~ name, check[0], check[1], name ~ '_activity_source_summary')) -%}
+{%- endfor -%}
+{%- endfor -%}
 {%- set revenue_checks = [
       ('revenue', 'null_customer', 'null_customer_rows', 'revenue_source_summary'),
       ('revenue', 'null_date', 'null_date_rows', 'revenue_source_summary'),

@@ -142,3 +142,6 @@ SELECT
   CAST(active_tally - retained_tally AS DOUBLE) / NULLIF(churned_tally, 0) AS quick_ratio,
   grid_day AS day_key
 FROM tallied
+{%- if source.report_from %}
+WHERE grid_day >= DATE_DIFF('day', DATE '1970-01-05', CAST('__report_from__' AS DATE))
+{%- endif %}

@@ -11,3 +11,6 @@ SELECT
   first_active_date,
   last_active_date
 FROM user_periods
+{%- if source.report_from %}
+WHERE period_key >= {{ p.report_key() }}
+{%- endif %}

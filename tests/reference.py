@@ -213,7 +213,41 @@ def user_activity(events, grain, week_start="monday", timezone=None, valid=VALID
     return dict(activity)
 
 
-def user_states(events, grain, week_start="monday", timezone=None, valid=VALID_RANGE):
+def first_seen_dates(rows, timezone=None, valid=VALID_RANGE):
+    """Return ``{user: earliest first-seen local date}`` from ``(user, ts)`` rows of a
+    users table. A row with a None user or ts, or a local date outside ``valid`` (a
+    sentinel), is ignored; a user listed twice keeps the earliest date."""
+    seen = {}
+    for user, ts in rows:
+        if user is None or ts is None or not in_valid_range(ts, timezone, valid):
+            continue
+        day = local_date(ts, timezone)
+        seen[user] = min(seen.get(user, day), day)
+    return seen
+
+
+def report_cut(rows, report_from, grain, week_start="monday", key="period_start"):
+    """The rows whose period is not before the period holding ``report_from`` (all rows
+    when it is None): the views leave the earlier periods out."""
+    if report_from is None:
+        return rows
+    first = period_start(report_from, grain, week_start)
+    if isinstance(rows, dict):
+        return {k: v for k, v in rows.items() if k[1] >= first}
+    if isinstance(rows, set):
+        return {r for r in rows if r[1] >= first}
+    return [r for r in rows if r[key] >= first]
+
+
+def user_activity_from(events, grain, week_start="monday", timezone=None, valid=VALID_RANGE,
+                       report_from=None):
+    """``user_activity`` with the periods before ``report_from`` left out."""
+    return report_cut(user_activity(events, grain, week_start, timezone, valid), report_from,
+                      grain, week_start)
+
+
+def user_states(events, grain, week_start="monday", timezone=None, valid=VALID_RANGE,
+                first_seen=None, report_from=None):
     """Return the set of ``(user, period_start, state)`` rows.
 
     Each active user-period is 'new' (the user's first active period),
@@ -221,7 +255,16 @@ def user_states(events, grain, week_start="monday", timezone=None, valid=VALID_R
     'resurrected' (otherwise). A user active in P but not in the next
     period Q gets ``(user, Q, 'churned')`` when Q is not after the last
     period that has any activity.
+
+    ``first_seen`` (``{user: date}``, see first_seen_dates): a user whose first-seen period
+    is before their first active period is 'resurrected' there, not 'new' (the sign-up
+    came first; the user was dormant). ``report_from``: rows of earlier periods left out.
     """
+    states = _user_states(events, grain, week_start, timezone, valid, first_seen or {})
+    return report_cut(states, report_from, grain, week_start)
+
+
+def _user_states(events, grain, week_start, timezone, valid, first_seen):
     activity = user_activity(events, grain, week_start, timezone, valid)
     if not activity:
         return set()
@@ -234,7 +277,11 @@ def user_states(events, grain, week_start="monday", timezone=None, valid=VALID_R
     for user, periods in periods_by_user.items():
         first_period = min(periods)
         for p in periods:
-            if p == first_period:
+            seen = first_seen.get(user)
+            if p == first_period and seen is not None and \
+                    period_start(seen, grain, week_start) < first_period:
+                state = "resurrected"
+            elif p == first_period:
                 state = "new"
             elif previous_period_start(p, grain, week_start) in periods:
                 state = "retained"
@@ -277,19 +324,28 @@ def _growth_row(p, active, previous, state_counts):
     }
 
 
-def growth_accounting(events, grain, week_start="monday", timezone=None, valid=VALID_RANGE):
+def growth_accounting(events, grain, week_start="monday", timezone=None, valid=VALID_RANGE,
+                      first_seen=None, report_from=None):
     """Return one dict per period, ascending, from the first to the last active period.
 
     Periods without activity inside the range are included. Keys are
     GROWTH_COLUMNS. The last period is 'complete' only when the newest
     event's local date is the last day of that period, else 'in_progress'.
+    ``first_seen`` and ``report_from`` as for user_states: the periods before
+    ``report_from`` are computed, then left out.
     """
+    rows = _growth_accounting(events, grain, week_start, timezone, valid, first_seen)
+    return report_cut(rows, report_from, grain, week_start)
+
+
+def _growth_accounting(events, grain, week_start, timezone, valid, first_seen):
     events = _included(events, timezone, valid)
     activity = user_activity(events, grain, week_start, timezone, valid)
     if not activity:
         return []
     state_counts = Counter(
-        (p, state) for _, p, state in user_states(events, grain, week_start, timezone, valid)
+        (p, state) for _, p, state in user_states(events, grain, week_start, timezone, valid,
+                                                  first_seen)
     )
     active_users = Counter(p for _, p in activity)
     first_period = min(active_users)

@@ -50,11 +50,15 @@ def _period_range(first, last, grain, week_start):
     return periods
 
 
-def cohort_retention(events, grain, week_start="monday", timezone=None):
+def cohort_retention(events, grain, week_start="monday", timezone=None, first_seen=None,
+                     report_from=None):
     """One dict per cohort and age, sorted by cohort then age (keys COHORT_COLUMNS).
 
     A user's cohort is their first active period. Every age from 0 up to the last period
     with any activity appears, with active_users 0 when nobody of the cohort was active.
+    ``first_seen`` (``{user: date}``, reference.first_seen_dates): the cohort is the
+    earlier of the first-seen and first active periods (a user without activity is in no
+    cohort). ``report_from``: cohorts of earlier periods are left out at every age.
     """
     periods = _periods_by_user(events, grain, week_start, timezone)
     if not periods:
@@ -62,9 +66,14 @@ def cohort_retention(events, grain, week_start="monday", timezone=None):
     last = max(max(ps) for ps in periods.values())
     members = defaultdict(list)
     for user, ps in periods.items():
-        members[min(ps)].append(user)
+        cohort = min(ps)
+        seen = (first_seen or {}).get(user)
+        if seen is not None:
+            cohort = min(cohort, period_start(seen, grain, week_start))
+        members[cohort].append(user)
+    first_shown = period_start(report_from, grain, week_start) if report_from else None
     rows = []
-    for cohort in sorted(members):
+    for cohort in sorted(c for c in members if first_shown is None or c >= first_shown):
         users = members[cohort]
         for age, p in enumerate(_period_range(cohort, last, grain, week_start)):
             active = sum(1 for u in users if p in periods[u])

@@ -63,7 +63,22 @@ CHARGES_SPEC = REVENUE_SPEC.replace("  shape: subscriptions\n", "").replace(
     "  start: started_at\n  end: ended_at\n", "  timestamp: invoiced_at\n").replace(
     "  interval_column: billing_interval\n", "").replace("  measure: recognized\n", "")
 RUN_RATE_SPEC = REVENUE_SPEC.replace("  measure: recognized\n", "")
+# Definitions, first-seen dates and a reporting start, at month grain (the other grains'
+# period keys are the base spec's; the engine suites run every grain).
+DEFINITIONS_SPEC = SPEC.replace("  where: \"event_name <> 'push_received'\"\n", """\
+  where: "event_name <> 'push_received'"
+  first_seen:
+    table: raw.users
+    user: user_id
+    timestamp: signed_up_at
+    timestamp_type: date
+report_from: 2023-01-01
+definitions:
+  purchasers:
+    where: "event_name = 'purchase'"
+""").replace("trailing_windows: [7, 28]\n", "")
 SPECS = {label: (SPEC, grain) for label, grain in GRAINS.items()}
+SPECS["definitions_month"] = (DEFINITIONS_SPEC, GRAINS["month"])
 SPECS.update({f"revenue_{label}": (REVENUE_SPEC, grain) for label, grain in GRAINS.items()})
 SPECS.update({f"revenue_run_rate_{label}": (RUN_RATE_SPEC, grain)
               for label, grain in GRAINS.items()})
