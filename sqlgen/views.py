@@ -260,7 +260,62 @@ VIEWS: tuple[View, ...] = (
         reads="revenue", option="cohorts"),
 )
 
+# ---------------------------------------------------------------- segmented views
+# Each segmented view is its base view split by segment value: the same columns after
+# `segment` and `segment_value`, derived from the base row so that the two cannot drift.
+
+SEGMENT_COLUMNS = (
+    ("segment", "the segment's name, as written in the spec"),
+    ("segment_value", "the segment's value as text (the engine's own spelling of it); NULL "
+                      "is a group of its own"),
+)
+EVENT_NOTE = ("For a `kind: event` segment a user is counted in every value the user was "
+              "active with, so the values' counts need not add up to the totals.")
+
+
+def _segmented(base: View, summary: str, enabled: Callable[[Spec], bool],
+               reads: str = "activity") -> View:
+    return View(f"{base.name}_by_segment", f"{summary} {EVENT_NOTE}",
+                SEGMENT_COLUMNS + base.columns, depends=(),
+                personal_data=base.personal_data, enabled=enabled, reads=reads,
+                option="segments")
+
+
+_BASE = {view.name: view for view in VIEWS}
+
+
+def _splits_revenue(spec: Spec) -> bool:
+    return spec.revenue is not None and any(s.customer_key for s in spec.segments)
+
+
+SEGMENTED_VIEWS: tuple[View, ...] = (
+    _segmented(_BASE["growth_accounting"],
+               "growth_accounting per segment and value: one row per segment, value and "
+               "period of the totals' calendar, empty periods included.",
+               lambda spec: bool(spec.segments) and spec.activity is not None),
+    _segmented(_BASE["user_states"],
+               "user_states per segment and value: one row per segment, value, user and "
+               "period in which the user is new, retained, resurrected or churned in that "
+               "value.",
+               lambda spec: bool(spec.segments) and spec.activity is not None),
+    _segmented(_BASE["cohort_retention"],
+               "cohort_retention per segment and value: cohorts of the users by their first "
+               "active period in the value, every age up to the last period with data.",
+               lambda spec: bool(spec.segments) and spec.cohorts and spec.activity is not None),
+)
+
+VIEWS = VIEWS + SEGMENTED_VIEWS
 VIEWS_BY_NAME = {view.name: view for view in VIEWS}
+
+
+def segment_view_columns() -> dict[str, str]:
+    """Every column of a segmented view (lower case) -> the first view holding it: a
+    segment's name may not be one of them."""
+    found: dict[str, str] = {}
+    for view in SEGMENTED_VIEWS:
+        for column in view.column_names:
+            found.setdefault(column.lower(), view.name)
+    return found
 
 
 def planned_views(spec: Spec) -> list[View]:
