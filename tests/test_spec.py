@@ -24,7 +24,7 @@ CASES = [
       "s.yml:4:3: activity.usr: unknown key. Did you mean 'user'? Allowed here: table, user, "
       "timestamp, timestamp_type, where, timezone, valid_from, valid_until",
       "s.yml:7:1: outptu: unknown key. Did you mean 'output'? Allowed here: version, "
-      "activity, revenue, grain, week_start, output, cohorts, engagement, trailing_windows, allow_functions"]),
+      "activity, revenue, grain, week_start, output, cohorts, engagement, trailing_windows, segments, allow_functions"]),
     ("dialect", GOOD + "output:\n  dialect: snowflak\n",
      ["s.yml:8:12: output.dialect: 'snowflak' is not one of duckdb, postgres, spark, "
       "databricks, clickhouse, mysql, sqlite, bigquery, snowflake, redshift, trino, tsql. "
