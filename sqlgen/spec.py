@@ -196,12 +196,12 @@ KEYS: tuple[Key, ...] = (
         "Without it, a user's value is the one on the user's first counted activity row "
         "(ties: the smallest non-NULL value).", example="app.users"),
     Key("segments.<name>.key", "segment column",
-        "The user key column of `table`, compared with `activity.user` (required with "
-        "`table`).", example="user_id"),
+        "The user key column of `table`, compared with `activity.user`; `table` needs `key`, "
+        "`customer_key` or both.", example="user_id"),
     Key("segments.<name>.customer_key", "segment column",
         "`kind: user` with `table` only: the column of `table` holding the revenue customer "
         "key (`revenue.customer`); the segment then splits `revenue_accounting_by_segment` "
-        "too.", example="account_id"),
+        "(and the activity views only when `key` is given too).", example="account_id"),
     Key("allow_functions", "functions",
         "Optional list of further function names the `where` filters may call, e.g. "
         "`[is_internal_account]`: a trust decision. These functions run with the privileges of "
@@ -272,6 +272,12 @@ class Segment:
     def from_events(self) -> bool:
         """True when the value is read from the activity rows (no table of its own)."""
         return self.table is None
+
+    @property
+    def splits_activity(self) -> bool:
+        """True when the segment splits the activity views: read from the activity rows, or
+        from a table with a user key (a table with only customer_key splits revenue only)."""
+        return self.table is None or self.key is not None
 
 
 @dataclass(frozen=True)
@@ -419,9 +425,10 @@ def _activity_view_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> N
     """engagement and trailing_windows read activity: refuse them in a spec without it."""
     if v.get("activity") or not v.get("revenue"):
         return
+    splits = any(segment.splits_activity for segment in v.get("segments") or ())
     for name in ("engagement", "trailing_windows", "segments"):
         node = root.value.get(name)
-        if node is not None and v.get(name):
+        if node is not None and v.get(name) and (name != "segments" or splits):
             checker.report((node.line, node.col), name,
                            "needs an activity section: these views count active users")
 
@@ -885,9 +892,9 @@ def _segment_rules(c: _Checker, path: str, entry: Node, v: dict[str, Any]) -> No
     if "key" in pos and "table" not in pos:
         c.report(pos["key"], f"{path}.key", "key names the user key column of table; add "
                  "table (e.g. table: app.users) or remove key")
-    if "table" in pos and "key" not in pos:
+    if "table" in pos and "key" not in pos and "customer_key" not in pos:
         c.report(pos["table"], f"{path}.table", "a segment table needs key, its user key "
-                 "column (e.g. key: user_id)")
+                 "column (e.g. key: user_id), or customer_key, its revenue customer column")
     if "customer_key" in pos and "table" not in pos:
         c.report(pos["customer_key"], f"{path}.customer_key", "customer_key names a column "
                  "of table; add table or remove customer_key")

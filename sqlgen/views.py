@@ -273,15 +273,18 @@ EVENT_NOTE = ("For a `kind: event` segment a user is counted in every value the 
               "active with, so the values' counts need not add up to the totals.")
 
 
-def _segmented(base: View, summary: str, enabled: Callable[[Spec], bool],
-               reads: str = "activity") -> View:
-    return View(f"{base.name}_by_segment", f"{summary} {EVENT_NOTE}",
-                SEGMENT_COLUMNS + base.columns, depends=(),
-                personal_data=base.personal_data, enabled=enabled, reads=reads,
-                option="segments")
+def _segmented(base: View, summary: str, enabled: Callable[[Spec], bool]) -> View:
+    note = f" {EVENT_NOTE}" if base.reads == "activity" else ""
+    return View(f"{base.name}_by_segment", summary + note, SEGMENT_COLUMNS + base.columns,
+                depends=base.depends, reads=base.reads,
+                personal_data=base.personal_data, enabled=enabled, option="segments")
 
 
 _BASE = {view.name: view for view in VIEWS}
+
+
+def _splits_activity(spec: Spec) -> bool:
+    return spec.activity is not None and any(s.splits_activity for s in spec.segments)
 
 
 def _splits_revenue(spec: Spec) -> bool:
@@ -292,16 +295,21 @@ SEGMENTED_VIEWS: tuple[View, ...] = (
     _segmented(_BASE["growth_accounting"],
                "growth_accounting per segment and value: one row per segment, value and "
                "period of the totals' calendar, empty periods included.",
-               lambda spec: bool(spec.segments) and spec.activity is not None),
+               _splits_activity),
     _segmented(_BASE["user_states"],
                "user_states per segment and value: one row per segment, value, user and "
                "period in which the user is new, retained, resurrected or churned in that "
                "value.",
-               lambda spec: bool(spec.segments) and spec.activity is not None),
+               _splits_activity),
     _segmented(_BASE["cohort_retention"],
                "cohort_retention per segment and value: cohorts of the users by their first "
                "active period in the value, every age up to the last period with data.",
-               lambda spec: bool(spec.segments) and spec.cohorts and spec.activity is not None),
+               lambda spec: spec.cohorts and _splits_activity(spec)),
+    _segmented(_BASE["revenue_accounting"],
+               "revenue_accounting per value of each segment with `customer_key`: one row per "
+               "segment, value and period of the totals' calendar, empty periods included. "
+               "Each customer has one value, so the values add up to revenue_accounting.",
+               _splits_revenue),
 )
 
 VIEWS = VIEWS + SEGMENTED_VIEWS

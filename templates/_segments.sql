@@ -12,14 +12,19 @@
                           missing from it; the smallest non-NULL one for a user listed twice).
   A value is compared as text: value_text is the value cast to text ('' for NULL) and
   value_missing is 1 for NULL, so that plain equality joins keep NULL as a group of its own.
+  value_calendar()   after the CTEs data_range (first_key, last_key, data_through) and
+                     tallies (tally_segment, tally_missing, tally_text, ...): data_edge,
+                     the calendar of periods and segment_values, every segment and value.
   segment_value(m, t) the value shown: NULL when missing, else the text.
 -#}
 {%- import '_activity.sql' as a with context -%}
+{%- import '_periods.sql' as p with context -%}
 
 {%- macro segment_periods() -%}
+{#- Only the segments that split the activity views (a table with customer_key alone does not). -#}
 {%- set ns = namespace(carry=[], first=false, user=false) -%}
-{%- for s in segments -%}
-{%- if s.from_events -%}{%- set ns.carry = ns.carry + [('__segment_' ~ loop.index0 ~ '__', 'sqlgen_seg_' ~ loop.index0)] -%}{%- endif -%}
+{%- for s in segments if s.splits_activity -%}
+{%- if s.from_events -%}{%- set ns.carry = ns.carry + [('__segment_' ~ segments.index(s) ~ '__', 'sqlgen_seg_' ~ segments.index(s))] -%}{%- endif -%}
 {%- if s.from_events and s.kind == 'user' -%}{%- set ns.first = true -%}{%- endif -%}
 {%- if s.kind == 'user' -%}{%- set ns.user = true -%}{%- endif -%}
 {%- endfor -%}
@@ -45,8 +50,8 @@
   GROUP BY user_id
 )
 {%- endif -%}
-{%- for s in segments -%}
-{%- set i = loop.index0 -%}
+{%- for s in segments if s.splits_activity -%}
+{%- set i = segments.index(s) -%}
 {%- if s.kind == 'event' %}, seg_rows_{{ i }} AS (
   /* Segment {{ i + 1 }} (kind event): each user's active periods per value of the row. */
   SELECT user_id, period_key, sqlgen_seg_{{ i }} AS seg_value, MAX(last_date) AS seg_last
@@ -83,14 +88,33 @@
 {%- endif -%}
 {%- endfor %}, segment_periods AS (
   /* Every segment's rows, the value as text: value_missing 1 for NULL, value_text '' then. */
-{%- for s in segments %}
+{%- for s in segments if s.splits_activity %}
   {% if not loop.first %}UNION ALL
-  {% endif %}SELECT '__segment_name_{{ loop.index0 }}__' AS segment_name, CASE WHEN seg_value IS NULL THEN 1 ELSE 0 END AS value_missing, COALESCE(CAST(seg_value AS TEXT), '') AS value_text, user_id, period_key, seg_last AS last_date
-  FROM seg_rows_{{ loop.index0 }}
+  {% endif %}SELECT '__segment_name_{{ segments.index(s) }}__' AS segment_name, CASE WHEN seg_value IS NULL THEN 1 ELSE 0 END AS value_missing, COALESCE(CAST(seg_value AS TEXT), '') AS value_text, user_id, period_key, seg_last AS last_date
+  FROM seg_rows_{{ segments.index(s) }}
 {%- endfor %}
 )
 {%- endmacro -%}
 
 {%- macro segment_value(missing, text) -%}
 CASE WHEN {{ missing }} = 1 THEN NULL ELSE {{ text }} END
+{%- endmacro -%}
+
+{%- macro value_calendar() -%}
+data_edge AS (
+  /* The period of the day after the data: if it is the last period, that period is still in progress. */
+  SELECT first_key, last_key, data_through,
+    {{ p.period_key("data_through + INTERVAL 1 DAY") }} AS after_data_key
+  FROM data_range
+), {{ p.digits_cte() }}, calendar AS (
+  /* Every period from the first to the last, by the step of the grain, empty periods included: the totals' calendar. */
+  SELECT e.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) AS calendar_key
+  FROM data_edge AS e
+  CROSS JOIN {{ p.counting(grain.calendar_digits) }}
+  WHERE e.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) <= e.last_key
+), segment_values AS (
+  /* Every segment and value seen. */
+  SELECT DISTINCT tally_segment AS value_segment, tally_missing AS value_null, tally_text AS value_label
+  FROM tallies
+)
 {%- endmacro -%}

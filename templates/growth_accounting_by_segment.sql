@@ -37,22 +37,7 @@ WITH {{ s.segment_periods() }}, sequenced AS (
     MAX(tally_key) AS last_key,
     MAX(through_tally) AS data_through
   FROM tallies
-), data_edge AS (
-  /* The period of the day after the data: if it is the last period, that period is still in progress. */
-  SELECT first_key, last_key, data_through,
-    {{ p.period_key("data_through + INTERVAL 1 DAY") }} AS after_data_key
-  FROM data_range
-), {{ p.digits_cte() }}, calendar AS (
-  /* Every period from the first to the last, by the step of the grain, empty periods included. */
-  SELECT e.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) AS calendar_key
-  FROM data_edge AS e
-  CROSS JOIN {{ p.counting(grain.calendar_digits) }}
-  WHERE e.first_key + {{ grain.step }} * ({{ p.counting_value(grain.calendar_digits) }}) <= e.last_key
-), segment_values AS (
-  /* Every segment and value seen. */
-  SELECT DISTINCT tally_segment AS value_segment, tally_missing AS value_null, tally_text AS value_label
-  FROM tallies
-), filled AS (
+), {{ s.value_calendar() }}, filled AS (
   /* Each value's tallies on the whole calendar, zeros for its empty periods. */
   SELECT
     v.value_segment,

@@ -38,7 +38,7 @@ CASES = [
       "(e.g. table: app.users) or remove key"]),
     ("table without key", USER + "    table: app.users\n",
      ["s.yml:10:5: segments.platform.table: a segment table needs key, its user key column "
-      "(e.g. key: user_id)"]),
+      "(e.g. key: user_id), or customer_key, its revenue customer column"]),
     ("event with a table", GOOD + "    table: app.users\n    key: user_id\n",
      ["s.yml:10:5: segments.platform.table: a kind: event segment reads the activity table; "
       "remove table or set kind: user"]),
@@ -106,3 +106,14 @@ def test_specs_without_segments_keep_their_hash():
     assert parse_spec(plain, "s.yml").digest() == parse_spec(plain + "segments: {}\n",
                                                              "s.yml").digest()
     assert parse_spec(plain, "s.yml").digest() != parse_spec(GOOD, "s.yml").digest()
+
+
+def test_a_customer_table_alone_splits_revenue_only():
+    """A table with customer_key and no key splits revenue_accounting only, and so needs no
+    activity section."""
+    text = ("version: 1\nrevenue: {table: c, customer: a, amount: m, timestamp: t}\n"
+            "segments:\n  tier: {kind: user, column: tier, table: accounts, "
+            "customer_key: account_id}\n")
+    names = [v.name for v in planned_views(parse_spec(text, "s.yml"))]
+    assert "revenue_accounting_by_segment" in names
+    assert "growth_accounting_by_segment" not in names

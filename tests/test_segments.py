@@ -17,7 +17,7 @@ import reference_segments as rs
 import strategies
 from conftest import HYPOTHESIS_EXAMPLES, engine_target_pairs
 from harness import (FLAT_TARGETS, assert_rows_match, create_views, names_for, read_view,
-                     spec_text)
+                     spec_text, storable_rows)
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -204,3 +204,73 @@ def test_random_data_on_every_engine(engines, engine_name, target):
         check(results, rows, users, grain, week_start)
 
     run()
+
+
+# ---------------------------------------------------------------- revenue by segment
+
+# fixtures/revenue_seats' customers with a tier each: `late` listed twice (the smallest
+# non-NULL value counts), `refund` with a NULL tier, `credit` missing from the table.
+ACCOUNTS = [("seats", "pro"), ("flat", "basic"), ("late", "pro"), ("late", "basic"),
+            ("refund", None), ("usd", "basic"), ("nobody", "pro")]
+REVENUE_KEYS = ("segment", "_v", "period_start")
+
+
+def accounts_table(target: str) -> str:
+    return "accounts" if target in FLAT_TARGETS else "raw.accounts"
+
+
+def revenue_segment_spec(target: str, grain: str, week_start: str) -> str:
+    from harness import revenue_table
+
+    extra = (f"revenue:\n  table: {revenue_table(target, 'charges')}\n  customer: account_id\n"
+             "  amount: amount\n  timestamp: charged_at\n  where: \"currency = 'EUR'\"\n"
+             "segments:\n"
+             f"  tier: {{kind: user, column: tier, table: {accounts_table(target)}, "
+             "customer_key: account_id}\n")
+    return spec_text(target, grain=grain, week_start=week_start, extra=extra)
+
+
+def expected_revenue_by_segment(charges, grain, week_start) -> list[dict]:
+    """reference_revenue's customer rows, split by the customer's tier, each value's rows
+    accounted by reference_revenue.revenue_accounting over the totals' calendar."""
+    import reference_revenue as rr
+
+    views = rr.revenue_views(charges, "charges", grain, week_start, keep_currency="EUR")
+    summary = views["revenue_source_summary"][0]
+    customers = {r["customer_id"] for r in views["customer_revenue"]}
+    tier = rs.user_values([(c, None, {}) for c in customers], "tier", ACCOUNTS)
+    out = []
+    for value in sorted({tier[c] for c in customers}, key=lambda v: (v is not None, v or "")):
+        part = [r for r in views["customer_revenue"] if tier[r["customer_id"]] == value]
+        for row in rr.revenue_accounting(part, summary["first_date"], summary["last_date"],
+                                         grain, week_start):
+            out.append({"segment": "tier", "segment_value": value, **row})
+    return rr._at_scale(out, 2)
+
+
+@pytest.mark.parametrize("engine_name,target", PAIRS)
+@pytest.mark.parametrize("grain,week_start", [("month", "monday"), ("week", "monday")])
+def test_revenue_by_segment_on_every_engine(engines, engine_name, target, grain, week_start):
+    """fixtures/revenue_seats split by a tier table keyed by the customer: row by row
+    against the reference, and the tiers add up to revenue_accounting in every period."""
+    import reference_revenue as rr
+    from harness import load_revenue, read_revenue
+    from test_revenue import _clean
+
+    engine = engines(engine_name)
+    charges = storable_rows(engine_name, rr.read_fixture_rows("revenue_seats"))
+    engine.reset()
+    load(engine, target, [("seats", dt.datetime(2024, 1, 5), {})], [])
+    load_revenue(engine, charges, "charges", target=target)
+    engine.create_table(accounts_table(target), [("account_id", "text"), ("tier", "text")],
+                        ACCOUNTS)
+    create_views(engine, revenue_segment_spec(target, grain, week_start), target)
+    got = read_revenue(engine, target, ("revenue_accounting_by_segment", "revenue_accounting"))
+    rows = _clean(got["revenue_accounting_by_segment"], engine_name, 2)
+    want = expected_revenue_by_segment(charges, grain, week_start)
+    columns = ("segment", "segment_value") + rr.ACCOUNTING_COLUMNS
+    assert_rows_match(_sortable(rows), _sortable(want), REVENUE_KEYS, columns)
+    totals = {r["period_start"]: r for r in _clean(got["revenue_accounting"], engine_name, 2)}
+    for period, total in totals.items():
+        for column in rr.MONEY + ("customers", "new_customers", "churned_customers"):
+            assert sum(r[column] for r in rows if r["period_start"] == period) == total[column]
