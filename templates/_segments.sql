@@ -1,8 +1,11 @@
 {#- Reading the activity table for the segmented views, once for every segment.
 
-  segment_periods()  the CTEs ending in segment_periods: one row per segment, value, user
-                     and active period (segment_name, value_missing, value_text, user_id,
-                     period_key, last_date). The events are grouped once, by user, period
+  segment_periods(windows)  the CTEs ending in segment_periods: one row per segment, value,
+                     user and active period (segment_name, value_missing, value_text, user_id,
+                     period_key, last_date and the window columns asked for: prior_key,
+                     later_key, first_key, see window_columns). The windows run on each
+                     segment's own keys (the user alone for kind user: its states are the
+                     totals'), before the values become text. The events are grouped once, by user, period
                      and the value of every segment read from the rows; each segment then
                      reads that grouping, many times smaller than the events:
     kind event            the user's periods per value of the row's column;
@@ -20,7 +23,7 @@
 {%- import '_activity.sql' as a with context -%}
 {%- import '_periods.sql' as p with context -%}
 
-{%- macro segment_periods() -%}
+{%- macro segment_periods(windows=('prior',)) -%}
 {#- Only the segments that split the activity views (a table with customer_key alone does not). -#}
 {%- set ns = namespace(carry=[], first=false, user=false) -%}
 {%- for s in segments if s.splits_activity -%}
@@ -28,6 +31,7 @@
 {%- if s.from_events and s.kind == 'user' -%}{%- set ns.first = true -%}{%- endif -%}
 {%- if s.kind == 'user' -%}{%- set ns.user = true -%}{%- endif -%}
 {%- endfor -%}
+{%- set alone = ns.carry | length == 1 -%}
 {%- if ns.first -%}{%- set ns.carry = ns.carry + [('__timestamp__', 'sqlgen_seg_ts')] -%}{%- endif -%}
 {{ a.keyed(ns.carry) }}, seg_grouped AS (
   /* The one grouping of the events: per user, period and value of each segment read from the rows{% if ns.first %}, the first timestamp{% endif %} and the last active date. */
@@ -50,13 +54,28 @@
   GROUP BY user_id
 )
 {%- endif -%}
+{%- if ns.user %}, seg_user_sequenced AS (
+  /* The kind user segments' states are the totals': each user's periods sequenced once, by user. */
+  SELECT user_id, period_key, last_date{{ window_columns(windows, 'user_id') }}
+  FROM {{ user_periods }}
+)
+{%- endif -%}
 {%- for s in segments if s.splits_activity -%}
 {%- set i = segments.index(s) -%}
 {%- if s.kind == 'event' %}, seg_rows_{{ i }} AS (
-  /* Segment {{ i + 1 }} (kind event): each user's active periods per value of the row. */
+  /* Segment {{ i + 1 }} (kind event): each user's active periods per value of the row{% if not alone %} (one grouping of the rows above: several segments are read from them){% endif %}. */
+{%- if alone %}
+  SELECT user_id, period_key, sqlgen_seg_{{ i }} AS seg_value, last_date AS seg_last
+  FROM seg_grouped
+{%- else %}
   SELECT user_id, period_key, sqlgen_seg_{{ i }} AS seg_value, MAX(last_date) AS seg_last
   FROM seg_grouped
   GROUP BY user_id, period_key, sqlgen_seg_{{ i }}
+{%- endif %}
+), seg_sequenced_{{ i }} AS (
+  /* Segment {{ i + 1 }}: each user's periods sequenced within each value. */
+  SELECT user_id, period_key, seg_value, seg_last{{ window_columns(windows, 'user_id, seg_value') }}
+  FROM seg_rows_{{ i }}
 )
 {%- elif s.from_events %}, seg_choice_{{ i }} AS (
   /* Segment {{ i + 1 }} (kind user): the value on the user's first counted row, the smallest non-NULL one on a tie. */
@@ -65,10 +84,10 @@
   JOIN seg_first AS f
     ON g.user_id = f.first_user AND g.first_ts = f.user_first_ts
   GROUP BY g.user_id
-), seg_rows_{{ i }} AS (
-  /* Segment {{ i + 1 }}: every active period of the user, with the user's value. */
-  SELECT u.user_id, u.period_key, c.choice AS seg_value, u.last_date AS seg_last
-  FROM {{ user_periods }} AS u
+), seg_sequenced_{{ i }} AS (
+  /* Segment {{ i + 1 }}: every active period of the user, sequenced, with the user's value. */
+  SELECT u.user_id, u.period_key, c.choice AS seg_value, u.last_date AS seg_last{{ window_copies(windows) }}
+  FROM seg_user_sequenced AS u
   JOIN seg_choice_{{ i }} AS c
     ON c.choice_user = u.user_id
 )
@@ -78,10 +97,10 @@
   FROM __segment_table_{{ i }}__
   WHERE __segment_key_{{ i }}__ IS NOT NULL
   GROUP BY __segment_key_{{ i }}__
-), seg_rows_{{ i }} AS (
-  /* Segment {{ i + 1 }}: every active period of the user, with the table's value (NULL for a user missing from it). */
-  SELECT u.user_id, u.period_key, CASE WHEN t.sqlgen_found = 1 THEN t.sqlgen_choice END AS seg_value, u.last_date AS seg_last
-  FROM {{ user_periods }} AS u
+), seg_sequenced_{{ i }} AS (
+  /* Segment {{ i + 1 }}: every active period of the user, sequenced, with the table's value (NULL for a user missing from it). */
+  SELECT u.user_id, u.period_key, CASE WHEN t.sqlgen_found = 1 THEN t.sqlgen_choice END AS seg_value, u.last_date AS seg_last{{ window_copies(windows) }}
+  FROM seg_user_sequenced AS u
   LEFT JOIN seg_table_{{ i }} AS t
     ON t.sqlgen_key = u.user_id
 )
@@ -90,10 +109,23 @@
   /* Every segment's rows, the value as text: value_missing 1 for NULL, value_text '' then. */
 {%- for s in segments if s.splits_activity %}
   {% if not loop.first %}UNION ALL
-  {% endif %}SELECT '__segment_name_{{ segments.index(s) }}__' AS segment_name, CASE WHEN seg_value IS NULL THEN 1 ELSE 0 END AS value_missing, COALESCE(CAST(seg_value AS TEXT), '') AS value_text, user_id, period_key, seg_last AS last_date
-  FROM seg_rows_{{ segments.index(s) }}
+  {% endif %}SELECT '__segment_name_{{ segments.index(s) }}__' AS segment_name, CASE WHEN seg_value IS NULL THEN 1 ELSE 0 END AS value_missing, COALESCE(CAST(seg_value AS TEXT), '') AS value_text, user_id, period_key, seg_last AS last_date{{ window_copies(windows) }}
+  FROM seg_sequenced_{{ segments.index(s) }}
 {%- endfor %}
 )
+{%- endmacro -%}
+
+{#- The window columns a view asks for, over each user's periods in order, partitioned by
+    ``by``: prior_key (the previous active period, NULL for the first), later_key (the next,
+    NULL for the last), first_key (the first active period). -#}
+{%- macro window_columns(windows, by) -%}
+{%- for name in windows %},
+    {% if name == 'prior' %}LAG(period_key){% elif name == 'later' %}LEAD(period_key){% else %}MIN(period_key){% endif %} OVER (PARTITION BY {{ by }} ORDER BY period_key) AS {{ name }}_key
+{%- endfor -%}
+{%- endmacro -%}
+
+{%- macro window_copies(windows) -%}
+{%- for name in windows %}, {{ name }}_key{% endfor -%}
 {%- endmacro -%}
 
 {%- macro segment_value(missing, text) -%}

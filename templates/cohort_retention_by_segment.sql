@@ -3,14 +3,14 @@
 {#- cohort_retention per segment value: a user's cohort is the user's first active period in
     the value (for a kind user segment, the user's first active period). The ages run to the
     totals' last period with data. -#}
-WITH {{ s.segment_periods() }}, marked AS (
+WITH {{ s.segment_periods(['first']) }}, marked AS (
   /* Each active (segment, value, user, period) with the user's cohort in the value: the first active period there. */
   SELECT
     segment_name,
     value_missing,
     value_text,
     period_key AS marked_key,
-    MIN(period_key) OVER (PARTITION BY segment_name, value_missing, value_text, user_id) AS marked_cohort_key
+    first_key AS marked_cohort_key
   FROM segment_periods
 ), cohort_actives AS (
   /* Actives per segment, value, cohort and period. */

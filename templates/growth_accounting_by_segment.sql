@@ -1,22 +1,13 @@
 {%- import '_periods.sql' as p with context -%}
 {%- import '_segments.sql' as s with context -%}
 {#- growth_accounting per segment value: the same steps, each partitioned by segment and
-    value (value_missing, value_text: NULL is a group of its own). The calendar is the
+    value (prior_key, each row's previous active period of the user in the value, comes with
+    segment_periods; value_missing, value_text: NULL is a group of its own). The calendar is the
     totals' one (every segment covers every counted row, so its first and last period are
     the totals'), crossed with every value, so each value's rows span it. A kind user
     segment gives each user one value, so its values' counts add up to the totals; a kind
     event segment counts a user in every value the user was active with, so they need not. -#}
-WITH {{ s.segment_periods() }}, sequenced AS (
-  /* Each active (segment, value, user, period) with the previous active period of the user in the value (NULL: the first). */
-  SELECT
-    segment_name,
-    value_missing,
-    value_text,
-    period_key,
-    last_date,
-    LAG(period_key) OVER (PARTITION BY segment_name, value_missing, value_text, user_id ORDER BY period_key) AS prior_key
-  FROM segment_periods
-), tallies AS (
+WITH {{ s.segment_periods(['prior']) }}, tallies AS (
   /* Per segment, value and period: actives, new, retained, resurrected. */
   SELECT
     segment_name AS tally_segment,
@@ -28,7 +19,7 @@ WITH {{ s.segment_periods() }}, sequenced AS (
     COUNT(CASE WHEN prior_key IS NULL THEN 1 END) AS new_tally,
     COUNT(CASE WHEN prior_key = period_key - {{ grain.step }} THEN 1 END) AS retained_tally,
     COUNT(CASE WHEN prior_key < period_key - {{ grain.step }} THEN 1 END) AS resurrected_tally
-  FROM sequenced
+  FROM segment_periods
   GROUP BY segment_name, value_missing, value_text, period_key
 ), data_range AS (
   /* The first and last period with data, and the last active date: the totals' own. */

@@ -2,24 +2,13 @@
 {%- import '_segments.sql' as s with context -%}
 {#- user_states per segment value: a user's states within each value (for a kind user
     segment, the user's one value, so the states are the totals'). -#}
-WITH {{ s.segment_periods() }}, sequenced AS (
-  /* Each active (segment, value, user, period) with the user's previous and next active periods in the value. */
-  SELECT
-    segment_name,
-    value_missing,
-    value_text,
-    user_id,
-    period_key,
-    LAG(period_key) OVER (PARTITION BY segment_name, value_missing, value_text, user_id ORDER BY period_key) AS prior_key,
-    LEAD(period_key) OVER (PARTITION BY segment_name, value_missing, value_text, user_id ORDER BY period_key) AS later_key
-  FROM segment_periods
-), data_range AS (
+WITH {{ s.segment_periods(['prior', 'later']) }}, data_range AS (
   /* The last period with data: a user lapses only before it. */
   SELECT MAX(period_key) AS last_key FROM segment_periods
 ), lapsed AS (
   /* Churned: the period after an active one in which the user is not active in the value, up to the last period. */
   SELECT q.segment_name AS lapse_segment, q.value_missing AS lapse_missing, q.value_text AS lapse_text, q.user_id AS lapse_user, q.period_key + {{ grain.step }} AS lapse_key
-  FROM sequenced AS q
+  FROM segment_periods AS q
   CROSS JOIN data_range AS r
   WHERE (q.later_key IS NULL OR q.later_key <> q.period_key + {{ grain.step }})
     AND q.period_key + {{ grain.step }} <= r.last_key
@@ -36,7 +25,7 @@ SELECT
     WHEN prior_key = period_key - {{ grain.step }} THEN 'retained'
     ELSE 'resurrected'
   END AS state
-FROM sequenced
+FROM segment_periods
 UNION ALL
 SELECT
   lapse_segment AS segment,
