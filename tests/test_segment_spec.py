@@ -117,3 +117,17 @@ def test_a_customer_table_alone_splits_revenue_only():
     names = [v.name for v in planned_views(parse_spec(text, "s.yml"))]
     assert "revenue_accounting_by_segment" in names
     assert "growth_accounting_by_segment" not in names
+
+
+def test_a_qualified_segment_table_is_refused_on_sqlite_at_its_key():
+    """Like any qualified table: a SQLite view cannot read another attached database
+    (sqlgen.dialects' refusal), reported at the segment's table."""
+    from sqlgen import UnsupportedError, compile_spec
+
+    text = USER.replace("raw.app_events", "app_events") + "    table: app.users\n    key: id\n"
+    with pytest.raises(UnsupportedError) as caught:
+        compile_spec(parse_spec(text, "s.yml"), "sqlite")
+    assert str(caught.value).startswith(
+        "s.yml:10:12: segments.platform.table: dialect 'sqlite' cannot generate "
+        "segments.platform.table: a SQLite view cannot read a table of another attached "
+        "database")
