@@ -191,6 +191,7 @@ def segmented_rows(draw):
     return rows, users
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine_name,target", PAIRS)
 def test_random_data_on_every_engine(engines, engine_name, target):
     engine = engines(engine_name)
