@@ -14,6 +14,10 @@ from sqlgen.spec import KEYS_BY_PATH
 from sqlgen.views import VIEWS_BY_NAME
 
 OPTIONAL_VIEWS = ("cohort_retention", "trailing_activity", "revenue_accounting")
+# The floor of the segmented views: the one grouping of the events they need, by user,
+# segment value (the kind event one; the kind user one comes from its own table) and month.
+FLOOR_SEGMENTS = ("SELECT count(*) FROM "
+                  "(SELECT DISTINCT user_id, platform, date_trunc('month', ts) FROM segment_events)")
 TRAILING_DAYS = 28
 
 
@@ -61,9 +65,31 @@ def _optional_sections() -> str:
     return "".join(parts)
 
 
-def create_views(con, grain: str, schema: str) -> list[str]:
+SEGMENT_SCHEMA = "bench_segments"
+
+
+def segment_spec_text(schema: str = SEGMENT_SCHEMA) -> str:
+    """A monthly spec over segment_events with one kind event segment (platform, ten values)
+    and one kind user segment from a table (channel, ten values and NULL)."""
+    return textwrap.dedent(f"""\
+        version: 1
+        activity:
+          table: segment_events
+          user: user_id
+          timestamp: ts
+        grain: month
+        segments:
+          platform: {{kind: event, column: platform}}
+          channel: {{kind: user, column: channel, table: segment_users, key: user_id}}
+        output:
+          dialect: duckdb
+          schema: {schema}
+        """)
+
+
+def create_views(con, grain: str, schema: str, text: str | None = None) -> list[str]:
     """Compile the spec for DuckDB and (re)create its views in ``schema``; return their names."""
-    spec = parse_spec(spec_text(grain, schema), f"bench_{grain}.yml")
+    spec = parse_spec(text or spec_text(grain, schema), f"bench_{grain}.yml")
     con.execute(f"CREATE SCHEMA IF NOT EXISTS {schema}")
     created = []
     for compiled in compile_spec(spec, "duckdb"):

@@ -68,6 +68,12 @@ def prepare_views(db: Path) -> tuple[dict[str, list[str]], list[str]]:
             notes.append(f"sqlgen {grain} views not created: {type(err).__name__}: {err}")
         con.execute(f"CREATE SCHEMA IF NOT EXISTS before_{grain}")
         con.execute((BASELINE / f"views_{grain}.sql").read_text())
+    if generated.available("growth_accounting_by_segment"):
+        try:
+            created["segments"] = generated.create_views(
+                con, "month", generated.SEGMENT_SCHEMA, generated.segment_spec_text())
+        except Exception as err:  # report, never hide
+            notes.append(f"sqlgen segment views not created: {type(err).__name__}: {err}")
     con.close()
     return created, notes
 
@@ -109,7 +115,22 @@ def build_cases(created: dict[str, list[str]], stats: dict) -> tuple[list, list[
                                           note="agreement check for the weekly view"))
     cases += _trailing_cases(created, stats, notes)
     cases += _optional_cases(created, notes)
+    cases += _segment_cases(created, notes)
     return cases, notes
+
+
+def _segment_cases(created: dict, notes: list[str]) -> list:
+    """growth_accounting_by_segment (a kind event and a kind user segment of ten values
+    each) beside its own floor, the grouping by user, platform and month."""
+    if "growth_accounting_by_segment" not in created.get("segments", []):
+        notes.append("growth_accounting_by_segment: not in this checkout; not measured")
+        return []
+    view = f"{generated.SEGMENT_SCHEMA}.growth_accounting_by_segment"
+    return [measure.Case("floor: distinct (user, platform, month)", "duckdb",
+                         generated.FLOOR_SEGMENTS, note="the segmented views' floor"),
+            measure.Case("sqlgen growth_accounting_by_segment, month", "duckdb",
+                         generated.full_scan(view),
+                         note="every column timed; platform (event) and channel (user)")]
 
 
 def _trailing_case(name: str, query: str, note: str = "", timed: str = "") -> measure.Case:
@@ -219,6 +240,7 @@ def main(argv: list[str] | None = None) -> int:
     size = data.SIZES[args.size]
     _log(f"dataset {size.name}: generating if missing")
     db = data.generate(size, args.data_dir, log=_log)
+    data.add_segment_tables(db, log=_log)
     created, notes = prepare_views(db)
     con = duckdb.connect(str(db), read_only=True)
     con.execute("SET enable_progress_bar = false")

@@ -208,7 +208,24 @@ def deciding_lines(spec: Spec, view: View | None) -> list[str]:
             lines += _activity_lines(source) if name == "activity" else []
     lines.append(f"grain: {spec.grain}"
                  + (f", weeks start on {spec.week_start}" if spec.grain == "week" else ""))
+    if view is None or view.option == "segments":
+        lines += [_segment_line(segment) for segment in spec.segments]
     return lines
+
+
+def _segment_line(segment) -> str:
+    """Where a segment's value comes from, in words (a header line)."""
+    column = names.display((segment.column,))
+    if segment.kind == "event":
+        return (f"segment {segment.name}: kind event, {column} of each activity row; values "
+                "need not add up to the totals")
+    if segment.table is None:
+        return (f"segment {segment.name}: kind user, {column} on the user's first counted "
+                "activity row (ties: the smallest non-NULL value)")
+    keys = [f"{what} {names.display((part,))}" for what, part in
+            (("user key", segment.key), ("customer key", segment.customer_key)) if part]
+    return (f"segment {segment.name}: kind user, {column} of {names.display(segment.table)} "
+            f"by {' and '.join(keys)}; users missing from it are NULL")
 
 
 def _source_lines(name: str, source) -> list[str]:

@@ -95,6 +95,7 @@ def render(view: View, spec: Spec) -> str:
         revenue=spec.revenue,
         windows=spec.trailing_windows,
         definitions=[d.name for d in spec.definitions],
+        segments=spec.segments,
         ref=lambda name: f"{VIEW_MARKER}{name}",
     )
 
@@ -131,6 +132,7 @@ def markers(spec: Spec) -> Markers:
         if source.report_from is not None:
             literals["__report_from__"] = exp.Literal.string(source.report_from.isoformat())
     _revenue_markers(spec, columns, tables, literals)
+    _segment_markers(spec, columns, tables, literals)
     return Markers(columns, tables, literals)
 
 
@@ -161,6 +163,20 @@ def _revenue_markers(spec: Spec, columns: dict, tables: dict, literals: dict) ->
     tables["__revenue_table__"] = names.table(revenue.table)
     literals["__revenue_timezone__"] = exp.Literal.string(revenue.timezone or "UTC")
     literals.update(_range_markers("revenue", revenue))
+
+
+def _segment_markers(spec: Spec, columns: dict, tables: dict, literals: dict) -> None:
+    """Markers of segment i: its value column ``__segment_i__``, name literal
+    ``'__segment_name_i__'``, and with a table ``__segment_table_i__``, ``__segment_key_i__``
+    and ``__segment_customer_i__``."""
+    for i, segment in enumerate(spec.segments):
+        columns[f"__segment_{i}__"] = names.column(segment.column)
+        literals[f"__segment_name_{i}__"] = exp.Literal.string(segment.name)
+        if segment.table is not None:
+            tables[f"__segment_table_{i}__"] = names.table(segment.table)
+        for marker, part in (("key", segment.key), ("customer", segment.customer_key)):
+            if part is not None:
+                columns[f"__segment_{marker}_{i}__"] = names.column(part)
 
 
 RANGE_MARGIN = dt.timedelta(days=2)  # > a day of zone offset plus a day of session zone

@@ -103,6 +103,28 @@ def _check_part(spec: Spec, catalog: Catalog) -> list[Problem]:
                                                                            catalog)))
             continue
         problems += _check_section(spec, name, section, table, catalog)
+    return problems + _check_segments(spec, catalog)
+
+
+def _check_segments(spec: Spec, catalog: Catalog) -> list[Problem]:
+    """Each segment's columns exist: in the activity table, or in the segment's own table."""
+    problems = []
+    for segment in spec.segments:
+        path = f"segments.{segment.name}"
+        if segment.table is None:
+            table = catalog.find(spec.activity.table) if spec.activity else None
+        else:
+            table = catalog.find(segment.table)
+            if table is None:
+                problems.append(_problem(spec, f"{path}.table",
+                                         _missing_table(segment.table, catalog)))
+        if table is None:
+            continue  # a missing activity table is reported once, at activity.table
+        for key in ("column", "key", "customer_key"):
+            part = getattr(segment, key)
+            if part is not None and table.column(*part) is None:
+                problems.append(_problem(spec, f"{path}.{key}",
+                                         _missing_column(part, table, catalog)))
     return problems
 
 

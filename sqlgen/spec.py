@@ -29,6 +29,7 @@ TIMESTAMP_TYPES = ("timestamp", "timestamptz", "date")
 REVENUE_SHAPES = ("charges", "subscriptions")
 INTERVALS = ("month", "quarter", "year")
 MEASURES = ("run_rate", "recognized")
+SEGMENT_KINDS = ("event", "user")
 MAX_SCALE = 6
 MAX_WINDOW_DAYS = 366
 # The valid time range of a source's rows (local dates, `valid_from` inclusive, `valid_until`
@@ -203,6 +204,34 @@ KEYS: tuple[Key, ...] = (
         f"Window lengths in days for `trailing_activity`: distinct whole numbers from 1 to "
         f"{MAX_WINDOW_DAYS}, e.g. `[7, 28]`; leave out (or `[]`) for no such view.",
         example="[7, 28]"),
+    Key("segments", "segments",
+        "Optional splits of the activity views by a property: a mapping from each segment's "
+        "name (letters, digits and _; shown in the views' `segment` column) to its "
+        "definition below. Adds `growth_accounting_by_segment`, `user_states_by_segment`, "
+        "`cohort_retention_by_segment` (with `cohorts: true`) and "
+        "`revenue_accounting_by_segment` (for a segment with `customer_key`); see "
+        "docs/segments.md.", example="{platform: {kind: event, column: platform}}"),
+    Key("segments.<name>.kind", "choice",
+        "`event`: a property of each activity row, a user may be active in several values "
+        "and the per-value counts need not add up to the totals; `user`: an attribute of the "
+        "user, exactly one value per user, so the per-value counts add up to the totals.",
+        required=True, choices=SEGMENT_KINDS),
+    Key("segments.<name>.column", "segment column",
+        "Column holding the segment's value: of the activity table, or of `table` when it "
+        "is given. Its values are shown as text in `segment_value`; NULL is a group of its "
+        "own.", required=True, example="platform"),
+    Key("segments.<name>.table", "table",
+        "`kind: user` only: a table with one row per user holding the value (users missing "
+        "from it get NULL; a user listed more than once gets the smallest non-NULL value). "
+        "Without it, a user's value is the one on the user's first counted activity row "
+        "(ties: the smallest non-NULL value).", example="app.users"),
+    Key("segments.<name>.key", "segment column",
+        "The user key column of `table`, compared with `activity.user`; `table` needs `key`, "
+        "`customer_key` or both.", example="user_id"),
+    Key("segments.<name>.customer_key", "segment column",
+        "`kind: user` with `table` only: the column of `table` holding the revenue customer "
+        "key (`revenue.customer`); the segment then splits `revenue_accounting_by_segment` "
+        "(and the activity views only when `key` is given too).", example="account_id"),
     Key("allow_functions", "functions",
         "Optional list of further function names the `where` filters may call, e.g. "
         "`[is_internal_account]`: a trust decision. These functions run with the privileges of "
@@ -274,6 +303,34 @@ class RevenueSource:
 
 
 @dataclass(frozen=True)
+class Segment:
+    """One segment: a name, where its value comes from, and whether it splits revenue.
+
+    ``kind`` event: a column of the activity table, read per row; user: one value per user,
+    from ``table`` (keyed by ``key``) or else from the user's first counted activity row.
+    ``customer_key``: the column of ``table`` holding the revenue customer key.
+    """
+
+    name: str
+    kind: str
+    column: names.Part
+    table: tuple[names.Part, ...] | None = None
+    key: names.Part | None = None
+    customer_key: names.Part | None = None
+
+    @property
+    def from_events(self) -> bool:
+        """True when the value is read from the activity rows (no table of its own)."""
+        return self.table is None
+
+    @property
+    def splits_activity(self) -> bool:
+        """True when the segment splits the activity views: read from the activity rows, or
+        from a table with a user key (a table with only customer_key splits revenue only)."""
+        return self.table is None or self.key is not None
+
+
+@dataclass(frozen=True)
 class Output:
     dialect: str
     schema: tuple[names.Part, ...] | None
@@ -296,6 +353,7 @@ class Spec:
     file: str = field(default="spec.yml", compare=False)
     revenue: RevenueSource | None = None
     allow_functions: tuple[str, ...] = ()
+    segments: tuple[Segment, ...] = ()
     # Where each key's value was written: key path -> (line, col), filled by the checker;
     # ``path`` is the spec file as the user named it. Neither is part of the meaning.
     positions: dict[str, tuple[int, int]] = field(default_factory=dict, compare=False,
@@ -344,6 +402,9 @@ class Spec:
             data.pop("revenue", None)  # specs without revenue keep their earlier hash
         elif data["revenue"]["measure"] in (None, "recognized"):
             data["revenue"].pop("measure")  # nor do charges, nor recognized (as before)
+        segments = data.pop("segments", ())
+        if segments:  # specs without segments keep their earlier hash
+            data["segments"] = [asdict(segment) for segment in segments]
         for name, off in (("cohorts", False), ("engagement", False), ("trailing_windows", [])):
             if data.get(name) == off:
                 data.pop(name)  # nor do specs without these views
@@ -454,6 +515,19 @@ def _cross_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
     if revenue is not None and isinstance(revenue.value, dict):
         _revenue_shape_checks(checker, revenue, v)
     _activity_view_checks(checker, root, v)
+    _segment_revenue_check(checker, v)
+
+
+def _segment_revenue_check(checker: _Checker, v: dict[str, Any]) -> None:
+    """customer_key splits revenue: refuse it in a spec without revenue."""
+    if v.get("revenue"):
+        return
+    for segment in v.get("segments") or ():
+        if segment.customer_key is not None:
+            key = f"segments.{segment.name}.customer_key"
+            checker.report(checker.positions[key], key,
+                           "splits revenue_accounting_by_segment, and the spec has no "
+                           "revenue section; add one or remove customer_key")
 
 
 PG_NAME_LIMIT = 63  # PostgreSQL cuts longer identifiers (NAMEDATALEN - 1, from its manual)
@@ -504,9 +578,10 @@ def _activity_view_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> N
     """engagement and trailing_windows read activity: refuse them in a spec without it."""
     if v.get("activity") or v.get("definitions") or not v.get("revenue"):
         return
-    for name in ("engagement", "trailing_windows"):
+    splits = any(segment.splits_activity for segment in v.get("segments") or ())
+    for name in ("engagement", "trailing_windows", "segments"):
         node = root.value.get(name)
-        if node is not None and v.get(name):
+        if node is not None and v.get(name) and (name != "segments" or splits):
             checker.report((node.line, node.col), name,
                            "needs an activity section: these views count active users")
 
@@ -609,7 +684,8 @@ def _build(v: dict[str, Any], filename: str, given: set[str] = frozenset()) -> S
                 engagement=v["engagement"], trailing_windows=tuple(v["trailing_windows"] or ()),
                 file=os.path.basename(filename), revenue=_build_revenue(v),
                 allow_functions=tuple(v["allow_functions"] or ()),
-                definitions=tuple(definitions))
+                definitions=tuple(definitions),
+                segments=tuple(v["segments"] or ()))
 
 
 def _activity_source(v: dict[str, Any], path: str, report_from: dt.date | None) -> ActivitySource:
@@ -713,6 +789,9 @@ class _Checker:
             return
         if key.kind == "definitions":
             self.values[key.path] = self.definitions(child)
+            return
+        if key.kind == "segments":
+            self.values[key.path] = _check_segments(self, child)
             return
         try:
             self.values[key.path] = _CHECKS[key.kind](self, key, child.value)
@@ -972,6 +1051,102 @@ def _check_date(_c: _Checker, _key: Key, value: Any) -> dt.date:
         raise ValueError(f"{value} is outside the dates sqlgen can compare on every engine, "
                          f"{EARLIEST_DATE} to {LATEST_DATE}")
     return value
+
+
+SEGMENT_KEYS = ("kind", "column", "table", "key", "customer_key")
+
+
+def _check_segments(c: _Checker, node: Node) -> tuple[Segment, ...]:
+    """Each segment checked at its own place; a bad one is reported and left out."""
+    if not isinstance(node.value, dict):
+        c.report((node.line, node.col), "segments",
+                 f"expected a mapping of segment names to their definitions, e.g. "
+                 f"{KEYS_BY_PATH['segments'].example}; got {_describe(node.value)}")
+        return ()
+    found = []
+    for name, entry in node.value.items():
+        before = len(c.problems)
+        _check_segment_name(c, name, node.key_pos[name])
+        segment = _check_segment(c, name, entry)
+        if segment is not None and len(c.problems) == before:
+            found.append(segment)
+    return tuple(found)
+
+
+def _check_segment_name(c: _Checker, name: str, pos: tuple[int, int]) -> None:
+    from .views import segment_view_columns  # the views table reads the spec module
+
+    path = f"segments.{name}"
+    if not names.BARE.fullmatch(name):
+        c.report(pos, path, f"segment name {shown(name)} must be letters, digits and _ "
+                            "(starting with a letter or _)")
+    elif name.lower().startswith(names.RESERVED_PREFIX):
+        c.report(pos, path, f"names starting with {names.RESERVED_PREFIX!r} are reserved")
+    else:
+        clash = segment_view_columns().get(name.lower())
+        if clash:
+            c.report(pos, path, f"segment name {shown(name)} is also a column of {clash}; "
+                                "rename the segment")
+
+
+def _check_segment(c: _Checker, name: str, entry: Node) -> Segment | None:
+    path = f"segments.{name}"
+    if not isinstance(entry.value, dict):
+        c.report((entry.line, entry.col), path,
+                 f"expected a mapping with kind and column, e.g. {{kind: event, column: "
+                 f"platform}}; got {_describe(entry.value)}")
+        return None
+    for key, pos in entry.key_pos.items():
+        if key not in SEGMENT_KEYS:
+            c.report(pos, f"{path}.{key}", f"unknown key.{_suggest(key, SEGMENT_KEYS)} "
+                     f"Allowed here: {', '.join(SEGMENT_KEYS)}")
+    v = {key: _segment_value(c, path, entry, key) for key in SEGMENT_KEYS}
+    _segment_rules(c, path, entry, v)
+    if v["kind"] is None or v["column"] is None:
+        return None
+    return Segment(name=name, kind=v["kind"], column=v["column"], table=v["table"],
+                   key=v["key"], customer_key=v["customer_key"])
+
+
+def _segment_value(c: _Checker, path: str, entry: Node, key: str) -> Any:
+    """One key of a segment, checked like the spec key of the same kind."""
+    doc = KEYS_BY_PATH[f"segments.<name>.{key}"]
+    child = entry.value.get(key)
+    full = f"{path}.{key}"
+    if child is None or child.value is None:
+        if doc.required:
+            example = doc.example or doc.choices[0]
+            c.report((entry.line, entry.col), full,
+                     f"required key is missing from {path}; e.g. {key}: {example}")
+        return None
+    c.positions[full] = (child.line, child.col)
+    if child.refused:
+        return None
+    check = _CHECKS["column" if doc.kind == "segment column" else doc.kind]
+    try:
+        return check(c, replace(doc, path=full), child.value)
+    except ValueError as err:
+        c.report((child.line, child.col), full, str(err))
+        return None
+
+
+def _segment_rules(c: _Checker, path: str, entry: Node, v: dict[str, Any]) -> None:
+    """table and key together; table and customer_key for kind: user only."""
+    pos = entry.key_pos
+    if "key" in pos and "table" not in pos:
+        c.report(pos["key"], f"{path}.key", "key names the user key column of table; add "
+                 "table (e.g. table: app.users) or remove key")
+    if "table" in pos and "key" not in pos and "customer_key" not in pos:
+        c.report(pos["table"], f"{path}.table", "a segment table needs key, its user key "
+                 "column (e.g. key: user_id), or customer_key, its revenue customer column")
+    if "customer_key" in pos and "table" not in pos:
+        c.report(pos["customer_key"], f"{path}.customer_key", "customer_key names a column "
+                 "of table; add table or remove customer_key")
+    if v["kind"] == "event":
+        for key in ("table", "customer_key"):
+            if key in pos:
+                c.report(pos[key], f"{path}.{key}", "a kind: event segment reads the activity "
+                         f"table; remove {key} or set kind: user")
 
 
 _CHECKS: dict[str, Callable[[_Checker, Key, Any], Any]] = {

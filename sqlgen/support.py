@@ -53,6 +53,9 @@ def features_used(spec: Spec) -> list[tuple[str, str]]:
     for key, source in (("activity.table", activity), ("revenue.table", spec.revenue)):
         if source is not None and len(source.table) > 1:
             used.append(("qualified names", key))
+    for segment in spec.segments:
+        if segment.table is not None and len(segment.table) > 1:
+            used.append(("qualified names", f"segments.{segment.name}.table"))
     return used + _revenue_features(spec) + _range_features(spec)
 
 

@@ -260,7 +260,70 @@ VIEWS: tuple[View, ...] = (
         reads="revenue", option="cohorts"),
 )
 
+# ---------------------------------------------------------------- segmented views
+# Each segmented view is its base view split by segment value: the same columns after
+# `segment` and `segment_value`, derived from the base row so that the two cannot drift.
+
+SEGMENT_COLUMNS = (
+    ("segment", "the segment's name, as written in the spec"),
+    ("segment_value", "the segment's value as text (the engine's own spelling of it); NULL "
+                      "is a group of its own"),
+)
+EVENT_NOTE = ("For a `kind: event` segment a user is counted in every value the user was "
+              "active with, so the values' counts need not add up to the totals.")
+
+
+def _segmented(base: View, summary: str, enabled: Callable[[Spec], bool]) -> View:
+    note = f" {EVENT_NOTE}" if base.reads == "activity" else ""
+    return View(f"{base.name}_by_segment", summary + note, SEGMENT_COLUMNS + base.columns,
+                depends=base.depends, reads=base.reads,
+                personal_data=base.personal_data, enabled=enabled, option="segments")
+
+
+_BASE = {view.name: view for view in VIEWS}
+
+
+def _splits_activity(spec: Spec) -> bool:
+    return spec.activity is not None and any(s.splits_activity for s in spec.segments)
+
+
+def _splits_revenue(spec: Spec) -> bool:
+    return spec.revenue is not None and any(s.customer_key for s in spec.segments)
+
+
+SEGMENTED_VIEWS: tuple[View, ...] = (
+    _segmented(_BASE["growth_accounting"],
+               "growth_accounting per segment and value: one row per segment, value and "
+               "period of the totals' calendar, empty periods included.",
+               _splits_activity),
+    _segmented(_BASE["user_states"],
+               "user_states per segment and value: one row per segment, value, user and "
+               "period in which the user is new, retained, resurrected or churned in that "
+               "value.",
+               _splits_activity),
+    _segmented(_BASE["cohort_retention"],
+               "cohort_retention per segment and value: cohorts of the users by their first "
+               "active period in the value, every age up to the last period with data.",
+               lambda spec: spec.cohorts and _splits_activity(spec)),
+    _segmented(_BASE["revenue_accounting"],
+               "revenue_accounting per value of each segment with `customer_key`: one row per "
+               "segment, value and period of the totals' calendar, empty periods included. "
+               "Each customer has one value, so the values add up to revenue_accounting.",
+               _splits_revenue),
+)
+
+VIEWS = VIEWS + SEGMENTED_VIEWS
 VIEWS_BY_NAME = {view.name: view for view in VIEWS}
+
+
+def segment_view_columns() -> dict[str, str]:
+    """Every column of a segmented view (lower case) -> the first view holding it: a
+    segment's name may not be one of them."""
+    found: dict[str, str] = {}
+    for view in SEGMENTED_VIEWS:
+        for column in view.column_names:
+            found.setdefault(column.lower(), view.name)
+    return found
 
 
 def planned_views(spec: Spec) -> list[View]:

@@ -6,6 +6,9 @@
                     NULL or one outside the valid range are left out
                     (activity_source_summary counts them).
   keyed()           source_ctes() and the CTE keyed: (user_id, activity_date, period_key).
+  carry             (optional, both macros) (expression, name) pairs of further columns of
+                    the activity table carried through every CTE under those names (the
+                    segments' values, see _segments.sql).
   active_periods()  the CTE active_periods: the distinct (user_id, period_key) pairs, with
                     the last active date of each (the only other column any period view
                     needs, for period_status). This one grouping is the unavoidable pass over
@@ -19,29 +22,29 @@ however often the view refers to it.
 -#}
 {%- import '_periods.sql' as p with context -%}
 
-{%- macro source_ctes() -%}
+{%- macro source_ctes(carry=()) -%}
 sqlgen_source AS (
   /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
      A timestamp far outside the valid range becomes NULL before any zone conversion. */
-  SELECT __user__ AS sqlgen_user, {{ p.near_value('__timestamp__', source.timestamp_type, 'activity') }} AS sqlgen_ts
+  SELECT __user__ AS sqlgen_user, {{ p.near_value('__timestamp__', source.timestamp_type, 'activity') }} AS sqlgen_ts{% for column, name in carry %}, {{ column }} AS {{ name }}{% endfor %}
   FROM __activity_table__
   WHERE __user__ IS NOT NULL AND __timestamp__ IS NOT NULL{% if source.where %} AND (__where__){% endif %}
 ), sqlgen_local AS (
   /* The local calendar date of each row, by the time zone rule of the spec. */
-  SELECT sqlgen_user, {{ p.local_date('sqlgen_ts') }} AS sqlgen_date
+  SELECT sqlgen_user, {{ p.local_date('sqlgen_ts') }} AS sqlgen_date{% for _column, name in carry %}, {{ name }}{% endfor %}
   FROM sqlgen_source
 ), dated AS (
   /* The rows whose local date is inside the valid range (the summary counts the others). */
-  SELECT sqlgen_user AS user_id, sqlgen_date AS activity_date
+  SELECT sqlgen_user AS user_id, sqlgen_date AS activity_date{% for _column, name in carry %}, {{ name }}{% endfor %}
   FROM sqlgen_local
   WHERE {{ p.in_range('sqlgen_date', 'activity') }}
 )
 {%- endmacro -%}
 
-{%- macro keyed() -%}
-{{ source_ctes() }}, keyed AS (
+{%- macro keyed(carry=()) -%}
+{{ source_ctes(carry) }}, keyed AS (
   /* {% if grain.family == 'day' %}period_key: days since Monday 1970-01-05, a week keyed by its first day, so adjacent periods differ by the step in days{% else %}period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months{% endif %}. */
-  SELECT user_id, activity_date, {{ p.period_key('activity_date') }} AS period_key
+  SELECT user_id, activity_date, {{ p.period_key('activity_date') }} AS period_key{% for _column, name in carry %}, {{ name }}{% endfor %}
   FROM dated
 )
 {%- endmacro -%}

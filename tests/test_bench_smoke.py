@@ -42,7 +42,9 @@ def test_every_implementation_agrees(smoke):
     for expected in ("floor: distinct (user, month)", "sqlgen growth_accounting, month",
                      "hand-written self-join SQL, month", "hand-written LAG/LEAD SQL, month",
                      "pandas, month", "polars, month", "sqlgen growth_accounting, week",
-                     "naive per-day window join, 28 days"):
+                     "naive per-day window join, 28 days",
+                     "floor: distinct (user, platform, month)",
+                     "sqlgen growth_accounting_by_segment, month"):
         assert expected in names
     assert "identical: every column of bench_month.growth_accounting" in log
     assert "identical: every column of bench_week.growth_accounting" in log

@@ -83,6 +83,28 @@ SPECS.update({f"revenue_{label}": (REVENUE_SPEC, grain) for label, grain in GRAI
 SPECS.update({f"revenue_run_rate_{label}": (RUN_RATE_SPEC, grain)
               for label, grain in GRAINS.items()})
 SPECS["revenue_charges_month"] = (CHARGES_SPEC, GRAINS["month"])
+# Segments: one of each kind and source, and a customer table splitting revenue.
+SEGMENT_SPEC = SPEC.replace("engagement: true\ntrailing_windows: [7, 28]\n", "") + """\
+revenue:
+  table: billing.invoice_lines
+  customer: account_id
+  timestamp: invoiced_at
+  amount: amount
+segments:
+  platform:
+    kind: event
+    column: platform
+  plan:
+    kind: user
+    column: plan
+  channel:
+    kind: user
+    column: channel
+    table: raw.users
+    key: user_id
+    customer_key: account_id
+"""
+SPECS["segments_month"] = (SEGMENT_SPEC, GRAINS["month"])
 
 
 def flatten(text: str) -> str:

@@ -117,7 +117,7 @@ def test_base_spec_is_valid(tmp_path):
 # ------------------------------------------------ broken specs: every key, wrong shapes
 
 def _wrong_values(kind: str) -> list:
-    if kind in ("mapping", "definitions"):  # a mapping of mappings is a definitions shape
+    if kind in ("mapping", "definitions", "segments"):  # mappings of mappings
         return [[1, 2], 42]
     if kind == "windows":
         return [{"a": {"b": 1}}, "seven"]

@@ -143,6 +143,15 @@ CATALOGUE = [
     ("money of the wrong scale", "  amount: amount\n", "  amount: amount\n  scale: 3\n",
      "15:11: revenue.amount: 'amount' is DECIMAL(12,2), of scale 2, but revenue.scale is 3; "
      "set scale: 2 or cast the column to DECIMAL(18,3) upstream"),
+    ("segment column not in the activity table", "grain: month\n",
+     "grain: month\nsegments:\n  kind_of_event: {kind: event, column: event_nam}\n",
+     "18:40: segments.kind_of_event.column: column 'event_nam' is not in raw.app_events "
+     "({db}). Did you mean 'event_name'?"),
+    ("segment table missing", "grain: month\n",
+     "grain: month\nsegments:\n  tier: {kind: user, column: tier, table: billing.tiers, "
+     "customer_key: account_id}\n",
+     "18:43: segments.tier.table: table 'billing.tiers' is not in {db} (it holds "
+     "billing.charges, raw.app_events). Did you mean 'billing.charges'?"),
     ("customer key misspelt", "customer: account_id", "customer: acount_id",
      "12:13: revenue.customer: column 'acount_id' is not in billing.charges ({db}). "
      "Did you mean 'account_id'?"),

@@ -26,7 +26,7 @@ CASES = [
       "report_from",
       "s.yml:7:1: outptu: unknown key. Did you mean 'output'? Allowed here: version, "
       "activity, definitions, report_from, revenue, grain, week_start, output, cohorts, "
-      "engagement, trailing_windows, allow_functions"]),
+      "engagement, trailing_windows, segments, allow_functions"]),
     ("dialect", GOOD + "output:\n  dialect: snowflak\n",
      ["s.yml:8:12: output.dialect: 'snowflak' is not one of duckdb, postgres, spark, "
       "databricks, clickhouse, mysql, sqlite, bigquery, snowflake, redshift, trino, tsql. "
