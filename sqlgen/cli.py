@@ -17,12 +17,30 @@ from . import __version__
 from .comments import printable
 from .compiler import build_inputs, file_names, render_files, render_targets
 from .dialects import TARGETS, target_names
-from .errors import EXIT_OUTPUT, SpecError, SqlgenError, UnsupportedError
+from .errors import (EXIT_OUTPUT, EXIT_SPEC, EXIT_USAGE, OutputError, SpecError, SqlgenError,
+                     UnsupportedError)
 from .output import (check_files, is_up_to_date, plan_folder, refuse, spec_owner, tidy,
                      write_folders)
 from .spec import Spec, load_spec
 from .support import gaps
 from .views import planned_views
+
+
+class UsageError(SqlgenError):
+    exit_code = EXIT_USAGE
+
+
+class _Several(SqlgenError):
+    """The problems of several specs of one build, each rendered as its own error does."""
+
+    exit_code = EXIT_SPEC
+
+    def __init__(self, errors: list[SqlgenError]):
+        self.errors = errors
+        super().__init__("\n".join(err.render() for err in errors))
+
+    def render(self) -> str:
+        return str(self)
 
 
 @dataclass(frozen=True)
@@ -94,7 +112,10 @@ def _parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
     build = sub.add_parser("build", help="write the SQL files for a spec")
-    build.add_argument("spec", help="the YAML spec file")
+    build.add_argument("spec", nargs="+", metavar="SPEC",
+                       help="the YAML spec file(s), or folders of them (every *.yml and "
+                            "*.yaml file directly in a folder); each spec gets its own "
+                            "output folder")
     build.add_argument("--dialect", type=_dialects, metavar="D",
                        help="target dialect(s): one name, a comma-separated list, or all "
                             "(default: output.dialect of the spec)")
@@ -132,6 +153,13 @@ def _parser() -> argparse.ArgumentParser:
                                                    "source holds several")
     init.add_argument("--out", metavar="FILE", default="growth.yml",
                       help="the spec file to write (default: growth.yml); never overwritten")
+
+    apply = sub.add_parser("apply", help="create the spec's schema and views in a database, "
+                                         "in one transaction")
+    apply.add_argument("spec", help="the YAML spec file")
+    apply.add_argument("--to", required=True, metavar="DATABASE",
+                       help="a DuckDB database file or a postgresql:// URL; the spec is "
+                            "checked against its tables first")
 
     demo = sub.add_parser("demo", help="build and run the views on an invented demo dataset")
     demo.add_argument("--folder", default="sqlgen-demo", metavar="DIR",
@@ -188,37 +216,110 @@ def _load(args: argparse.Namespace) -> Spec:
     return spec
 
 
-def _build(args: argparse.Namespace) -> int:
+@dataclass
+class _Job:
+    """One spec of a build: its folders (folder, target, build inputs, manifest name),
+    which of them the manifest vouches for, and the files compiled for the others."""
+
+    path: str
+    spec: Spec
+    names: list[str]
+    plans: list[tuple[Path, str, list[str], str]]
+    fresh: list[bool]
+    rendered: dict[str, dict[str, str]]
+
+
+def spec_paths(given: list[str]) -> list[str]:
+    """The spec files named: each file as given, and for a folder every ``*.yml`` and
+    ``*.yaml`` file directly in it, by name (names starting with ``.`` skipped)."""
+    found: list[str] = []
+    for item in given:
+        path = Path(item)
+        if path.is_dir():
+            specs = sorted(p for p in path.iterdir() if p.suffix in (".yml", ".yaml")
+                           and not p.name.startswith(".") and p.is_file())
+            if not specs:
+                raise UsageError(f"{printable(item, False)}: a folder without a spec "
+                                 "(*.yml or *.yaml) in it")
+            found += [str(p) for p in specs]
+        else:
+            found.append(item)
+    return list(dict.fromkeys(found))
+
+
+def _job(path: str, args: argparse.Namespace, several: bool) -> _Job:
+    """One spec's part of a build; with several specs, ``--out DIR`` means DIR/<spec stem>."""
+    out = str(Path(args.out) / Path(path).stem) if several and args.out else args.out
+    args = argparse.Namespace(**{**vars(args), "spec": path, "out": out})
     spec = _load(args)
     chosen = args.dialect or Dialects((spec.output.dialect,))
     dialects = _buildable(spec, chosen)
     names = file_names(spec)
-    plans = [(folder, target, build_inputs(spec, target), spec_owner(args.spec, folder))
-             for target, folder in _folders(spec, args.spec, chosen, dialects, args.out)]
+    plans = [(folder, target, build_inputs(spec, target), spec_owner(path, folder))
+             for target, folder in _folders(spec, path, chosen, dialects, args.out)]
     # A folder whose manifest matches these inputs and whose files match their recorded
     # hashes holds what a build would write: no need to compile its target.
     fresh = [not args.full and is_up_to_date(folder, owner, inputs, names)
              for folder, _, inputs, owner in plans]
-    todo = [plan for plan, ok in zip(plans, fresh) if not ok]
-    rendered = (render_targets(spec, [target for _, target, _, _ in todo],
-                               args.jobs or _spare_cpus()) if todo else {})
+    todo = [target for (_, target, _, _), ok in zip(plans, fresh) if not ok]
+    rendered = render_targets(spec, todo, args.jobs or _spare_cpus()) if todo else {}
+    return _Job(path, spec, names, plans, fresh, rendered)
+
+
+def _jobs_of(args: argparse.Namespace) -> list[_Job]:
+    """Every spec loaded and compiled before anything is written; the problems of every
+    spec reported together."""
+    jobs, failed = [], []
+    paths = spec_paths(args.spec)
+    for path in paths:
+        try:
+            jobs.append(_job(path, args, len(paths) > 1))
+        except (SpecError, UnsupportedError) as err:
+            failed.append(err)
+    if len(failed) == 1:
+        raise failed[0]
+    if failed:
+        raise _Several(failed)
+    _claimed_twice(jobs)
+    return jobs
+
+
+def _claimed_twice(jobs: list[_Job]) -> None:
+    """Two specs of one build that would write the same file: refused before any write."""
+    claims: dict[Path, str] = {}
+    problems = []
+    for job in jobs:
+        for folder, *_ in job.plans:
+            for name in job.names:
+                path = (folder / name).resolve()
+                other = claims.setdefault(path, job.path)
+                if other != job.path:
+                    problems.append(f"{folder / name}: written by both {other} and {job.path} "
+                                    "in this build; give each spec its own output.prefix or "
+                                    "output.folder")
+    if problems:
+        raise OutputError("\n".join(problems))
+
+
+def _build(args: argparse.Namespace) -> int:
+    jobs = _jobs_of(args)
     if args.check:
-        return _check(args.spec, names, [(folder, owner, inputs, rendered.get(target))
-                                         for (folder, target, inputs, owner) in plans])
-    # Every folder is checked before the first is written, the fresh ones too.
-    kept = {folder: plan_folder(folder, owner, inputs, names, args.spec)
-            for (folder, _, inputs, owner), ok in zip(plans, fresh) if ok}
-    refuse(list(kept.values()))
-    results = iter(write_folders([(folder, rendered[target], inputs, owner, args.spec)
-                                  for folder, target, inputs, owner in todo]))
-    for folder, *_ in plans:
-        if folder in kept:
-            plan = kept[folder]
-            _report(folder, 0, len(names), 0, tidy(plan), plan.notes())
-            continue
-        result = next(results)
-        _report(folder, len(result.written), len(result.unchanged), len(result.removed),
-                result.leftovers, result.notes)
+        return _check(jobs)
+    # Every folder of every spec is checked before the first is written.
+    plans = [[plan_folder(folder, owner, inputs, job.names, job.path)
+              for folder, _, inputs, owner in job.plans] for job in jobs]
+    refuse([plan for job_plans in plans for plan in job_plans])
+    for job, job_plans in zip(jobs, plans):
+        todo = [(folder, job.rendered[target], inputs, owner, job.path)
+                for (folder, target, inputs, owner), ok in zip(job.plans, job.fresh) if not ok]
+        results = iter(write_folders(todo))
+        for plan, ok in zip(job_plans, job.fresh):
+            if ok:
+                _report(plan.folder, 0, len(job.names), 0, tidy(plan), plan.notes())
+                continue
+            result = next(results)
+            _report(plan.folder, len(result.written), len(result.unchanged),
+                    len(result.removed), result.leftovers, result.notes)
     return 0
 
 
@@ -232,20 +333,21 @@ def _report(folder: Path, written: int, unchanged: int, removed: int, leftovers:
         print(f"sqlgen: note: {note}", file=sys.stderr)
 
 
-def _check(spec_path: str, names: list[str],
-           jobs: list[tuple[Path, str, list[str], dict[str, str] | None]]) -> int:
+def _check(jobs: list[_Job]) -> int:
     """Diffs for the folders the manifests could not vouch for (compiled in full); the
     folders a build would refuse are refused here too, with the same reasons."""
-    plans = [plan_folder(folder, owner, inputs, names, spec_path)
-             for folder, owner, inputs, files in jobs]
-    refuse(plans)
-    for plan in plans:
+    checked = [(plan_folder(folder, owner, inputs, job.names, job.path),
+                job.rendered.get(target) if not ok else None)
+               for job in jobs
+               for (folder, target, inputs, owner), ok in zip(job.plans, job.fresh)]
+    refuse([plan for plan, _ in checked])
+    for plan, _ in checked:
         for note in plan.notes():
             print(f"sqlgen: note: {note}", file=sys.stderr)
         if plan.leftovers:
             print(f"sqlgen: note: {plan.folder}: {len(plan.leftovers)} temporary file(s) left "
                   "by an interrupted build; `sqlgen build` removes them", file=sys.stderr)
-    stale = [diff for plan, (*_, files) in zip(plans, jobs) if files is not None
+    stale = [diff for plan, files in checked if files is not None
              for diff in check_files(plan, files)]
     if stale:
         sys.stdout.write("".join(stale))
@@ -253,7 +355,7 @@ def _check(spec_path: str, names: list[str],
               file=sys.stderr)
         return 1
     print("sqlgen: generated files are up to date")
-    compiled = [plan.manifest.path for plan, (*_, files) in zip(plans, jobs) if files is not None]
+    compiled = [plan.manifest.path for plan, files in checked if files is not None]
     if compiled:
         shown = ", ".join(str(path) for path in compiled)
         print(f"sqlgen: checked by a full compile: {shown} did not vouch for the files "
@@ -301,6 +403,15 @@ def _init(args: argparse.Namespace) -> int:
     return 0
 
 
+def _apply(args: argparse.Namespace) -> int:
+    from .apply import apply_spec
+
+    spec = load_spec(args.spec)
+    _warn(spec)
+    print("\n".join(apply_spec(spec, args.to).lines()))
+    return 0
+
+
 def _demo(args: argparse.Namespace) -> int:
     from .demo import run_demo
 
@@ -309,14 +420,14 @@ def _demo(args: argparse.Namespace) -> int:
 
 
 COMMANDS = {"build": _build, "validate": _validate, "demo": _demo, "init": _init,
-            "checks": _checks}
+            "checks": _checks, "apply": _apply}
 
 
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     try:
         return COMMANDS[args.command](args)
-    except (SpecError, UnsupportedError) as err:
+    except (SpecError, UnsupportedError, _Several) as err:
         print(err.render(), file=sys.stderr)
         return err.exit_code
     except SqlgenError as err:
