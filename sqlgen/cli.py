@@ -161,6 +161,9 @@ def _parser() -> argparse.ArgumentParser:
                        help="a DuckDB database file or a postgresql:// URL; the spec is "
                             "checked against its tables first")
 
+    sub.add_parser("schema", help="print a JSON Schema of the spec, for editors with YAML "
+                                  "support")
+
     demo = sub.add_parser("demo", help="build and run the views on an invented demo dataset")
     demo.add_argument("--folder", default="sqlgen-demo", metavar="DIR",
                       help="where the demo database, spec and SQL go (default: sqlgen-demo)")
@@ -412,6 +415,13 @@ def _apply(args: argparse.Namespace) -> int:
     return 0
 
 
+def _schema(_args: argparse.Namespace) -> int:
+    from .specschema import schema_text
+
+    sys.stdout.write(schema_text())
+    return 0
+
+
 def _demo(args: argparse.Namespace) -> int:
     from .demo import run_demo
 
@@ -420,7 +430,7 @@ def _demo(args: argparse.Namespace) -> int:
 
 
 COMMANDS = {"build": _build, "validate": _validate, "demo": _demo, "init": _init,
-            "checks": _checks, "apply": _apply}
+            "checks": _checks, "apply": _apply, "schema": _schema}
 
 
 def main(argv: list[str] | None = None) -> int:
