@@ -19,8 +19,9 @@ from .compiler import build_inputs, file_names, render_files, render_targets
 from .dialects import TARGETS, target_names
 from .errors import (EXIT_OUTPUT, EXIT_SPEC, EXIT_USAGE, OutputError, SpecError, SqlgenError,
                      UnsupportedError)
-from .output import (check_files, is_up_to_date, plan_folder, refuse, spec_owner, tidy,
+from .output import (is_up_to_date, stale_files, plan_folder, refuse, spec_owner, tidy,
                      write_folders)
+from .results import emit, gap_fields, paint_diff, problem_fields, result
 from .spec import Spec, load_spec
 from .support import gaps
 from .views import planned_views
@@ -133,6 +134,9 @@ def _parser() -> argparse.ArgumentParser:
     validate = sub.add_parser("validate", help="check a spec and report every problem")
     validate.add_argument("spec", help="the YAML spec file")
     for command in (build, validate):
+        command.add_argument("--format", choices=("text", "json"), default="text",
+                             help="json: one JSON object on stdout with stable field names "
+                                  "(validate and build --check; docs/json-output.md)")
         command.add_argument("--schema", metavar="SOURCE",
                              help="also check every table and column the spec names against "
                                   "a schema source: a DuckDB file, a Parquet or CSV file, a "
@@ -200,6 +204,9 @@ def _buildable(spec: Spec, chosen: Dialects) -> list[str]:
     return ok
 
 
+_WARNINGS: list = []  # warnings of this run's specs, for --format json
+
+
 def _warn(spec: Spec) -> None:
     for warning in spec.warnings:
         print(warning, file=sys.stderr)
@@ -208,7 +215,10 @@ def _warn(spec: Spec) -> None:
 def _load(args: argparse.Namespace) -> Spec:
     """The spec, checked against ``--schema`` when given (every problem at once)."""
     spec = load_spec(args.spec)
-    _warn(spec)
+    if getattr(args, "format", "text") == "json":
+        _WARNINGS.extend(spec.warnings)
+    else:
+        _warn(spec)
     if args.schema:
         from .schema import open_source
         from .schemacheck import check_spec
@@ -307,7 +317,10 @@ def _claimed_twice(jobs: list[_Job]) -> None:
 def _build(args: argparse.Namespace) -> int:
     jobs = _jobs_of(args)
     if args.check:
-        return _check(jobs)
+        return _check(jobs, args.format == "json")
+    if args.format == "json":
+        raise UsageError("--format json is for build --check (and validate); a build "
+                         "reports in text")
     # Every folder of every spec is checked before the first is written.
     plans = [[plan_folder(folder, owner, inputs, job.names, job.path)
               for folder, _, inputs, owner in job.plans] for job in jobs]
@@ -336,7 +349,7 @@ def _report(folder: Path, written: int, unchanged: int, removed: int, leftovers:
         print(f"sqlgen: note: {note}", file=sys.stderr)
 
 
-def _check(jobs: list[_Job]) -> int:
+def _check(jobs: list[_Job], as_json: bool = False) -> int:
     """Diffs for the folders the manifests could not vouch for (compiled in full); the
     folders a build would refuse are refused here too, with the same reasons."""
     checked = [(plan_folder(folder, owner, inputs, job.names, job.path),
@@ -344,27 +357,34 @@ def _check(jobs: list[_Job]) -> int:
                for job in jobs
                for (folder, target, inputs, owner), ok in zip(job.plans, job.fresh)]
     refuse([plan for plan, _ in checked])
-    for plan, _ in checked:
-        for note in plan.notes():
-            print(f"sqlgen: note: {note}", file=sys.stderr)
-        if plan.leftovers:
-            print(f"sqlgen: note: {plan.folder}: {len(plan.leftovers)} temporary file(s) left "
-                  "by an interrupted build; `sqlgen build` removes them", file=sys.stderr)
-    stale = [diff for plan, files in checked if files is not None
-             for diff in check_files(plan, files)]
+    notes = [note for plan, _ in checked for note in plan.notes()]
+    notes += [f"{plan.folder}: {len(plan.leftovers)} temporary file(s) left by an interrupted "
+              "build; `sqlgen build` removes them" for plan, _ in checked if plan.leftovers]
+    stale = [entry for plan, files in checked if files is not None
+             for entry in stale_files(plan, files)]
+    compiled = [plan.manifest.path for plan, files in checked if files is not None]
+    if compiled and not stale:
+        notes.append(f"checked by a full compile: {', '.join(str(p) for p in compiled)} did "
+                     "not vouch for the files (missing, or written for another spec or by "
+                     "another sqlgen, or --full); `sqlgen build` rewrites it, and the next "
+                     "--check is fast again")
+    code = 1 if stale else 0
+    if as_json:
+        emit(result("check", code, [job.path for job in jobs], notes=notes,
+                    warnings=[problem_fields(w) for w in _WARNINGS],
+                    stale=[{"path": str(e.path), "state": e.state, "diff": e.diff}
+                           for e in stale]))
+        return code
+    for note in notes[:len(notes) - bool(compiled and not stale)]:
+        print(f"sqlgen: note: {note}", file=sys.stderr)
     if stale:
-        sys.stdout.write("".join(stale))
+        sys.stdout.write("".join(paint_diff(e.diff, sys.stdout) for e in stale))
         print(f"sqlgen: {len(stale)} file(s) out of date; run `sqlgen build` to update them",
               file=sys.stderr)
         return 1
     print("sqlgen: generated files are up to date")
-    compiled = [plan.manifest.path for plan, files in checked if files is not None]
     if compiled:
-        shown = ", ".join(str(path) for path in compiled)
-        print(f"sqlgen: checked by a full compile: {shown} did not vouch for the files "
-              "(missing, or written for another spec or by another sqlgen, or --full); "
-              "`sqlgen build` rewrites it, and the next --check is fast again",
-              file=sys.stderr)
+        print(f"sqlgen: {notes[-1]}", file=sys.stderr)
     return 0
 
 
@@ -372,6 +392,10 @@ def _validate(args: argparse.Namespace) -> int:
     spec = _load(args)
     _buildable(spec, Dialects((spec.output.dialect,)))
     render_files(spec)  # what sqlglot cannot spell for the target is a spec problem too
+    if args.format == "json":
+        emit(result("validate", 0, [args.spec], grain=spec.grain, target=spec.output.dialect,
+                    warnings=[problem_fields(w) for w in _WARNINGS]))
+        return 0
     checked = f", columns checked against {_label(args.schema)}" if args.schema else ""
     print(f"{printable(args.spec, False)}: ok ({spec.grain} grain, target "
           f"{spec.output.dialect}{checked})")
@@ -435,6 +459,9 @@ COMMANDS = {"build": _build, "validate": _validate, "demo": _demo, "init": _init
 
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
+    _WARNINGS.clear()
+    if getattr(args, "format", "text") == "json":
+        return _main_json(args)
     try:
         return COMMANDS[args.command](args)
     except (SpecError, UnsupportedError, _Several) as err:
@@ -446,9 +473,34 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         return 130
     except OSError as err:  # a read or write no stage above turned into a message
-        print(f"Error: {err.filename or 'sqlgen'}: {err.strerror or err}; check the path "
-              "and its permissions", file=sys.stderr)
+        print(f"Error: {_os_text(err)}", file=sys.stderr)
         return EXIT_OUTPUT
+
+
+def _os_text(err: OSError) -> str:
+    return (f"{err.filename or 'sqlgen'}: {err.strerror or err}; check the path and its "
+            "permissions")
+
+
+def _main_json(args: argparse.Namespace) -> int:
+    """A command with --format json: one JSON object on stdout whatever happens."""
+    command = "check" if args.command == "build" else args.command
+    specs = args.spec if isinstance(args.spec, list) else [args.spec]
+    try:
+        return COMMANDS[args.command](args)
+    except SqlgenError as err:
+        errors = err.errors if isinstance(err, _Several) else [err]
+        fields = {"problems": [problem_fields(p) for e in errors
+                               for p in getattr(e, "problems", ())],
+                  "gaps": [gap_fields(g) for e in errors for g in getattr(e, "gaps", ())]}
+        if not fields["problems"] and not fields["gaps"]:
+            fields["error"] = str(err)
+        code = err.exit_code
+    except OSError as err:
+        fields, code = {"error": _os_text(err)}, EXIT_OUTPUT
+    emit(result(command, code, specs, warnings=[problem_fields(w) for w in _WARNINGS],
+                **fields))
+    return code
 
 
 if __name__ == "__main__":
