@@ -197,7 +197,7 @@ def _connect(to: str, target: str) -> _Database:
         return _Database(to, duckdb.connect(to), (duckdb.Error,))
     except ImportError:
         raise ApplyError("applying to PostgreSQL needs psycopg: pip install "
-                         "'sqlgen[postgres]'") from None
+                         "'sqlgen-growth[postgres]'") from None
     except Exception as err:  # a driver's error: shown scrubbed, never with a traceback
         text = str(err).strip().splitlines()
         raise ApplyError(f"{redact(to)}: cannot connect: "

@@ -215,3 +215,24 @@ def test_a_failure_on_postgres_leaves_the_database_as_it_was(capsys, tmp_path, p
         assert _pg_views(engine, "public") == []
     finally:
         engine.execute(["DROP TABLE public.user_states"])
+
+
+def test_the_readme_walkthrough_runs_as_written(capsys, tmp_path, monkeypatch):
+    """The sqlgen commands of the README's "From a table to views" block, in order, on an
+    invented warehouse: init, validate --schema, build, apply."""
+    readme = (Path(__file__).resolve().parent.parent / "README.md").read_text()
+    block = readme.split("## From a table to views", 1)[1].split("```sh\n", 1)[1]
+    commands = [line.split("#", 1)[0].split()[1:] for line in block.split("```", 1)[0]
+                .splitlines() if line.startswith("sqlgen ")]
+    assert [c[0] for c in commands] == ["init", "validate", "build", "apply"]
+    monkeypatch.chdir(tmp_path)
+    with duckdb.connect("warehouse.duckdb") as conn:
+        conn.execute("CREATE SCHEMA raw; CREATE TABLE raw.app_events "
+                     "(user_id VARCHAR, occurred_at TIMESTAMP, kind VARCHAR)")
+        conn.executemany("INSERT INTO raw.app_events VALUES (?, ?, ?)", ROWS)
+    for argv in commands:
+        assert main(argv) == 0, capsys.readouterr()
+    capsys.readouterr()
+    found = _duck(tmp_path / "warehouse.duckdb", "SELECT period_start, active_users, "
+                  "new_users, churned_users FROM growth_accounting ORDER BY 1")
+    assert found == expected(kinds_dropped=())  # init proposes no filter
