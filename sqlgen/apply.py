@@ -143,7 +143,7 @@ class _Database:
         self._begin()
         done = 0
         try:
-            for label, statement in steps:
+            for _label, statement in steps:
                 self.conn.execute(statement)
                 done += 1
             self.conn.commit()

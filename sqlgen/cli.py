@@ -1,55 +1,26 @@
 """The ``sqlgen`` command: a thin shell over the library.
 
 Exit codes (``errors.EXIT_*``): 0 ok, 1 stale files for --check, 2 usage, 3 a spec problem,
-4 an output problem.
+4 an output problem,
+5 a statement of apply refused by the database.
 """
 
 from __future__ import annotations
 
 import argparse
 import difflib
+import json
 import os
 import sys
-from dataclasses import dataclass
 from pathlib import Path
 
-from . import __version__
+from . import __version__, api
+from .api import Dialects, UsageError
 from .comments import printable
-from .compiler import build_inputs, file_names, render_files, render_targets
 from .dialects import TARGETS, target_names
-from .errors import (EXIT_OUTPUT, EXIT_SPEC, EXIT_USAGE, OutputError, SpecError, SqlgenError,
-                     UnsupportedError)
-from .output import (is_up_to_date, stale_files, plan_folder, refuse, spec_owner, tidy,
-                     write_folders)
+from .errors import EXIT_OUTPUT, SpecError, SqlgenError, UnsupportedError
 from .results import emit, gap_fields, paint_diff, problem_fields, result
-from .spec import Spec, load_spec
-from .support import gaps
-from .views import planned_views
-
-
-class UsageError(SqlgenError):
-    exit_code = EXIT_USAGE
-
-
-class _Several(SqlgenError):
-    """The problems of several specs of one build, each rendered as its own error does."""
-
-    exit_code = EXIT_SPEC
-
-    def __init__(self, errors: list[SqlgenError]):
-        self.errors = errors
-        super().__init__("\n".join(err.render() for err in errors))
-
-    def render(self) -> str:
-        return str(self)
-
-
-@dataclass(frozen=True)
-class Dialects:
-    """The dialects asked for: ``every`` for ``all`` (build those that can express the spec)."""
-
-    names: tuple[str, ...]
-    every: bool = False
+from .spec import Spec
 
 
 def _dialects(value: str) -> Dialects:
@@ -113,7 +84,7 @@ def _parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
     build = sub.add_parser("build", help="write the SQL files for a spec")
-    build.add_argument("spec", nargs="+", metavar="SPEC",
+    build.add_argument("spec", nargs="+",
                        help="the YAML spec file(s), or folders of them (every *.yml and "
                             "*.yaml file directly in a folder); each spec gets its own "
                             "output folder")
@@ -176,166 +147,49 @@ def _parser() -> argparse.ArgumentParser:
     return parser
 
 
-def _folders(spec: Spec, spec_path: str, chosen: Dialects, dialects: list[str],
-             out: str | None) -> list[tuple[str, Path]]:
-    """One folder, or one subfolder per dialect when several were asked for (even if only
-    one of them can be built, so that each dialect's files stay in the same place)."""
-    base = Path(out) if out else Path(spec_path).parent / spec.output.folder
-    if len(chosen.names) == 1:
-        return [(dialects[0], base)]
-    return [(name, base / name) for name in dialects]
-
-
 def _buildable(spec: Spec, chosen: Dialects) -> list[str]:
-    """The dialects to build. Any that cannot express the spec: with ``all``, skipped and
-    listed on stderr with every reason (an error when none is left); when named, an error
-    listing every gap of every named dialect."""
-    views = [view.name for view in planned_views(spec)]
-    found = {name: gaps(spec, TARGETS[name], views) for name in chosen.names}
-    blocked = [gap for name in chosen.names for gap in found[name]]
-    ok = [name for name in chosen.names if not found[name]]
-    if blocked and (not chosen.every or not ok):
-        raise UnsupportedError.of(blocked)
-    if blocked:
-        skipped = [name for name in chosen.names if found[name]]
-        print(f"sqlgen: built {len(ok)} of {len(chosen.names)} dialects; skipped "
-              f"{', '.join(skipped)}, which cannot express this spec:\n"
-              + "\n".join(str(gap) for gap in blocked), file=sys.stderr)
+    """``api.buildable``, its note about skipped dialects on stderr."""
+    ok, note = api.buildable(spec, chosen)
+    if note:
+        print(f"sqlgen: {note}", file=sys.stderr)
     return ok
 
 
 _WARNINGS: list = []  # warnings of this run's specs, for --format json
 
 
-def _warn(spec: Spec) -> None:
-    for warning in spec.warnings:
+def _warn(warnings) -> None:
+    for warning in warnings:
         print(warning, file=sys.stderr)
 
 
 def _load(args: argparse.Namespace) -> Spec:
     """The spec, checked against ``--schema`` when given (every problem at once)."""
-    spec = load_spec(args.spec)
-    if getattr(args, "format", "text") == "json":
+    spec = api.load_spec(args.spec, args.schema)
+    if args.format == "json":
         _WARNINGS.extend(spec.warnings)
     else:
-        _warn(spec)
-    if args.schema:
-        from .schema import open_source
-        from .schemacheck import check_spec
-
-        problems = check_spec(spec, open_source(args.schema))
-        if problems:
-            raise SpecError(problems)
+        _warn(spec.warnings)
     return spec
 
 
-@dataclass
-class _Job:
-    """One spec of a build: its folders (folder, target, build inputs, manifest name),
-    which of them the manifest vouches for, and the files compiled for the others."""
-
-    path: str
-    spec: Spec
-    names: list[str]
-    plans: list[tuple[Path, str, list[str], str]]
-    fresh: list[bool]
-    rendered: dict[str, dict[str, str]]
-
-
-def spec_paths(given: list[str]) -> list[str]:
-    """The spec files named: each file as given, and for a folder every ``*.yml`` and
-    ``*.yaml`` file directly in it, by name (names starting with ``.`` skipped)."""
-    found: list[str] = []
-    for item in given:
-        path = Path(item)
-        if path.is_dir():
-            specs = sorted(p for p in path.iterdir() if p.suffix in (".yml", ".yaml")
-                           and not p.name.startswith(".") and p.is_file())
-            if not specs:
-                raise UsageError(f"{printable(item, False)}: a folder without a spec "
-                                 "(*.yml or *.yaml) in it")
-            found += [str(p) for p in specs]
-        else:
-            found.append(item)
-    return list(dict.fromkeys(found))
-
-
-def _job(path: str, args: argparse.Namespace, several: bool) -> _Job:
-    """One spec's part of a build; with several specs, ``--out DIR`` means DIR/<spec stem>."""
-    out = str(Path(args.out) / Path(path).stem) if several and args.out else args.out
-    args = argparse.Namespace(**{**vars(args), "spec": path, "out": out})
-    spec = _load(args)
-    chosen = args.dialect or Dialects((spec.output.dialect,))
-    dialects = _buildable(spec, chosen)
-    names = file_names(spec)
-    plans = [(folder, target, build_inputs(spec, target), spec_owner(path, folder))
-             for target, folder in _folders(spec, path, chosen, dialects, args.out)]
-    # A folder whose manifest matches these inputs and whose files match their recorded
-    # hashes holds what a build would write: no need to compile its target.
-    fresh = [not args.full and is_up_to_date(folder, owner, inputs, names)
-             for folder, _, inputs, owner in plans]
-    todo = [target for (_, target, _, _), ok in zip(plans, fresh) if not ok]
-    rendered = render_targets(spec, todo, args.jobs or _spare_cpus()) if todo else {}
-    return _Job(path, spec, names, plans, fresh, rendered)
-
-
-def _jobs_of(args: argparse.Namespace) -> list[_Job]:
-    """Every spec loaded and compiled before anything is written; the problems of every
-    spec reported together."""
-    jobs, failed = [], []
-    paths = spec_paths(args.spec)
-    for path in paths:
-        try:
-            jobs.append(_job(path, args, len(paths) > 1))
-        except (SpecError, UnsupportedError) as err:
-            failed.append(err)
-    if len(failed) == 1:
-        raise failed[0]
-    if failed:
-        raise _Several(failed)
-    _claimed_twice(jobs)
-    return jobs
-
-
-def _claimed_twice(jobs: list[_Job]) -> None:
-    """Two specs of one build that would write the same file: refused before any write."""
-    claims: dict[Path, str] = {}
-    problems = []
-    for job in jobs:
-        for folder, *_ in job.plans:
-            for name in job.names:
-                path = (folder / name).resolve()
-                other = claims.setdefault(path, job.path)
-                if other != job.path:
-                    problems.append(f"{folder / name}: written by both {other} and {job.path} "
-                                    "in this build; give each spec its own output.prefix or "
-                                    "output.folder")
-    if problems:
-        raise OutputError("\n".join(problems))
-
-
 def _build(args: argparse.Namespace) -> int:
-    jobs = _jobs_of(args)
-    if args.check:
-        return _check(jobs, args.format == "json")
-    if args.format == "json":
+    if args.format == "json" and not args.check:
         raise UsageError("--format json is for build --check (and validate); a build "
                          "reports in text")
-    # Every folder of every spec is checked before the first is written.
-    plans = [[plan_folder(folder, owner, inputs, job.names, job.path)
-              for folder, _, inputs, owner in job.plans] for job in jobs]
-    refuse([plan for job_plans in plans for plan in job_plans])
-    for job, job_plans in zip(jobs, plans):
-        todo = [(folder, job.rendered[target], inputs, owner, job.path)
-                for (folder, target, inputs, owner), ok in zip(job.plans, job.fresh) if not ok]
-        results = iter(write_folders(todo))
-        for plan, ok in zip(job_plans, job.fresh):
-            if ok:
-                _report(plan.folder, 0, len(job.names), 0, tidy(plan), plan.notes())
-                continue
-            result = next(results)
-            _report(plan.folder, len(result.written), len(result.unchanged),
-                    len(result.removed), result.leftovers, result.notes)
+    plan = api.plan_build(args.spec, args.dialect, args.out, args.full,
+                          args.jobs or _spare_cpus(), args.schema)
+    if args.format == "json":
+        _WARNINGS.extend(plan.warnings)
+    else:
+        _warn(plan.warnings)
+    for note in plan.notes:
+        print(f"sqlgen: {note}", file=sys.stderr)
+    if args.check:
+        return _check(plan, args.format == "json")
+    for done in api.write(plan):
+        _report(done.folder, done.written, done.unchanged, done.removed, done.leftovers,
+                done.notes)
     return 0
 
 
@@ -349,49 +203,37 @@ def _report(folder: Path, written: int, unchanged: int, removed: int, leftovers:
         print(f"sqlgen: note: {note}", file=sys.stderr)
 
 
-def _check(jobs: list[_Job], as_json: bool = False) -> int:
+def _check(plan: api.BuildPlan, as_json: bool) -> int:
     """Diffs for the folders the manifests could not vouch for (compiled in full); the
     folders a build would refuse are refused here too, with the same reasons."""
-    checked = [(plan_folder(folder, owner, inputs, job.names, job.path),
-                job.rendered.get(target) if not ok else None)
-               for job in jobs
-               for (folder, target, inputs, owner), ok in zip(job.plans, job.fresh)]
-    refuse([plan for plan, _ in checked])
-    notes = [note for plan, _ in checked for note in plan.notes()]
-    notes += [f"{plan.folder}: {len(plan.leftovers)} temporary file(s) left by an interrupted "
-              "build; `sqlgen build` removes them" for plan, _ in checked if plan.leftovers]
-    stale = [entry for plan, files in checked if files is not None
-             for entry in stale_files(plan, files)]
-    compiled = [plan.manifest.path for plan, files in checked if files is not None]
-    if compiled and not stale:
-        notes.append(f"checked by a full compile: {', '.join(str(p) for p in compiled)} did "
-                     "not vouch for the files (missing, or written for another spec or by "
-                     "another sqlgen, or --full); `sqlgen build` rewrites it, and the next "
-                     "--check is fast again")
-    code = 1 if stale else 0
+    checked = api.check(plan)
+    code = 0 if checked.ok else 1
+    full = ([f"checked by a full compile: {', '.join(str(p) for p in checked.compiled)} did "
+             "not vouch for the files (missing, or written for another spec or by another "
+             "sqlgen, or --full); `sqlgen build` rewrites it, and the next --check is fast "
+             "again"] if checked.compiled and checked.ok else [])
     if as_json:
-        emit(result("check", code, [job.path for job in jobs], notes=notes,
+        emit(result("check", code, [job.path for job in plan.specs], notes=checked.notes + full,
                     warnings=[problem_fields(w) for w in _WARNINGS],
                     stale=[{"path": str(e.path), "state": e.state, "diff": e.diff}
-                           for e in stale]))
+                           for e in checked.stale]))
         return code
-    for note in notes[:len(notes) - bool(compiled and not stale)]:
+    for note in checked.notes:
         print(f"sqlgen: note: {note}", file=sys.stderr)
-    if stale:
-        sys.stdout.write("".join(paint_diff(e.diff, sys.stdout) for e in stale))
-        print(f"sqlgen: {len(stale)} file(s) out of date; run `sqlgen build` to update them",
-              file=sys.stderr)
+    if checked.stale:
+        sys.stdout.write("".join(paint_diff(e.diff, sys.stdout) for e in checked.stale))
+        print(f"sqlgen: {len(checked.stale)} file(s) out of date; run `sqlgen build` to "
+              "update them", file=sys.stderr)
         return 1
     print("sqlgen: generated files are up to date")
-    if compiled:
-        print(f"sqlgen: {notes[-1]}", file=sys.stderr)
+    for note in full:
+        print(f"sqlgen: {note}", file=sys.stderr)
     return 0
 
 
 def _validate(args: argparse.Namespace) -> int:
     spec = _load(args)
-    _buildable(spec, Dialects((spec.output.dialect,)))
-    render_files(spec)  # what sqlglot cannot spell for the target is a spec problem too
+    api.compile(spec)  # what sqlglot cannot spell for the target is a spec problem too
     if args.format == "json":
         emit(result("validate", 0, [args.spec], grain=spec.grain, target=spec.output.dialect,
                     warnings=[problem_fields(w) for w in _WARNINGS]))
@@ -409,40 +251,34 @@ def _label(source: str) -> str:
 
 
 def _checks(args: argparse.Namespace) -> int:
-    from .checks import checks_sql, write_checks
+    from .checks import write_checks
 
-    spec = load_spec(args.spec)
-    _warn(spec)
+    spec = api.load_spec(args.spec)
+    _warn(spec.warnings)
     if args.out:
         write_checks(spec, args.out, args.dialect)
         print(f"{printable(args.out, False)}: run-time checks written")
     else:
-        sys.stdout.write(checks_sql(spec, args.dialect))
+        sys.stdout.write(api.runtime_checks(spec, args.dialect))
     return 0
 
 
 def _init(args: argparse.Namespace) -> int:
-    from .init import write_starter
-
-    write_starter(args.source, args.out, args.table)
+    api.init(args.source, args.out, args.table)
     print(f"{printable(args.out, False)}: starter spec written from {_label(args.source)}; "
           f"read its comments, then run `sqlgen validate --schema SOURCE {args.out}`")
     return 0
 
 
 def _apply(args: argparse.Namespace) -> int:
-    from .apply import apply_spec
-
-    spec = load_spec(args.spec)
-    _warn(spec)
-    print("\n".join(apply_spec(spec, args.to).lines()))
+    spec = api.load_spec(args.spec)
+    _warn(spec.warnings)
+    print("\n".join(api.apply(spec, args.to).lines()))
     return 0
 
 
 def _schema(_args: argparse.Namespace) -> int:
-    from .specschema import schema_text
-
-    sys.stdout.write(schema_text())
+    sys.stdout.write(json.dumps(api.json_schema(), indent=2, sort_keys=True) + "\n")
     return 0
 
 
@@ -464,7 +300,7 @@ def main(argv: list[str] | None = None) -> int:
         return _main_json(args)
     try:
         return COMMANDS[args.command](args)
-    except (SpecError, UnsupportedError, _Several) as err:
+    except (SpecError, UnsupportedError, api.SeveralErrors) as err:
         print(err.render(), file=sys.stderr)
         return err.exit_code
     except SqlgenError as err:
@@ -489,7 +325,7 @@ def _main_json(args: argparse.Namespace) -> int:
     try:
         return COMMANDS[args.command](args)
     except SqlgenError as err:
-        errors = err.errors if isinstance(err, _Several) else [err]
+        errors = err.errors if isinstance(err, api.SeveralErrors) else [err]
         fields = {"problems": [problem_fields(p) for e in errors
                                for p in getattr(e, "problems", ())],
                   "gaps": [gap_fields(g) for e in errors for g in getattr(e, "gaps", ())]}
