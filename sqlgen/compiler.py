@@ -11,7 +11,6 @@ import pickle
 import sys
 import threading
 from dataclasses import dataclass
-from importlib import metadata
 from pathlib import Path
 
 import sqlglot
@@ -376,6 +375,8 @@ def generator_digest() -> str:
     digest = hashlib.sha256()
     for label, path in sorted(parts):
         digest.update(label.encode() + b"\0" + path.read_bytes() + b"\0")
+    from importlib import metadata  # here: importing it costs ~70 ms of every command
+
     versions = (f"sqlglot {sqlglot.__version__}", f"jinja2 {metadata.version('jinja2')}",
                 f"python {sys.version_info.major}.{sys.version_info.minor}")
     digest.update("\n".join(versions).encode())
