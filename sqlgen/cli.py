@@ -1,35 +1,26 @@
 """The ``sqlgen`` command: a thin shell over the library.
 
 Exit codes (``errors.EXIT_*``): 0 ok, 1 stale files for --check, 2 usage, 3 a spec problem,
-4 an output problem.
+4 an output problem,
+5 a statement of apply refused by the database.
 """
 
 from __future__ import annotations
 
 import argparse
 import difflib
+import json
 import os
 import sys
-from dataclasses import dataclass
 from pathlib import Path
 
-from . import __version__
+from . import __version__, api
+from .api import Dialects, UsageError
 from .comments import printable
-from .compiler import build_inputs, file_names, render_files, render_targets
 from .dialects import TARGETS, target_names
 from .errors import EXIT_OUTPUT, SpecError, SqlgenError, UnsupportedError
-from .output import (check_files, is_up_to_date, plan_folder, refuse, spec_owner, tidy,
-                     write_folders)
-from .spec import Spec, load_spec
-from .support import spec_gaps
-
-
-@dataclass(frozen=True)
-class Dialects:
-    """The dialects asked for: ``every`` for ``all`` (build those that can express the spec)."""
-
-    names: tuple[str, ...]
-    every: bool = False
+from .results import emit, gap_fields, paint_diff, problem_fields, result
+from .spec import Spec
 
 
 def _dialects(value: str) -> Dialects:
@@ -93,7 +84,10 @@ def _parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
     build = sub.add_parser("build", help="write the SQL files for a spec")
-    build.add_argument("spec", help="the YAML spec file")
+    build.add_argument("spec", nargs="+",
+                       help="the YAML spec file(s), or folders of them (every *.yml and "
+                            "*.yaml file directly in a folder); each spec gets its own "
+                            "output folder")
     build.add_argument("--dialect", type=_dialects, metavar="D",
                        help="target dialect(s): one name, a comma-separated list, or all "
                             "(default: output.dialect of the spec)")
@@ -111,6 +105,9 @@ def _parser() -> argparse.ArgumentParser:
     validate = sub.add_parser("validate", help="check a spec and report every problem")
     validate.add_argument("spec", help="the YAML spec file")
     for command in (build, validate):
+        command.add_argument("--format", choices=("text", "json"), default="text",
+                             help="json: one JSON object on stdout with stable field names "
+                                  "(validate and build --check; docs/json-output.md)")
         command.add_argument("--schema", metavar="SOURCE",
                              help="also check every table and column the spec names against "
                                   "a schema source: a DuckDB file, a Parquet or CSV file, a "
@@ -143,6 +140,16 @@ def _parser() -> argparse.ArgumentParser:
                              "FILE's name with -charts/ beside it")
     report.add_argument("--no-png", action="store_true", help="write the page only")
 
+    apply = sub.add_parser("apply", help="create the spec's schema and views in a database, "
+                                         "in one transaction")
+    apply.add_argument("spec", help="the YAML spec file")
+    apply.add_argument("--to", required=True, metavar="DATABASE",
+                       help="a DuckDB database file or a postgresql:// URL; the spec is "
+                            "checked against its tables first")
+
+    sub.add_parser("schema", help="print a JSON Schema of the spec, for editors with YAML "
+                                  "support")
+
     demo = sub.add_parser("demo", help="build and run the views on an invented demo dataset")
     demo.add_argument("--folder", default="sqlgen-demo", metavar="DIR",
                       help="where the demo database, spec and SQL go (default: sqlgen-demo)")
@@ -151,83 +158,49 @@ def _parser() -> argparse.ArgumentParser:
     return parser
 
 
-def _folders(spec: Spec, spec_path: str, chosen: Dialects, dialects: list[str],
-             out: str | None) -> list[tuple[str, Path]]:
-    """One folder, or one subfolder per dialect when several were asked for (even if only
-    one of them can be built, so that each dialect's files stay in the same place)."""
-    base = Path(out) if out else Path(spec_path).parent / spec.output.folder
-    if len(chosen.names) == 1:
-        return [(dialects[0], base)]
-    return [(name, base / name) for name in dialects]
-
-
 def _buildable(spec: Spec, chosen: Dialects) -> list[str]:
-    """The dialects to build. Any that cannot express the spec: with ``all``, skipped and
-    listed on stderr with every reason (an error when none is left); when named, an error
-    listing every gap of every named dialect."""
-    found = {name: spec_gaps(spec, TARGETS[name]) for name in chosen.names}
-    blocked = [gap for name in chosen.names for gap in found[name]]
-    ok = [name for name in chosen.names if not found[name]]
-    if blocked and (not chosen.every or not ok):
-        raise UnsupportedError.of(blocked)
-    if blocked:
-        skipped = [name for name in chosen.names if found[name]]
-        print(f"sqlgen: built {len(ok)} of {len(chosen.names)} dialects; skipped "
-              f"{', '.join(skipped)}, which cannot express this spec:\n"
-              + "\n".join(str(gap) for gap in blocked), file=sys.stderr)
+    """``api.buildable``, its note about skipped dialects on stderr."""
+    ok, note = api.buildable(spec, chosen)
+    if note:
+        print(f"sqlgen: {note}", file=sys.stderr)
     return ok
 
 
-def _warn(spec: Spec) -> None:
-    for warning in spec.warnings:
+_WARNINGS: list = []  # warnings of this run's specs, for --format json
+
+
+def _warn(warnings) -> None:
+    for warning in warnings:
         print(warning, file=sys.stderr)
 
 
 def _load(args: argparse.Namespace) -> Spec:
     """The spec, checked against ``--schema`` when given (every problem at once)."""
-    spec = load_spec(args.spec)
-    _warn(spec)
-    if args.schema:
-        from .schema import open_source
-        from .schemacheck import check_spec
-
-        problems = check_spec(spec, open_source(args.schema))
-        if problems:
-            raise SpecError(problems)
+    spec = api.load_spec(args.spec, args.schema)
+    if args.format == "json":
+        _WARNINGS.extend(spec.warnings)
+    else:
+        _warn(spec.warnings)
     return spec
 
 
 def _build(args: argparse.Namespace) -> int:
-    spec = _load(args)
-    chosen = args.dialect or Dialects((spec.output.dialect,))
-    dialects = _buildable(spec, chosen)
-    names = file_names(spec)
-    plans = [(folder, target, build_inputs(spec, target), spec_owner(args.spec, folder))
-             for target, folder in _folders(spec, args.spec, chosen, dialects, args.out)]
-    # A folder whose manifest matches these inputs and whose files match their recorded
-    # hashes holds what a build would write: no need to compile its target.
-    fresh = [not args.full and is_up_to_date(folder, owner, inputs, names)
-             for folder, _, inputs, owner in plans]
-    todo = [plan for plan, ok in zip(plans, fresh) if not ok]
-    rendered = (render_targets(spec, [target for _, target, _, _ in todo],
-                               args.jobs or _spare_cpus()) if todo else {})
+    if args.format == "json" and not args.check:
+        raise UsageError("--format json is for build --check (and validate); a build "
+                         "reports in text")
+    plan = api.plan_build(args.spec, args.dialect, args.out, args.full,
+                          args.jobs or _spare_cpus(), args.schema)
+    if args.format == "json":
+        _WARNINGS.extend(plan.warnings)
+    else:
+        _warn(plan.warnings)
+    for note in plan.notes:
+        print(f"sqlgen: {note}", file=sys.stderr)
     if args.check:
-        return _check(args.spec, names, [(folder, owner, inputs, rendered.get(target))
-                                         for (folder, target, inputs, owner) in plans])
-    # Every folder is checked before the first is written, the fresh ones too.
-    kept = {folder: plan_folder(folder, owner, inputs, names, args.spec)
-            for (folder, _, inputs, owner), ok in zip(plans, fresh) if ok}
-    refuse(list(kept.values()))
-    results = iter(write_folders([(folder, rendered[target], inputs, owner, args.spec)
-                                  for folder, target, inputs, owner in todo]))
-    for folder, *_ in plans:
-        if folder in kept:
-            plan = kept[folder]
-            _report(folder, 0, len(names), 0, tidy(plan), plan.notes())
-            continue
-        result = next(results)
-        _report(folder, len(result.written), len(result.unchanged), len(result.removed),
-                result.leftovers, result.notes)
+        return _check(plan, args.format == "json")
+    for done in api.write(plan):
+        _report(done.folder, done.written, done.unchanged, done.removed, done.leftovers,
+                done.notes)
     return 0
 
 
@@ -241,41 +214,41 @@ def _report(folder: Path, written: int, unchanged: int, removed: int, leftovers:
         print(f"sqlgen: note: {note}", file=sys.stderr)
 
 
-def _check(spec_path: str, names: list[str],
-           jobs: list[tuple[Path, str, list[str], dict[str, str] | None]]) -> int:
+def _check(plan: api.BuildPlan, as_json: bool) -> int:
     """Diffs for the folders the manifests could not vouch for (compiled in full); the
     folders a build would refuse are refused here too, with the same reasons."""
-    plans = [plan_folder(folder, owner, inputs, names, spec_path)
-             for folder, owner, inputs, files in jobs]
-    refuse(plans)
-    for plan in plans:
-        for note in plan.notes():
-            print(f"sqlgen: note: {note}", file=sys.stderr)
-        if plan.leftovers:
-            print(f"sqlgen: note: {plan.folder}: {len(plan.leftovers)} temporary file(s) left "
-                  "by an interrupted build; `sqlgen build` removes them", file=sys.stderr)
-    stale = [diff for plan, (*_, files) in zip(plans, jobs) if files is not None
-             for diff in check_files(plan, files)]
-    if stale:
-        sys.stdout.write("".join(stale))
-        print(f"sqlgen: {len(stale)} file(s) out of date; run `sqlgen build` to update them",
-              file=sys.stderr)
+    checked = api.check(plan)
+    code = 0 if checked.ok else 1
+    full = ([f"checked by a full compile: {', '.join(str(p) for p in checked.compiled)} did "
+             "not vouch for the files (missing, or written for another spec or by another "
+             "sqlgen, or --full); `sqlgen build` rewrites it, and the next --check is fast "
+             "again"] if checked.compiled and checked.ok else [])
+    if as_json:
+        emit(result("check", code, [job.path for job in plan.specs], notes=checked.notes + full,
+                    warnings=[problem_fields(w) for w in _WARNINGS],
+                    stale=[{"path": str(e.path), "state": e.state, "diff": e.diff}
+                           for e in checked.stale]))
+        return code
+    for note in checked.notes:
+        print(f"sqlgen: note: {note}", file=sys.stderr)
+    if checked.stale:
+        sys.stdout.write("".join(paint_diff(e.diff, sys.stdout) for e in checked.stale))
+        print(f"sqlgen: {len(checked.stale)} file(s) out of date; run `sqlgen build` to "
+              "update them", file=sys.stderr)
         return 1
     print("sqlgen: generated files are up to date")
-    compiled = [plan.manifest.path for plan, (*_, files) in zip(plans, jobs) if files is not None]
-    if compiled:
-        shown = ", ".join(str(path) for path in compiled)
-        print(f"sqlgen: checked by a full compile: {shown} did not vouch for the files "
-              "(missing, or written for another spec or by another sqlgen, or --full); "
-              "`sqlgen build` rewrites it, and the next --check is fast again",
-              file=sys.stderr)
+    for note in full:
+        print(f"sqlgen: {note}", file=sys.stderr)
     return 0
 
 
 def _validate(args: argparse.Namespace) -> int:
     spec = _load(args)
-    _buildable(spec, Dialects((spec.output.dialect,)))
-    render_files(spec)  # what sqlglot cannot spell for the target is a spec problem too
+    api.compile(spec)  # what sqlglot cannot spell for the target is a spec problem too
+    if args.format == "json":
+        emit(result("validate", 0, [args.spec], grain=spec.grain, target=spec.output.dialect,
+                    warnings=[problem_fields(w) for w in _WARNINGS]))
+        return 0
     checked = f", columns checked against {_label(args.schema)}" if args.schema else ""
     print(f"{printable(args.spec, False)}: ok ({spec.grain} grain, target "
           f"{spec.output.dialect}{checked})")
@@ -289,22 +262,20 @@ def _label(source: str) -> str:
 
 
 def _checks(args: argparse.Namespace) -> int:
-    from .checks import checks_sql, write_checks
+    from .checks import write_checks
 
-    spec = load_spec(args.spec)
-    _warn(spec)
+    spec = api.load_spec(args.spec)
+    _warn(spec.warnings)
     if args.out:
         write_checks(spec, args.out, args.dialect)
         print(f"{printable(args.out, False)}: run-time checks written")
     else:
-        sys.stdout.write(checks_sql(spec, args.dialect))
+        sys.stdout.write(api.runtime_checks(spec, args.dialect))
     return 0
 
 
 def _init(args: argparse.Namespace) -> int:
-    from .init import write_starter
-
-    write_starter(args.source, args.out, args.table)
+    api.init(args.source, args.out, args.table)
     print(f"{printable(args.out, False)}: starter spec written from {_label(args.source)}; "
           f"read its comments, then run `sqlgen validate --schema SOURCE {args.out}`")
     return 0
@@ -313,12 +284,24 @@ def _init(args: argparse.Namespace) -> int:
 def _report_page(args: argparse.Namespace) -> int:
     from .report import make_report
 
-    spec = load_spec(args.spec)
-    _warn(spec)
+    spec = api.load_spec(args.spec)
+    _warn(spec.warnings)
     done = make_report(spec, args.source, Path(args.out), pngs=not args.no_png)
     charts = printable(str(done.html.with_name(done.html.stem + "-charts")), False)
     print(f"{printable(str(done.html), False)}: report written from {_label(args.source)}"
           + (f"; {len(done.pngs)} PNG(s) in {charts}/" if done.pngs else ""))
+    return 0
+
+
+def _apply(args: argparse.Namespace) -> int:
+    spec = api.load_spec(args.spec)
+    _warn(spec.warnings)
+    print("\n".join(api.apply(spec, args.to).lines()))
+    return 0
+
+
+def _schema(_args: argparse.Namespace) -> int:
+    sys.stdout.write(json.dumps(api.json_schema(), indent=2, sort_keys=True) + "\n")
     return 0
 
 
@@ -330,14 +313,17 @@ def _demo(args: argparse.Namespace) -> int:
 
 
 COMMANDS = {"build": _build, "validate": _validate, "demo": _demo, "init": _init,
-            "checks": _checks, "report": _report_page}
+            "checks": _checks, "apply": _apply, "schema": _schema, "report": _report_page}
 
 
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
+    _WARNINGS.clear()
+    if getattr(args, "format", "text") == "json":
+        return _main_json(args)
     try:
         return COMMANDS[args.command](args)
-    except (SpecError, UnsupportedError) as err:
+    except (SpecError, UnsupportedError, api.SeveralErrors) as err:
         print(err.render(), file=sys.stderr)
         return err.exit_code
     except SqlgenError as err:
@@ -346,9 +332,34 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         return 130
     except OSError as err:  # a read or write no stage above turned into a message
-        print(f"Error: {err.filename or 'sqlgen'}: {err.strerror or err}; check the path "
-              "and its permissions", file=sys.stderr)
+        print(f"Error: {_os_text(err)}", file=sys.stderr)
         return EXIT_OUTPUT
+
+
+def _os_text(err: OSError) -> str:
+    return (f"{err.filename or 'sqlgen'}: {err.strerror or err}; check the path and its "
+            "permissions")
+
+
+def _main_json(args: argparse.Namespace) -> int:
+    """A command with --format json: one JSON object on stdout whatever happens."""
+    command = "check" if args.command == "build" else args.command
+    specs = args.spec if isinstance(args.spec, list) else [args.spec]
+    try:
+        return COMMANDS[args.command](args)
+    except SqlgenError as err:
+        errors = err.errors if isinstance(err, api.SeveralErrors) else [err]
+        fields = {"problems": [problem_fields(p) for e in errors
+                               for p in getattr(e, "problems", ())],
+                  "gaps": [gap_fields(g) for e in errors for g in getattr(e, "gaps", ())]}
+        if not fields["problems"] and not fields["gaps"]:
+            fields["error"] = str(err)
+        code = err.exit_code
+    except OSError as err:
+        fields, code = {"error": _os_text(err)}, EXIT_OUTPUT
+    emit(result(command, code, specs, warnings=[problem_fields(w) for w in _WARNINGS],
+                **fields))
+    return code
 
 
 if __name__ == "__main__":

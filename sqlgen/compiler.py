@@ -11,7 +11,6 @@ import pickle
 import sys
 import threading
 from dataclasses import dataclass
-from importlib import metadata
 from pathlib import Path
 
 import sqlglot
@@ -419,6 +418,8 @@ def generator_digest() -> str:
     digest = hashlib.sha256()
     for label, path in sorted(parts):
         digest.update(label.encode() + b"\0" + path.read_bytes() + b"\0")
+    from importlib import metadata  # here: importing it costs ~70 ms of every command
+
     versions = (f"sqlglot {sqlglot.__version__}", f"jinja2 {metadata.version('jinja2')}",
                 f"python {sys.version_info.major}.{sys.version_info.minor}")
     digest.update("\n".join(versions).encode())
@@ -449,12 +450,7 @@ def _create_all(spec: Spec, target: Target, compiled: list[CompiledView]) -> str
         lines.append("-- One transaction: a run that fails leaves every object as it was"
                      + (f"; {target.transaction_note}." if target.transaction_note else "."))
     statements = [s for s in (create_schema(spec, target),) if s]
-    if target.view_ddl == "replace" and target.ddl_note:
-        for c in reversed(compiled):
-            drop = exp.Drop(tables=[view_table(c.part or spec, c.view.name)], kind="VIEW",
-                            exists=True,
-                            cascade=True)
-            statements.append(_generate(drop, target, "view DDL"))
+    statements += view_drops(spec, target, compiled)
     run = _through_exec if target.exec_batch else (lambda statement: statement + ";")
     body = [s + ";" for s in statements]  # the schema and the drops
     body += [f"-- {comment_text(c.view.name)}\n" + "\n\n".join(run(s) for s in c.statements)
@@ -465,6 +461,17 @@ def _create_all(spec: Spec, target: Target, compiled: list[CompiledView]) -> str
     if target.exec_batch:  # an error rolls the whole transaction back, not one statement
         body.insert(0, "SET XACT_ABORT ON;")
     return "\n\n".join(["\n".join(lines), *body]) + "\n"
+
+
+def view_drops(spec: Spec, target: Target, compiled: list[CompiledView],
+               cascade: bool = True) -> list[str]:
+    """DROP VIEW IF EXISTS for each view, each after the views that read it, on a target
+    where CREATE OR REPLACE cannot change a view's columns (``ddl_note``); [] elsewhere."""
+    if target.view_ddl != "replace" or not target.ddl_note:
+        return []
+    return [_generate(exp.Drop(tables=[view_table(c.part or spec, c.view.name)], kind="VIEW",
+                               exists=True, cascade=cascade), target, "view DDL")
+            for c in reversed(compiled)]
 
 
 def create_schema(spec: Spec, target: Target) -> str:

@@ -7,6 +7,7 @@ Exit codes of the ``sqlgen`` command (documented in the README):
   2  usage error (unknown option, missing argument)
   3  the spec cannot be used (a problem in it, or a dialect that cannot express it)
   4  the output folder or a file cannot be written or read as needed
+  5  ``apply``: the database refused a statement (everything was rolled back)
 """
 
 from __future__ import annotations
@@ -21,6 +22,7 @@ EXIT_STALE = 1
 EXIT_USAGE = 2
 EXIT_SPEC = 3
 EXIT_OUTPUT = 4
+EXIT_DATABASE = 5
 
 
 @dataclass(frozen=True)

@@ -349,7 +349,7 @@ def _postgres(url: str) -> Catalog:
         import psycopg
     except ImportError:
         raise SchemaSourceError("reading a PostgreSQL schema source needs psycopg: "
-                                "pip install 'sqlgen[postgres]'") from None
+                                "pip install 'sqlgen-growth[postgres]'") from None
     rows = _pg_rows(url, POSTGRES_QUERY)
     cleaned = [(c, s, t, col, _with_scale(d, _text(p), _text(sc)))
                for c, s, t, col, d, p, sc in rows]
@@ -383,7 +383,7 @@ def _sqlalchemy(url: str, scheme: str) -> Catalog:
     except ImportError:
         raise SchemaSourceError(
             f"schema source {redact(url)}: {shown(scheme)} URLs are read through SQLAlchemy: "
-            "pip install 'sqlgen[schema]' and the database's SQLAlchemy driver; or give a "
+            "pip install 'sqlgen-growth[schema]' and the database's SQLAlchemy driver; or give a "
             "postgresql:// URL, a DuckDB file, a Parquet or CSV file, or a column listing CSV "
             "exported from the warehouse (docs/schema.md)") from None
     try:

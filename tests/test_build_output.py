@@ -22,7 +22,7 @@ import sqlglot
 from sqlglot import exp
 
 import sqlgen.cli as cli
-from sqlgen import SqlgenError, compiler, parse_spec
+from sqlgen import SqlgenError, api, compiler, parse_spec
 from sqlgen.dialects import TARGETS, rewrites
 from sqlgen.output import MANIFEST
 from sqlgen.render import bind, render
@@ -83,7 +83,7 @@ def no_compile(monkeypatch):
     """Fail the test if the command compiles anything."""
     def refuse(*args, **kwargs):
         raise AssertionError("compiled although the manifests vouch for every folder")
-    monkeypatch.setattr(cli, "render_targets", refuse)
+    monkeypatch.setattr(api, "render_targets", refuse)  # the build pipeline is sqlgen.api
     monkeypatch.setattr(compiler, "render_files", refuse)
 
 

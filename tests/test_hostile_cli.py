@@ -76,7 +76,8 @@ CASES = [
      ("cannot read the spec",)),
     ("validate-directory", ["validate", "{tmp}"], EXIT_SPEC, True,
      ("the spec is a directory, not a regular file",)),
-    ("build-directory", ["build", "{tmp}"], EXIT_SPEC, True, ("the spec is a directory, not a regular file",)),
+    # (build takes a folder of specs; validate takes one spec file)
+    ("validate-directory", ["validate", "{tmp}"], EXIT_SPEC, True, ("the spec is a directory, not a regular file",)),
     ("empty-spec", ["validate", "{tmp}/empty.yml"], EXIT_SPEC, True, ("the spec is empty",)),
     ("comments-only-spec", ["build", "{tmp}/comments.yml"], EXIT_SPEC, True,
      ("the spec is empty",)),
@@ -149,8 +150,10 @@ def test_the_exit_code_table_is_the_documented_one():
     readme = " ".join(README.read_text(encoding="utf-8").split())
     assert ("Exit codes: 0 ok, 1 stale files (`--check` only), 2 a usage error, 3 a problem "
             "with the spec (or a dialect that cannot express it), 4 a problem with the output "
-            "folder or a file.") in readme
+            "folder or a file, 5 a statement `apply` ran was refused by the database "
+            "(everything rolled back).") in readme
     for code, word in ((0, "success"), (1, "out of date"), (2, "usage error"),
-                       (3, "the spec cannot be used"), (4, "cannot be written")):
+                       (3, "the spec cannot be used"), (4, "cannot be written"),
+                       (5, "the database refused")):
         assert re.search(rf"^\s+{code}\s+.*{word}", sqlgen.errors.__doc__, re.MULTILINE), word
     assert "0 ok, 1 stale files for --check, 2 usage, 3 a spec problem" in sqlgen.cli.__doc__

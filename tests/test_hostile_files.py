@@ -249,8 +249,12 @@ CASES = [
     # ---- the spec argument
     Case("missing-spec", lambda p: p.spec.unlink(), BUILD, EXIT_SPEC,
          ("growth.yml", "cannot read the spec"), located=True),
-    Case("folder-as-spec", lambda p: None, ("build", "{out}"), EXIT_SPEC,
+    # (build takes a folder of specs: one without any is a usage error; validate takes a file)
+    Case("folder-as-spec", lambda p: None, ("validate", "{out}"), EXIT_SPEC,
          ("is a directory, not a regular file",), located=True, after=unchanged),
+    Case("folder-without-specs", lambda p: None, ("build", "{out}"), EXIT_USAGE,
+         ("a folder without a spec (*.yml or *.yaml) in it",), located=False,
+         after=unchanged),
     Case("spec-not-utf8", lambda p: p.spec.write_bytes(b"version: 1\n\xff\n"), BUILD,
          EXIT_SPEC, ("not UTF-8",), located=True, after=unchanged),
     Case("spec-empty", lambda p: p.spec.write_text(""), CHECK, EXIT_SPEC, ("empty",),

@@ -69,7 +69,7 @@ def _alt():
         import vl_convert  # noqa: F401
     except ImportError:
         raise MissingExtra("the report needs its optional packages: "
-                           "pip install 'sqlgen[report]'") from None
+                           "pip install 'sqlgen-growth[report]'") from None
     return alt
 
 

@@ -255,7 +255,7 @@ def _postgres(url: str) -> Session:
         import psycopg
     except ImportError:
         raise ReportSourceError("a report on PostgreSQL needs psycopg: "
-                                "pip install 'sqlgen[report]'") from None
+                                "pip install 'sqlgen-growth[report]'") from None
     conninfo = re.sub(r"^postgres(ql)?\+\w+://", "postgresql://", url)
     try:
         conn = psycopg.connect(conninfo, connect_timeout=10, prepare_threshold=None)
