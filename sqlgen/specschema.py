@@ -27,6 +27,7 @@ KINDS: dict[str, dict[str, Any]] = {
     "integer": {"type": "integer"},
     "table": {"type": "string", "minLength": 1},
     "column": {"type": "string", "minLength": 1},
+    "segment column": {"type": "string", "minLength": 1},
     "schema": {"type": "string", "minLength": 1},
     "choice": {"type": "string"},
     "filter": {"type": "string", "minLength": 1},
@@ -83,6 +84,15 @@ def _mapping(prefix: str) -> dict[str, Any]:
 def _property(key: Key) -> dict[str, Any]:
     if key.kind == "mapping":
         node = _mapping(key.path)
+    elif key.kind == "definitions":
+        # Each definition takes the keys of `activity`, none required (left out: inherited).
+        each = _mapping("activity")
+        each.pop("required", None)
+        node = {"type": "object", "propertyNames": {"pattern": _NAME},
+                "additionalProperties": {"anyOf": [each, {"type": "null"}]}}
+    elif key.kind == "segments":
+        node = {"type": "object", "propertyNames": {"pattern": _NAME},
+                "additionalProperties": _mapping(f"{key.path}.<name>")}
     else:
         node = dict(KINDS[key.kind])
     if key.path == "version":
@@ -93,7 +103,7 @@ def _property(key: Key) -> dict[str, Any]:
     if key.default not in (None, "", ()) and key.kind != "mapping":
         node["default"] = (key.default.isoformat() if isinstance(key.default, dt.date)
                            else key.default)
-    if not key.required and key.kind != "mapping":
+    if not key.required and key.kind not in ("mapping", "definitions", "segments"):
         # An optional key written with no value is taken as left out (the validator's rule).
         outer = {"anyOf": [node, {"type": "null"}], "description": key.doc}
         if "default" in node:

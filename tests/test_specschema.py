@@ -45,6 +45,10 @@ def _doc_specs() -> list[tuple[str, str]]:
     for path in [ROOT / "README.md", *sorted((ROOT / "docs").glob("*.md"))]:
         blocks = re.findall(r"```yaml\n(.*?)```", path.read_text(), re.S)
         found += [(f"{path.name}#{i}", b) for i, b in enumerate(blocks) if "version:" in b]
+    # and every spec the golden files are generated from (segments, definitions, revenue)
+    from test_golden import SPECS
+    found += [(f"golden:{label}", text.format(grain=grain, week_start=start))
+              for label, (text, (grain, start)) in sorted(SPECS.items())]
     return found
 
 
@@ -98,7 +102,10 @@ def test_every_key_is_in_the_schema_with_its_doc_default_and_choices():
     for key in KEYS:
         node = schema
         for part in key.path.split("."):
-            node = node["properties"][part]
+            if part == "<name>":  # a mapping of names: each name's value
+                node = node["additionalProperties"]
+            else:
+                node = node["properties"][part]
         assert node["description"] == key.doc
         inner = node["anyOf"][0] if "anyOf" in node else node
         if key.choices:
