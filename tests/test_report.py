@@ -403,3 +403,77 @@ def test_the_page_fits_a4_and_letter_when_printed(full, browser):
     pdf = page.send("Page.printToPDF", {"paperWidth": 8.27, "paperHeight": 11.69})["data"]
     assert base64.b64decode(pdf)[:5] == b"%PDF-"
     assert page.console_errors == []
+
+
+SEGMENT_SPEC = SPEC.replace("output:\n", """\
+segments:
+  plan:
+    kind: user
+    table: app.people
+    key: user_id
+    column: plan
+output:
+""")
+
+
+def test_a_segment_gets_a_chart_with_a_value_picker(tmp_path, browser):
+    """A kind-user segment from a users table (five users missing from it: NULL): its chart
+    embeds the segmented view's rows as read directly, offers every value (NULL included)
+    in a drop-down that switches the chart, and its values add up to the totals."""
+    db = duckdb_file(tmp_path / "w.duckdb", events(), plans())
+    con = duckdb.connect(str(db))
+    con.execute("CREATE TABLE app.people (user_id TEXT, plan TEXT)")
+    con.executemany("INSERT INTO app.people VALUES (?, ?)",
+                    [(f"u{i:02d}", ("free", "solo", "team")[i % 3]) for i in range(25)])
+    con.close()
+    _path, spec = spec_file(tmp_path, SEGMENT_SPEC)
+    report = make_report(spec, str(db), tmp_path / "report.html")
+    assert "segment_plan" in {p.stem for p in report.pngs}
+    png = next(p for p in report.pngs if p.stem == "segment_plan")
+    assert png_size(png) == (WIDTH * PNG_SCALE, HEIGHT * PNG_SCALE)
+    page = browser.open(report.html)
+    assert page.console_errors == []
+    assert page.requests == [report.html.resolve().as_uri()]
+    direct = rows_in_database(db, spec, tmp_path)
+    split = direct["growth_accounting_by_segment"]
+
+    def order(row: dict) -> tuple:  # NULL's place in ORDER BY differs between engines
+        value = row["segment_value"]
+        return row["segment"], value is None, str(value), row["period_start"]
+
+    shown = embedded(page)["segment_plan"]["growth_accounting_by_segment"]
+    assert same_rows(sorted(shown, key=order), sorted(split, key=order))
+    totals = {r["period_start"]: r["active_users"] for r in direct["growth_accounting"]}
+    for period, active in totals.items():  # kind user: the values add up to the totals
+        assert sum(r["active_users"] for r in split if r["period_start"] == period) == active
+    options = page.evaluate("Array.from(document.querySelectorAll('#chart-segment_plan "
+                            "select option')).map(o => o.textContent)")
+    assert options == ["free", "solo", "team", "NULL"]
+
+    def drawn(index: int) -> set[tuple]:
+        """(value, period, active users) of the line's points after picking option
+        ``index``, read from Vega's scene graph (what is drawn, not what is embedded)."""
+        return {tuple(p) for p in json.loads(page.evaluate(f"""(async function () {{
+            const select = document.querySelector('#chart-segment_plan select');
+            select.selectedIndex = {index};
+            select.dispatchEvent(new Event('change'));
+            const view = window.sqlgenViews['segment_plan'];
+            await view.runAsync();
+            const out = [];
+            (function walk(node) {{
+              if (!node || !node.items) return;
+              if (node.marktype === 'line' || node.marktype === 'symbol') {{
+                for (const it of node.items) if (it.datum && 'active_users' in it.datum)
+                  out.push([it.datum.segment_value, it.datum.period_start,
+                            it.datum.active_users]);
+              }}
+              for (const it of node.items) walk(it);
+            }})(view.scenegraph().root);
+            return JSON.stringify(out);
+          }})()"""))}
+
+    for index, value in enumerate(["free", "solo", "team", None]):
+        want = {(r["segment_value"], r["period_start"], r["active_users"])
+                for r in split if r["segment_value"] == value}
+        assert drawn(index) == want, value
+    assert page.console_errors == []

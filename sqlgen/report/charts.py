@@ -5,9 +5,8 @@ so the page carries the numbers the database returned and a test can read them b
 the browser (``view.data(name)``). Transforms (folding, negating churn) happen inside the
 chart, never in the rows.
 
-A segment selector can be added without changing the rows' shape: a segmented view adds
-one ``segment`` column, and each builder would filter on a dropdown parameter
-(``alt.binding_select``) or facet by it.
+A segmented view (``growth_accounting_by_segment``) gets one chart per segment, whose
+drop-down parameter (``alt.binding_select``) picks the value shown.
 """
 
 from __future__ import annotations
@@ -132,9 +131,9 @@ def _legend_scale(alt, domain: list[str], colours: list[str]):
     return alt.Scale(domain=domain, range=colours)
 
 
-def growth_users(rows: Rows, grain: str) -> Chart:
-    alt = _alt()
-    base = alt.Chart(alt.Data(name=rows.view))
+def _user_bars(alt, base, grain: str, lead: list):
+    """New and resurrected users stacked above zero, churned below (the users charts):
+    the legend's domain, its colour scale and the bars; ``lead`` tooltips come first."""
     domain = ["new", "resurrected", "churned", "active users"]
     colour = _legend_scale(alt, domain, [GREEN, SKY, VERMILLION, BLACK])
     bars = base.transform_calculate(
@@ -144,14 +143,20 @@ def growth_users(rows: Rows, grain: str) -> Chart:
     ).encode(
         x=_period_axis(alt, grain),
         y=alt.Y("users:Q", title="users (churned below zero)", stack="zero"),
-        color=alt.Color("component:N", scale=colour, title=None,
-                        sort=domain),
+        color=alt.Color("component:N", scale=colour, title=None, sort=domain),
         order=alt.Order("component_order:Q"),
         opacity=_opacity(alt),
-        tooltip=[alt.Tooltip("period_start:N", title="period"),
+        tooltip=[*lead, alt.Tooltip("period_start:N", title="period"),
                  alt.Tooltip("component:N"), alt.Tooltip("users:Q", format=",")],
     ).transform_calculate(component_order="indexof(['new', 'resurrected', 'churned'], "
                                           "datum.component)")
+    return domain, colour, bars
+
+
+def growth_users(rows: Rows, grain: str) -> Chart:
+    alt = _alt()
+    base = alt.Chart(alt.Data(name=rows.view))
+    domain, colour, bars = _user_bars(alt, base, grain, [])
     line = base.transform_calculate(series="'active users'").mark_line(
         point=True, strokeWidth=2).encode(
         x=_period_axis(alt, grain), y=alt.Y("active_users:Q"),
@@ -172,6 +177,53 @@ def growth_users(rows: Rows, grain: str) -> Chart:
                   Column("retained_users", "retained"),
                   Column("resurrected_users", "resurrected"),
                   Column("churned_users", "churned"), Column("net_change", "net", "signed"),
+                  Column("period_status", "status", "text")))
+
+
+def segment_users(rows: Rows, grain: str, segment: str, kind: str) -> Chart:
+    """Active users and what moved them for one segment's values, one value at a time: a
+    drop-down under the chart picks the value (the rows of every value are embedded; the
+    table under the chart lists them all). Values are shown as the view has them, NULL
+    for no value."""
+    alt = _alt()
+    mine = Rows(rows.view, rows.columns,
+                tuple(r for r, d in zip(rows.rows, rows.records()) if d["segment"] == segment))
+    values = sorted({d["segment_value"] for d in mine.records()},
+                    key=lambda v: (v is None, str(v)))
+    pick = alt.param(name=f"pick_{segment}", value=values[0],
+                     bind=alt.binding_select(options=values,
+                                             labels=["NULL" if v is None else str(v)
+                                                     for v in values],
+                                             name=f"{segment}: "))
+    base = alt.Chart(alt.Data(name=rows.view)).transform_filter(
+        alt.datum.segment == segment).transform_filter(f"datum.segment_value === {pick.name}")
+    domain, colour, bars = _user_bars(alt, base, grain,
+                                      [alt.Tooltip("segment_value:N", title=segment)])
+    line = base.transform_calculate(series="'active users'").mark_line(
+        point=True, strokeWidth=2).encode(
+        x=_period_axis(alt, grain), y=alt.Y("active_users:Q"),
+        color=alt.Color("series:N", scale=colour, title=None, sort=domain),
+        tooltip=[alt.Tooltip("segment_value:N", title=segment),
+                 alt.Tooltip("period_start:N", title="period"),
+                 alt.Tooltip("active_users:Q", title="active users", format=","),
+                 alt.Tooltip("quick_ratio:Q", title="quick ratio", format=".2f")])
+    band, text = _in_progress(alt, base, grain)
+    adds = ("the values' counts add up to the totals" if kind == "user" else
+            "a user counts in every value they were active in, so the values' counts need "
+            "not add up to the totals")
+    title = f"Active users by {segment}"
+    spec = _finish(alt.layer(band, bars, line, text).add_params(pick), rows, title,
+                   f"Pick a value of {segment} under the chart. Segment kind {kind}: {adds}.")
+    return Chart(f"segment_{segment}", title,
+                 f"Growth accounting per value of the segment {segment} (kind {kind}); {adds}.",
+                 spec, mine,
+                 (Column("segment_value", segment, "text"),
+                  Column("period_start", "period", "text"),
+                  Column("active_users", "active"), Column("new_users", "new"),
+                  Column("retained_users", "retained"),
+                  Column("resurrected_users", "resurrected"),
+                  Column("churned_users", "churned"),
+                  Column("quick_ratio", "quick ratio", "ratio"),
                   Column("period_status", "status", "text")))
 
 

@@ -76,6 +76,12 @@ def _activity_sections(spec: Spec, found: dict[str, Rows]) -> list[c.Section]:
                     c.Section("Quick ratio and retention", (c.quick_ratio(ga, grain),
                                                             c.rates(ga, grain)))]
     flagged = _in_progress(ga)
+    splits = [segment for segment in spec.segments if segment.splits_activity]
+    split = found.get("growth_accounting_by_segment")
+    if splits and split is not None and len(ga.rows) > 1:
+        sections.append(c.Section("Segments", tuple(
+            c.segment_users(split, grain, segment.name, segment.kind) for segment in splits
+            if any(d["segment"] == segment.name for d in split.records()))))
     if not spec.cohorts:
         sections.append(c.Section("Cohorts", messages=(
             "No cohort heat map: the spec does not set `cohorts: true` "

@@ -30,6 +30,7 @@ from ..views import planned_views
 REPORTED: dict[str, tuple[str, ...]] = {
     "activity_source_summary": (),
     "growth_accounting": ("period_start",),
+    "growth_accounting_by_segment": ("segment", "segment_value", "period_start"),
     "revenue_source_summary": (),
     "revenue_accounting": ("period_start",),
     "cohort_retention": ("cohort_start", "age"),
@@ -213,9 +214,16 @@ def on_source(spec: Spec) -> Spec:
         return ((SOURCE_CATALOG, False), *rest)
 
     schema = spec.output.schema[-1] if spec.output.schema else ("main", False)
-    changes = {name: replace(source, table=moved(source.table))
-               for name, source in (("activity", spec.activity), ("revenue", spec.revenue))
-               if source is not None}
+    changes: dict = {name: replace(source, table=moved(source.table))
+                     for name, source in (("activity", spec.activity), ("revenue", spec.revenue))
+                     if source is not None}
+    seen = spec.activity.first_seen if spec.activity is not None else None
+    if seen is not None:  # a users table with first-seen dates
+        changes["activity"] = replace(changes["activity"],
+                                      first_seen=replace(seen, table=moved(seen.table)))
+    changes["segments"] = tuple(segment if segment.table is None else
+                                replace(segment, table=moved(segment.table))
+                                for segment in spec.segments)
     return replace(spec, output=replace(spec.output, schema=(("memory", False), schema)),
                    **changes)
 
