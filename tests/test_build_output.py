@@ -274,7 +274,7 @@ def _previous_compile(spec, target_name: str) -> dict[str, tuple[str, ...]]:
     return out
 
 
-@pytest.mark.parametrize("grain", ["week", "month"])
+@pytest.mark.parametrize("grain", ["week"])  # the grain with the most spellings
 def test_one_parse_per_build_gives_the_bytes_of_a_parse_per_target(grain):
     spec = parse_spec(SPEC.replace("grain: month", f"grain: {grain}"), "spec.yml")
     names = [name for name in TARGETS if name not in ("sqlite",)]  # no schema-less spec here

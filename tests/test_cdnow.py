@@ -14,7 +14,7 @@ import pytest
 
 import reference as ref
 from cdnow import load_cdnow
-from conftest import engine_target_pairs
+from conftest import BULK_ENGINES, engine_target_pairs
 from harness import run
 from test_views import check_all
 
@@ -24,7 +24,7 @@ def purchases():
     return [(str(customer), day) for customer, day, _cds, _dollars in load_cdnow()]
 
 
-@pytest.mark.parametrize("engine_name,target", engine_target_pairs(every_target=False))
+@pytest.mark.parametrize("engine_name,target", engine_target_pairs(only=BULK_ENGINES))
 def test_cdnow_monthly_growth_accounting(engines, engine_name, target, purchases):
     results = run(engines(engine_name), target, purchases, kind="date", grain="month")
     check_all(results, purchases, "month", "monday")

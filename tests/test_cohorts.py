@@ -14,7 +14,7 @@ import reference_cohorts as rc
 import reference_revenue as rr
 import strategies
 from cdnow import load_cdnow
-from conftest import HYPOTHESIS_EXAMPLES, engine_target_pairs
+from conftest import BULK_ENGINES, HYPOTHESIS_EXAMPLES, engine_target_pairs
 from harness import assert_rows_match, run, run_revenue, sorted_rows, storable_rows, view_options
 from hypothesis import given, settings
 from hypothesis import strategies as st
@@ -125,7 +125,7 @@ def test_cdnow_reference_cohorts(purchases):
     assert len(rows) == 18 + 17 + 16  # ages up to June 1998, the file's last month
 
 
-@pytest.mark.parametrize("engine_name,target", PAIRS)
+@pytest.mark.parametrize("engine_name,target", engine_target_pairs(only=BULK_ENGINES))
 def test_cdnow_monthly_cohorts(engines, engine_name, target, purchases):
     results = run_cohorts(engines(engine_name), target, purchases, kind="date", grain="month")
     cells = results["cohort_retention"]
@@ -293,7 +293,7 @@ def test_revenue_random_charges(engines, engine_name, target):
     check()
 
 
-@pytest.mark.parametrize("engine_name,target", PAIRS)
+@pytest.mark.parametrize("engine_name,target", engine_target_pairs(only=BULK_ENGINES))
 def test_cdnow_revenue_cohorts(engines, engine_name, target):
     """External data: CDNOW_master.txt from the lifetimes package (Fader, Hardie & Lee 2005)
     read as charges at month grain. Cohorts are by first purchase over $0.00, so besides

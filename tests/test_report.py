@@ -323,6 +323,7 @@ def pg(engines):
     if "postgres" not in selected_engines():
         pytest.skip("postgres not selected (SQLGEN_ENGINES)")
     engine = engines("postgres")
+    engine.reset()  # the server is shared with the worker's other tests: start empty
     engine.create_table("app.events", EVENTS, events())
     engine.create_table("billing.plans", PLANS, plans())
     port = engine._conn.info.port

@@ -16,7 +16,7 @@ from decimal import Decimal
 import pytest
 import reference_revenue as rr
 from cdnow import load_cdnow
-from conftest import HYPOTHESIS_EXAMPLES, engine_target_pairs
+from conftest import BULK_ENGINES, HYPOTHESIS_EXAMPLES, engine_target_pairs
 from harness import REVENUE_VIEWS, revenue_spec_text, run_revenue, storable_rows
 from hypothesis import given, settings
 from hypothesis import strategies as st
@@ -323,7 +323,7 @@ def cdnow_expected(cdnow_charges):
     return rr.revenue_views(cdnow_charges, "charges", "month")
 
 
-@pytest.mark.parametrize("engine_name,target", PAIRS)
+@pytest.mark.parametrize("engine_name,target", engine_target_pairs(only=BULK_ENGINES))
 def test_cdnow_monthly_revenue(engines, engine_name, target, cdnow_charges, cdnow_expected):
     # External check. Source: CDNOW_master.txt, the CDNOW purchase log shipped in the
     # lifetimes package (69,659 purchases by 23,570 customers, 1997-01 to 1998-06), as
