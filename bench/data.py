@@ -33,6 +33,7 @@ class Size:
 
 SIZES = {
     "smoke": Size("smoke", 5_000, 1.65),
+    "1m": Size("1m", 25_000, 1.65),
     "10m": Size("10m", 250_000, 1.65),
     "100m": Size("100m", 2_500_000, 1.65),
 }
@@ -165,6 +166,114 @@ def add_segment_tables(path: Path, log=print) -> None:
     con.close()
 
 
+# Revenue for the generator's paying users (the same users as in `events`: the users table is
+# rebuilt from the same seeded draws). Each payer has a run of up to six subscriptions, one
+# after the other: the first starts on the user's arrival day, each lasts a geometric number
+# of months (mean about 5), the next moves the plan one step up (upgrade, 35 %) or down
+# (downgrade, 25 %) or keeps it, and starts the day the previous one ends, or one to three
+# months later (a lapse and a return, 15 %). After the last one the customer churns: it ends
+# then, unless that is after the data's end (2024-12-31), when it has no end (NULL). About
+# 15 % of payers bill yearly (ten months' price), the others monthly. Starts are mid-month
+# (the arrival day), so the run rate at a month's end counts a subscription only from its
+# first month end.
+PLAN_PRICES = "[9.99, 19.99, 49.99, 99.99]"
+SUBSCRIPTIONS_SQL = f"""
+CREATE TABLE subscriptions AS
+WITH payers AS (
+  SELECT user_id, arrival_month, arrival_day,
+    CAST(1 + FLOOR({_u('user_id', "'subs'")} * 6) AS INTEGER) AS n_subs,
+    CAST(FLOOR({_u('user_id', "'plan'")} * 3) AS INTEGER) AS first_plan,
+    CASE WHEN {_u('user_id', "'yearly'")} < 0.15 THEN 'year' ELSE 'month' END AS billing
+  FROM users
+  WHERE payer = 1
+), pieces AS (
+  SELECT p.*, k,
+    CAST(1 + FLOOR(ln(1 - {_u('user_id', 'k', "'len'")}) / ln(0.8)) AS INTEGER) AS months,
+    CASE WHEN k > 0 AND {_u('user_id', 'k', "'gap'")} < 0.15
+         THEN 1 + CAST(FLOOR({_u('user_id', 'k', "'gaplen'")} * 3) AS INTEGER) ELSE 0 END AS gap,
+    CASE WHEN k = 0 THEN 0
+         WHEN {_u('user_id', 'k', "'move'")} < 0.35 THEN 1
+         WHEN {_u('user_id', 'k', "'move'")} < 0.60 THEN -1 ELSE 0 END AS step
+  FROM payers AS p CROSS JOIN range(6) AS t(k)
+  WHERE k < p.n_subs
+), placed AS (
+  SELECT user_id, arrival_month, arrival_day, billing, k, n_subs, months,
+    SUM(gap) OVER w
+      + COALESCE(SUM(months) OVER (w ROWS BETWEEN UNBOUNDED PRECEDING AND 1 PRECEDING), 0)
+      AS offset_months,
+    CAST(GREATEST(0, LEAST(3, first_plan + SUM(step) OVER w)) AS INTEGER) AS plan
+  FROM pieces
+  WINDOW w AS (PARTITION BY user_id ORDER BY k)
+), dated AS (
+  SELECT user_id, billing, k, n_subs, plan,
+    DATE '{FIRST_MONTH}' + to_months(CAST(arrival_month + offset_months AS INTEGER))
+      + to_days(arrival_day) AS started_at,
+    DATE '{FIRST_MONTH}' + to_months(CAST(arrival_month + offset_months + months AS INTEGER))
+      + to_days(arrival_day) AS ends_at
+  FROM placed
+)
+SELECT user_id AS customer_id, k AS sequence, CAST(started_at AS DATE) AS started_at,
+  CASE WHEN ends_at > DATE '2024-12-31' THEN NULL ELSE CAST(ends_at AS DATE) END AS ended_at,
+  billing,
+  CAST({PLAN_PRICES}[plan + 1] * CASE WHEN billing = 'year' THEN 10 ELSE 1 END
+       AS DECIMAL(12, 2)) AS amount
+FROM dated
+WHERE started_at <= DATE '2024-12-31'
+ORDER BY started_at, customer_id
+"""
+
+# One invoice per billing interval of each subscription, on the day it renews (its start
+# day of the month), until it ends or the data ends; then refunds: about 3 % of invoices are
+# refunded in full a few days later (a negative line in the same month, so the month's total
+# can be zero), about 4 % get a partial credit of 20 % (a service credit).
+INVOICES_SQL = f"""
+CREATE TABLE invoices AS
+WITH billed AS (
+  SELECT s.customer_id, s.sequence, s.amount, s.ended_at, b,
+    CAST(s.started_at + to_months(CAST(b * CASE WHEN s.billing = 'year' THEN 12 ELSE 1 END
+         AS INTEGER)) AS DATE) AS billed_on
+  FROM subscriptions AS s CROSS JOIN range(24) AS t(b)
+), kept AS (
+  SELECT * FROM billed
+  WHERE billed_on <= DATE '2024-12-31' AND (ended_at IS NULL OR billed_on < ended_at)
+), lines AS (
+  SELECT customer_id, CAST(billed_on AS TIMESTAMP) + INTERVAL 10 HOUR AS invoiced_at, amount
+  FROM kept
+  UNION ALL
+  SELECT customer_id,
+    CAST(billed_on AS TIMESTAMP) + INTERVAL 10 HOUR
+      + to_days(CAST(FLOOR({_u('customer_id', 'sequence', 'b', "'rday'")} * 5) AS INTEGER)),
+    CASE WHEN {_u('customer_id', 'sequence', 'b', "'refund'")} < 0.03 THEN -amount
+         ELSE CAST(-ROUND(amount * 0.2, 2) AS DECIMAL(12, 2)) END
+  FROM kept
+  WHERE {_u('customer_id', 'sequence', 'b', "'refund'")} < 0.07
+)
+SELECT customer_id, invoiced_at, CAST(amount AS DECIMAL(12, 2)) AS amount
+FROM lines
+WHERE invoiced_at < TIMESTAMP '2025-01-01'
+ORDER BY invoiced_at, customer_id
+"""
+
+
+def add_revenue_tables(path: Path, size: Size, log=print) -> None:
+    """Add subscriptions and invoices to a generated database that lacks them."""
+    con = duckdb.connect(str(path))
+    have = {row[0] for row in con.execute("SELECT table_name FROM information_schema.tables")
+            .fetchall()}
+    if {"subscriptions", "invoices"} <= have:
+        con.close()
+        return
+    con.execute("SET enable_progress_bar = false")
+    con.execute(users_sql(size).replace("CREATE TABLE users", "CREATE TEMP TABLE users"))
+    for name, sql in (("subscriptions", SUBSCRIPTIONS_SQL), ("invoices", INVOICES_SQL)):
+        if name not in have:
+            log(f"generating {name} ...")
+            con.execute(sql)
+    con.execute("DROP TABLE users")
+    con.execute("CHECKPOINT")
+    con.close()
+
+
 def database_path(size: Size, data_dir: Path) -> Path:
     """Where the generated database of a size lives."""
     return data_dir / f"activity_{size.name}.duckdb"
@@ -195,7 +304,8 @@ def generate(size: Size, data_dir: Path, log=print) -> Path:
 
 
 def describe(con: duckdb.DuckDBPyConnection) -> dict[str, int]:
-    """Events, users, user-months and user-weeks of the events table, and charge rows."""
+    """Events, users, user-months, user-weeks and user-days of the events table; charge,
+    invoice (refund lines among them) and subscription rows, and paying customers."""
     sql = """
     SELECT
       (SELECT count(*) FROM events),
@@ -203,7 +313,12 @@ def describe(con: duckdb.DuckDBPyConnection) -> dict[str, int]:
       (SELECT count(*) FROM (SELECT DISTINCT user_id, date_trunc('month', ts) FROM events)),
       (SELECT count(*) FROM (SELECT DISTINCT user_id, date_trunc('week', ts) FROM events)),
       (SELECT count(*) FROM (SELECT DISTINCT user_id, CAST(ts AS DATE) FROM events)),
-      (SELECT count(*) FROM charges)
+      (SELECT count(*) FROM charges),
+      (SELECT count(*) FROM invoices),
+      (SELECT count(*) FILTER (WHERE amount < 0) FROM invoices),
+      (SELECT count(*) FROM subscriptions),
+      (SELECT count(DISTINCT customer_id) FROM subscriptions)
     """
-    keys = ("events", "users", "user_months", "user_weeks", "user_days", "charges")
+    keys = ("events", "users", "user_months", "user_weeks", "user_days", "charges",
+            "invoices", "refund_lines", "subscriptions", "customers")
     return dict(zip(keys, con.execute(sql).fetchall()[0], strict=True))
