@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 import statistics
 import subprocess
 import sys
@@ -25,17 +26,31 @@ class Case:
     rows_sql: str = ""  # DuckDB: the rows compared across a group
     group: str = ""  # cases of one group must return identical rows
     note: str = ""
+    floor: str = ""  # the name of this case's floor case; empty: the monthly floor
     times: list[float] = field(default_factory=list)
+    loads: list[float] = field(default_factory=list)  # 1-minute load average after each run
     memory: dict = field(default_factory=dict)
 
     def median(self) -> float:
         return statistics.median(self.times)
 
 
-def summary_case(name: str, query: str, group: str, note: str = "") -> Case:
+def summary_case(name: str, query: str, group: str, note: str = "", floor: str = "") -> Case:
     """A DuckDB case whose query returns the growth summary columns."""
     return Case(name, "duckdb", alternatives.timing_sql(query), alternatives.rows_sql(query),
-                group, note)
+                group, note, floor)
+
+
+def hashed(query: str) -> str:
+    """A query forcing every column of every row of another, returning one small row."""
+    return f"SELECT count(*), sum(hash(COLUMNS(*))) FROM ({query}) AS q"
+
+
+def rows_case(name: str, timed: str, rows: str, group: str, floor: str,
+              note: str = "") -> Case:
+    """A DuckDB case timed by ``timed``, compared in its group by the ordered ``rows``."""
+    return Case(name, "duckdb", timed, f"SELECT * FROM ({rows}) AS q ORDER BY ALL", group,
+                note, floor)
 
 
 def _run(case: Case, con, frames: dict) -> object:
@@ -90,6 +105,7 @@ def time_cases(cases: list[Case], con, frames: dict, reps: int, warmup: int,
             start = time.perf_counter()
             _run(case, con, frames)
             case.times.append(time.perf_counter() - start)
+            case.loads.append(os.getloadavg()[0])
         log(f"  round {rep + 1}/{reps} done")
         if after_round is not None:
             after_round()

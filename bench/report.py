@@ -24,16 +24,34 @@ def _mb(value) -> str:
     return f"{value:,.0f}" if isinstance(value, (int, float)) else "–"
 
 
-def _row(case, floor) -> str:
+def own_floor(case, cases):
+    """The case's own floor (the monthly floor unless it names another)."""
+    name = case.floor or FLOOR
+    return next((c for c in cases if c.name == name), None) or next(
+        c for c in cases if c.name == FLOOR)
+
+
+def _row(case, cases) -> str:
+    floor = own_floor(case, cases)
+    month = next(c for c in cases if c.name == FLOOR)
     mem = case.memory
     ratio = case.median() / floor.median()
     rss = mem.get("peak_rss_mb")
     floor_rss = floor.memory.get("peak_rss_mb")
     rss_ratio = rss / floor_rss if rss and floor_rss else None
     note = case.note + (f" (memory probe failed: {mem['error']})" if "error" in mem else "")
-    return (f"| {case.name} | {case.median():.3f} | **{ratio:.2f}×** | {_mb(rss)} | "
+    shown = "itself" if floor is case else floor.name.removeprefix("floor: ")
+    return (f"| {case.name} | {case.median():.3f} | {shown} | **{ratio:.2f}×** | "
+            f"{case.median() / month.median():.2f}× | {_mb(rss)} | "
             f"{f'{rss_ratio:.2f}×' if rss_ratio else '–'} | {_mb(mem.get('duckdb_peak_mb'))} | "
-            f"{note} |")
+            f"{_load(case)} | {note} |")
+
+
+def _load(case) -> str:
+    """The lowest and highest 1-minute load average seen after the case's timed runs."""
+    if not case.loads:
+        return "–"
+    return f"{min(case.loads):.1f}–{max(case.loads):.1f}"
 
 
 def tool_lines(result) -> list[str]:
@@ -84,20 +102,25 @@ def markdown(size, stats, cases, agreed, identical, notes, tool_result, args) ->
     lines = [f"# Benchmark, size {size}", "",
              f"Dataset: {stats['events']:,} events, {stats['users']:,} users, "
              f"{stats['user_months']:,} user-months, {stats['user_weeks']:,} user-weeks, "
-             f"{stats['user_days']:,} user-days; {stats['charges']:,} charges.", "",
+             f"{stats['user_days']:,} user-days; {stats['charges']:,} charges; "
+             f"{stats['invoices']:,} invoice lines ({stats['refund_lines']:,} refunds or "
+             f"credits), {stats['subscriptions']:,} subscriptions of "
+             f"{stats['customers']:,} customers.", "",
              "Versions: " + ", ".join(f"{k} {val}" for k, val in v.items()) + ".", "",
              f"Median of {len(floor.times)} interleaved rounds after {args.warmup} warm-up "
              "round(s) (and the agreement pass, which ran every case once); "
-             "ratio = median / median of the monthly floor in the same run. Peak RSS: "
+             "ratio = median / median of the case's own floor (the unavoidable grouping of "
+             "that view) in the same run. Peak RSS: "
              "high-water mark of a fresh process per implementation while it answers, "
-             "data already loaded (see bench/README.md).", "",
+             "data already loaded (see bench/README.md). Load avg: the machine's 1-minute load "
+             "average after each timed run of the case (lowest–highest; 2 cores, shared).", "",
              "Agreement: " + ", ".join(f"{g} ({n} rows)" for g, n in agreed.items())
              + " — every implementation of a group returned identical rows before timing. "
              "Every column of every row identical: " + "; ".join(identical) + ".", "",
-             "| implementation | median s | ratio to floor | peak RSS MB | RSS vs floor | "
-             "DuckDB peak buffer MB | note |",
-             "| --- | --- | --- | --- | --- | --- | --- |"]
-    lines += [_row(c, floor) for c in cases]
+             "| implementation | median s | its floor | ratio to its floor | vs monthly floor | "
+             "peak RSS MB | RSS vs its floor | DuckDB peak buffer MB | load avg | note |",
+             "| --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |"]
+    lines += [_row(c, cases) for c in cases]
     if notes:
         lines += ["", "Not measured:", ""] + [f"- {n}" for n in notes]
     ops = _operator_lines(cases)
@@ -113,6 +136,8 @@ def as_json(size, stats, cases, agreed, identical, notes, tool_result) -> str:
         "size": size, "dataset": stats, "versions": versions(), "agreement": agreed,
         "identical": identical,
         "notes": notes, "tool": tool_result,
-        "cases": [{"name": c.name, "times": c.times, "median": c.median(),
+        "cases": [{"name": c.name, "floor": c.floor or FLOOR, "times": c.times,
+                   "loads": c.loads,
+                   "median": c.median(),
                    "memory": c.memory, "note": c.note} for c in cases],
     }, indent=2, default=str) + "\n"

@@ -68,6 +68,17 @@ def prepare_views(db: Path) -> tuple[dict[str, list[str]], list[str]]:
             notes.append(f"sqlgen {grain} views not created: {type(err).__name__}: {err}")
         con.execute(f"CREATE SCHEMA IF NOT EXISTS before_{grain}")
         con.execute((BASELINE / f"views_{grain}.sql").read_text())
+    further = [(grain, schema, generated.spec_text(grain, schema))
+               for grain, schema in generated.GRAIN_SCHEMAS.items()]
+    further += [("month", schema, generated.spec_text("month", schema, days))
+                for days, schema in generated.TRAILING_SCHEMAS.items() if schema != "bench_month"]
+    further.append(("month", generated.SUBSCRIPTION_SCHEMA, generated.subscription_spec_text()))
+    for grain, schema, text in further:
+        try:
+            created[schema] = generated.create_views(con, grain, schema, text)
+        except Exception as err:  # report, never hide
+            created[schema] = []
+            notes.append(f"sqlgen views in {schema} not created: {type(err).__name__}: {err}")
     if generated.available("growth_accounting_by_segment"):
         try:
             created["segments"] = generated.create_views(
@@ -95,6 +106,8 @@ def build_cases(created: dict[str, list[str]], stats: dict) -> tuple[list, list[
                                       generated.growth_summary("before_month"), "month",
                                       "bench/baseline/views_month.sql"))
     cases += [
+        measure.Case(DAY_FLOOR, "duckdb", alternatives.FLOOR_DAY,
+                     note="the floor of engagement_depth and trailing_activity", floor=DAY_FLOOR),
         measure.summary_case("hand-written self-join SQL, month", alternatives.SELF_JOIN_MONTH,
                              "month"),
         measure.summary_case("hand-written LAG/LEAD SQL, month", alternatives.lag_lead("month"),
@@ -102,21 +115,133 @@ def build_cases(created: dict[str, list[str]], stats: dict) -> tuple[list, list[
         measure.Case("pandas, month", "pandas", group="month", note="events in memory"),
         measure.Case("polars, month", "polars", group="month", note="events in memory"),
         measure.Case("floor: distinct (user, week)", "duckdb", alternatives.FLOOR_WEEK,
-                     note="weekly floor, for reference"),
+                     note="the weekly views' floor", floor=WEEK_FLOOR),
     ]
     if "growth_accounting" in created.get("week", []):
         cases.append(measure.summary_case("sqlgen growth_accounting, week",
-                                          generated.growth_summary("bench_week"), "week"))
+                                          generated.growth_summary("bench_week"), "week",
+                                          floor=WEEK_FLOOR))
         cases.append(measure.summary_case(before("growth_accounting", "week"),
                                           generated.growth_summary("before_week"), "week",
-                                          "bench/baseline/views_week.sql"))
+                                          "bench/baseline/views_week.sql", floor=WEEK_FLOOR))
         cases.append(measure.summary_case("hand-written LAG/LEAD SQL, week",
                                           alternatives.lag_lead("week"), "week",
-                                          note="agreement check for the weekly view"))
+                                          floor=WEEK_FLOOR))
+        cases.append(measure.summary_case("hand-written self-join SQL, week",
+                                          alternatives.self_join("week"), "week",
+                                          floor=WEEK_FLOOR))
     cases += _trailing_cases(created, stats, notes)
     cases += _optional_cases(created, notes)
+    cases += _grain_cases(created, notes)
+    cases += _activity_view_cases(created, notes)
+    cases += _revenue_cases(created, notes)
     cases += _segment_cases(created, notes)
     return cases, notes
+
+
+WEEK_FLOOR = "floor: distinct (user, week)"
+DAY_FLOOR = "floor: distinct (user, day)"
+INVOICE_FLOOR = "floor: (customer, month) totals of invoices"
+SUBSCRIPTION_FLOOR = "floor: (customer, month) run rate of subscriptions"
+SEGMENT_FLOOR = "floor: distinct (user, platform, month)"
+MONTH_FLOOR = "floor: distinct (user, month)"
+
+
+def _grain_cases(created: dict, notes: list[str]) -> list:
+    """growth_accounting at day, quarter and year, each beside its own floor and the
+    self-join and LAG/LEAD alternatives at that grain."""
+    cases = []
+    for grain, schema in generated.GRAIN_SCHEMAS.items():
+        floor = f"floor: distinct (user, {grain})"
+        if floor != DAY_FLOOR:  # the day floor is timed already
+            cases.append(measure.Case(floor, "duckdb", alternatives.floor_sql(grain),
+                                      note=f"the {grain} views' floor", floor=floor))
+        if "growth_accounting" not in created.get(schema, []):
+            notes.append(f"growth_accounting at {grain}: not created; not measured")
+            continue
+        cases += [
+            measure.summary_case(f"sqlgen growth_accounting, {grain}",
+                                 generated.growth_summary(schema), grain, floor=floor),
+            measure.summary_case(f"hand-written LAG/LEAD SQL, {grain}",
+                                 alternatives.lag_lead(grain), grain, floor=floor),
+            measure.summary_case(f"hand-written self-join SQL, {grain}",
+                                 alternatives.self_join(grain), grain, floor=floor)]
+    return cases
+
+
+def _activity_view_cases(created: dict, notes: list[str]) -> list:
+    """user_states, engagement_depth and trailing_activity at 7 and 90 days, with their
+    floors and hand-written alternatives where a practitioner has one."""
+    month = created.get("month", [])
+    cases = []
+    if "user_states" in month:
+        states = ("SELECT period_start, state, count(*) AS users FROM bench_month.user_states "
+                  "GROUP BY ALL")
+        cases += [
+            measure.rows_case("sqlgen user_states, month", measure.hashed(states), states,
+                              "user_states", MONTH_FLOOR,
+                              "timed as counts per (month, state), as the alternative"),
+            measure.rows_case("hand-written LAG/LEAD SQL, user_states",
+                              measure.hashed(alternatives.USER_STATES_LAG_LEAD),
+                              alternatives.USER_STATES_LAG_LEAD, "user_states", MONTH_FLOOR)]
+    if "engagement_depth" in month:
+        depth = ("SELECT period_start, active_days, users FROM bench_month.engagement_depth "
+                 "WHERE users > 0")
+        cases += [
+            measure.rows_case("sqlgen engagement_depth, month",
+                              generated.full_scan("bench_month.engagement_depth"), depth,
+                              "engagement", DAY_FLOOR, "every column timed"),
+            measure.rows_case("hand-written GROUP BY SQL, engagement_depth",
+                              measure.hashed(alternatives.ENGAGEMENT_BY_HAND),
+                              alternatives.ENGAGEMENT_BY_HAND, "engagement", DAY_FLOOR,
+                              "rows with users only")]
+    else:
+        notes.append("engagement_depth: not created; not measured")
+    for days, schema in generated.TRAILING_SCHEMAS.items():
+        if schema == "bench_month":
+            continue  # 28 days: in the trailing28 group above
+        if "trailing_activity" not in created.get(schema, []):
+            notes.append(f"trailing_activity {days} days: not created; not measured")
+            continue
+        cases.append(measure.Case(f"sqlgen trailing_activity, {days} days", "duckdb",
+                                  generated.full_scan(f"{schema}.trailing_activity"),
+                                  note="every column timed", floor=DAY_FLOOR))
+    return cases
+
+
+def _revenue_cases(created: dict, notes: list[str]) -> list:
+    """customer_revenue, revenue_accounting and revenue_cohorts on invoices (charges) and on
+    subscriptions (run rate), each beside the (customer, month) totals they cannot avoid;
+    revenue_accounting also beside hand-written LAG/LEAD and self-join SQL."""
+    cases = []
+    for label, schema, totals, floor in (
+            ("invoices", "month", alternatives.INVOICE_TOTALS, INVOICE_FLOOR),
+            ("subscriptions", generated.SUBSCRIPTION_SCHEMA, alternatives.SUBSCRIPTION_TOTALS,
+             SUBSCRIPTION_FLOOR)):
+        views = created.get(schema, [])
+        schema = "bench_month" if schema == "month" else schema
+        cases.append(measure.Case(floor, "duckdb", alternatives.revenue_floor(totals),
+                                  note="the revenue views' floor", floor=floor))
+        if "revenue_accounting" not in views:
+            notes.append(f"revenue views on {label}: not created; not measured")
+            continue
+        summary = generated.revenue_summary(schema)
+        group = f"revenue_{label}"
+        lag, join = alternatives.revenue_lag_lead(totals), alternatives.revenue_self_join(totals)
+        cases += [
+            measure.rows_case(f"sqlgen revenue_accounting ({label}), month",
+                              generated.full_scan(f"{schema}.revenue_accounting"), summary,
+                              group, floor, "every column timed"),
+            measure.rows_case(f"hand-written LAG/LEAD SQL, revenue ({label})",
+                              measure.hashed(lag), lag, group, floor),
+            measure.rows_case(f"hand-written self-join SQL, revenue ({label})",
+                              measure.hashed(join), join, group, floor)]
+        for view in ("customer_revenue", "revenue_cohorts"):
+            if view in views:
+                cases.append(measure.Case(f"sqlgen {view} ({label}), month", "duckdb",
+                                          generated.full_scan(f"{schema}.{view}"),
+                                          note="every column timed", floor=floor))
+    return cases
 
 
 def _segment_cases(created: dict, notes: list[str]) -> list:
@@ -126,18 +251,30 @@ def _segment_cases(created: dict, notes: list[str]) -> list:
         notes.append("growth_accounting_by_segment: not in this checkout; not measured")
         return []
     view = f"{generated.SEGMENT_SCHEMA}.growth_accounting_by_segment"
-    return [measure.Case("floor: distinct (user, platform, month)", "duckdb",
-                         generated.FLOOR_SEGMENTS, note="the segmented views' floor"),
-            measure.Case("sqlgen growth_accounting_by_segment, month", "duckdb",
-                         generated.full_scan(view),
-                         note="every column timed; platform (event) and channel (user)")]
+    cases = [measure.Case(SEGMENT_FLOOR, "duckdb", generated.FLOOR_SEGMENTS,
+                          note="the segmented views' floor", floor=SEGMENT_FLOOR),
+             measure.Case("sqlgen growth_accounting_by_segment, month", "duckdb",
+                          generated.full_scan(view), floor=SEGMENT_FLOOR,
+                          note="every column timed; platform (event) and channel (user)")]
+    for name, floor in (("user_states_by_segment", SEGMENT_FLOOR),
+                        ("cohort_retention_by_segment", SEGMENT_FLOOR),
+                        ("revenue_accounting_by_segment", INVOICE_FLOOR)):
+        if name in created["segments"]:
+            cases.append(measure.Case(
+                f"sqlgen {name}, month", "duckdb",
+                generated.full_scan(f"{generated.SEGMENT_SCHEMA}.{name}"), floor=floor,
+                note="every column timed" + (" (channel, by customer)" if "revenue" in name
+                                             else "; platform (event) and channel (user)")))
+        else:
+            notes.append(f"{name}: not created; not measured")
+    return cases
 
 
 def _trailing_case(name: str, query: str, note: str = "", timed: str = "") -> measure.Case:
     return measure.Case(name, "duckdb",
                         timed or f"SELECT count(*), sum(trailing_users) FROM ({query}) AS q",
                         f"SELECT day, trailing_users FROM ({query}) AS q ORDER BY day",
-                        "trailing28", note)
+                        "trailing28", note, DAY_FLOOR)
 
 
 def _trailing_cases(created: dict, stats: dict, notes: list[str]) -> list:
@@ -175,9 +312,21 @@ def _optional_cases(created: dict, notes: list[str]) -> list:
         if name not in month:
             notes.append(f"{name}: not in sqlgen.views.VIEWS in this checkout; not measured")
             continue
+        if name == "revenue_accounting":
+            continue  # in _revenue_cases, beside its floor and alternatives
         query = generated.full_scan(f"bench_month.{name}")
-        cases.append(measure.Case(f"sqlgen {name}, month", "duckdb", query,
-                                  note="every column timed"))
+        if name == "cohort_retention":
+            rows = ("SELECT cohort_start, age, active_users FROM bench_month.cohort_retention "
+                    "WHERE active_users > 0")
+            cases.append(measure.rows_case(f"sqlgen {name}, month", query, rows, "cohorts",
+                                           MONTH_FLOOR, "every column timed"))
+            cases.append(measure.rows_case(
+                "hand-written GROUP BY SQL, cohort_retention",
+                measure.hashed(alternatives.COHORTS_BY_HAND), alternatives.COHORTS_BY_HAND,
+                "cohorts", MONTH_FLOOR, "cohort and month pairs with users only"))
+        else:
+            cases.append(measure.Case(f"sqlgen {name}, month", "duckdb", query,
+                                      note="every column timed"))
         if name == "cohort_retention":
             cases.append(measure.Case(
                 before("cohort_retention"), "duckdb",
@@ -241,6 +390,7 @@ def main(argv: list[str] | None = None) -> int:
     _log(f"dataset {size.name}: generating if missing")
     db = data.generate(size, args.data_dir, log=_log)
     data.add_segment_tables(db, log=_log)
+    data.add_revenue_tables(db, size, log=_log)
     created, notes = prepare_views(db)
     con = duckdb.connect(str(db), read_only=True)
     con.execute("SET enable_progress_bar = false")

@@ -38,6 +38,14 @@ def test_every_implementation_agrees(smoke):
     assert results["agreement"]["month"] == 24
     assert results["agreement"]["week"] == 105
     assert results["agreement"]["trailing28"] == 730
+    # 730 days, 8 quarters, 2 years of the same activity; revenue over the same 24 months.
+    assert results["agreement"]["day"] == 730
+    assert results["agreement"]["quarter"] == 8
+    assert results["agreement"]["year"] == 2
+    assert results["agreement"]["revenue_invoices"] == 24
+    assert results["agreement"]["revenue_subscriptions"] == 24
+    for group in ("cohorts", "user_states", "engagement"):
+        assert results["agreement"][group] > 0
     names = [case["name"] for case in results["cases"]]
     for expected in ("floor: distinct (user, month)", "sqlgen growth_accounting, month",
                      "hand-written self-join SQL, month", "hand-written LAG/LEAD SQL, month",
@@ -46,6 +54,24 @@ def test_every_implementation_agrees(smoke):
                      "floor: distinct (user, platform, month)",
                      "sqlgen growth_accounting_by_segment, month"):
         assert expected in names
+    # Every view is measured, each beside its own floor (listed as a case of the run).
+    views = ["growth_accounting, day", "growth_accounting, quarter", "growth_accounting, year",
+             "user_states, month", "cohort_retention, month", "engagement_depth, month",
+             "trailing_activity, 7 days", "trailing_activity, 28 days",
+             "trailing_activity, 90 days", "customer_revenue (invoices), month",
+             "customer_revenue (subscriptions), month", "revenue_accounting (invoices), month",
+             "revenue_accounting (subscriptions), month", "revenue_cohorts (invoices), month",
+             "revenue_cohorts (subscriptions), month", "user_states_by_segment, month",
+             "cohort_retention_by_segment, month", "revenue_accounting_by_segment, month"]
+    by_name = {case["name"]: case for case in results["cases"]}
+    for view in views:
+        case = by_name[f"sqlgen {view}"]
+        assert case["floor"] in by_name and case["floor"].startswith("floor: ")
+    for alternative in ("LAG/LEAD SQL, revenue (invoices)", "self-join SQL, revenue (invoices)",
+                        "LAG/LEAD SQL, revenue (subscriptions)", "self-join SQL, day",
+                        "LAG/LEAD SQL, quarter", "LAG/LEAD SQL, user_states"):
+        assert f"hand-written {alternative}" in names
+    assert not [note for note in results["notes"] if "not created" in note]
     assert "identical: every column of bench_month.growth_accounting" in log
     assert "identical: every column of bench_week.growth_accounting" in log
 
