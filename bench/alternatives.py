@@ -18,19 +18,19 @@ SUMMARY_COLUMNS = ("period_start", "active_users", "new_users", "retained_users"
 
 # The unavoidable work: one pass reducing events to distinct (user, month) pairs.
 FLOOR_MONTH = ("SELECT count(*) FROM "
-               "(SELECT DISTINCT user_id, date_trunc('month', ts) FROM events)")
+               "(SELECT DISTINCT user_id, date_trunc('month', ts) FROM events) AS q")
 FLOOR_WEEK = ("SELECT count(*) FROM "
-              "(SELECT DISTINCT user_id, date_trunc('week', ts) FROM events)")
+              "(SELECT DISTINCT user_id, date_trunc('week', ts) FROM events) AS q")
 
 def _growth_out(column: str) -> str:
     """The summary rows from `tallied` and `churned` (a period with churn only included)."""
     return f"""
-SELECT CAST(coalesce(t.{column}, c.{column}) AS DATE) AS period_start,
+SELECT CAST(coalesce(t.{column}, c.churn_{column}) AS DATE) AS period_start,
   coalesce(t.active_users, 0) AS active_users, coalesce(t.new_users, 0) AS new_users,
   coalesce(t.retained_users, 0) AS retained_users,
   coalesce(t.resurrected_users, 0) AS resurrected_users,
   coalesce(c.churned_users, 0) AS churned_users
-FROM tallied AS t FULL JOIN churned AS c ON c.{column} = t.{column}
+FROM tallied AS t FULL JOIN churned AS c ON c.churn_{column} = t.{column}
 """
 
 
@@ -42,7 +42,7 @@ WITH ma AS (
 ), firsts AS (
   SELECT user_id, min(month) AS first_month FROM ma GROUP BY user_id
 ), classified AS (
-  SELECT cur.month,
+  SELECT cur.month AS cur_month,
     CASE WHEN cur.month = f.first_month THEN 'new'
          WHEN prev.user_id IS NOT NULL THEN 'retained'
          ELSE 'resurrected' END AS state
@@ -51,18 +51,18 @@ WITH ma AS (
   LEFT JOIN ma AS prev
     ON prev.user_id = cur.user_id AND prev.month = cur.month - INTERVAL 1 MONTH
 ), churned AS (
-  SELECT prev.month + INTERVAL 1 MONTH AS month, count(*) AS churned_users
+  SELECT prev.month + INTERVAL 1 MONTH AS churn_month, count(*) AS churned_users
   FROM ma AS prev
   LEFT JOIN ma AS nxt
     ON nxt.user_id = prev.user_id AND nxt.month = prev.month + INTERVAL 1 MONTH
   WHERE nxt.user_id IS NULL AND prev.month < (SELECT max(month) FROM ma)
   GROUP BY 1
 ), tallied AS (
-  SELECT month, count(*) AS active_users,
+  SELECT cur_month AS month, count(*) AS active_users,
     count(CASE WHEN state = 'new' THEN 1 END) AS new_users,
     count(CASE WHEN state = 'retained' THEN 1 END) AS retained_users,
     count(CASE WHEN state = 'resurrected' THEN 1 END) AS resurrected_users
-  FROM classified GROUP BY month
+  FROM classified GROUP BY cur_month
 )
 """ + _growth_out("month")
 
@@ -83,7 +83,7 @@ WITH pa AS (
     count(CASE WHEN prev_period < period - INTERVAL 1 {unit} THEN 1 END) AS resurrected_users
   FROM seq GROUP BY period
 ), churned AS (
-  SELECT period + INTERVAL 1 {unit} AS period, count(*) AS churned_users
+  SELECT period + INTERVAL 1 {unit} AS churn_period, count(*) AS churned_users
   FROM seq
   WHERE (next_period IS NULL OR next_period > period + INTERVAL 1 {unit})
     AND period < (SELECT max(period) FROM pa)
@@ -173,7 +173,7 @@ GROUP BY d.day
 def floor_sql(unit: str) -> str:
     """Distinct (user, period) pairs of the events, for a date_trunc unit or 'day'."""
     period = "CAST(ts AS DATE)" if unit == "day" else f"date_trunc('{unit}', ts)"
-    return f"SELECT count(*) FROM (SELECT DISTINCT user_id, {period} FROM events)"
+    return f"SELECT count(*) FROM (SELECT DISTINCT user_id, {period} FROM events) AS q"
 
 
 FLOOR_DAY = floor_sql("day")
@@ -186,7 +186,7 @@ def month_key(ts: str) -> str:
 
 def key_start(key: str) -> str:
     """The first day of the month of an integer month key."""
-    return f"make_date(CAST({key} // 12 AS BIGINT), CAST({key} % 12 + 1 AS BIGINT), 1)"
+    return f"CAST(DATE '1970-01-01' + INTERVAL ({key} - 23640) MONTH AS DATE)"
 
 
 def self_join(unit: str) -> str:
@@ -252,19 +252,23 @@ tallied AS (
 
 
 def _revenue_out(extra_churn: bool) -> str:
+    """The summary rows per month with a total or the month after one (every month here;
+    written without a series function, so that it transpiles to every engine)."""
     churn = ("coalesce(t.churned_revenue, 0) + coalesce(g.gone_revenue, 0)"
              if extra_churn else "coalesce(t.churned_revenue, 0)")
     churned = ("coalesce(t.churned_customers, 0) + coalesce(g.gone_customers, 0)"
                if extra_churn else "coalesce(t.churned_customers, 0)")
-    join = "LEFT JOIN gone AS g ON g.k = p.k" if extra_churn else ""
+    join = "LEFT JOIN gone AS g ON g.gone_k = p.k" if extra_churn else ""
     return f"""
 SELECT {key_start('p.k')} AS period_start, coalesce(t.revenue, 0) AS revenue,
   coalesce(t.new_revenue, 0) AS new_revenue, coalesce(t.expansion_revenue, 0) AS expansion_revenue,
   coalesce(t.resurrected_revenue, 0) AS resurrected_revenue,
   coalesce(t.contraction_revenue, 0) AS contraction_revenue,
   {churn} AS churned_revenue, coalesce(t.customers, 0) AS customers, {churned} AS churned_customers
-FROM (SELECT unnest(range(lo, hi + 1)) AS k FROM rng) AS p
+FROM (SELECT k FROM tot UNION SELECT k + 1 FROM tot) AS p
+CROSS JOIN rng AS r
 LEFT JOIN tallied AS t ON t.k = p.k {join}
+WHERE p.k <= r.hi
 """
 
 
@@ -279,7 +283,7 @@ WITH {totals}, seq AS (
 ), classified AS (
   SELECT k, rev, CASE WHEN pk = k - 1 THEN prev_raw ELSE 0 END AS prev, first_paid FROM seq
 ), {_REVENUE_TALLY.strip()}, gone AS (
-  SELECT s.k + 1 AS k, sum(s.rev) AS gone_revenue, count(*) AS gone_customers
+  SELECT s.k + 1 AS gone_k, sum(s.rev) AS gone_revenue, count(*) AS gone_customers
   FROM seq AS s CROSS JOIN rng AS r
   WHERE s.rev > 0 AND (s.nk IS NULL OR s.nk > s.k + 1) AND s.k + 1 <= r.hi
   GROUP BY 1
