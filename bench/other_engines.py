@@ -121,12 +121,14 @@ TABLES = {
 }
 
 
-def load(engine, db: Path) -> None:
-    """The benchmark tables, read from the DuckDB dataset, into the engine."""
+def load(engine, db: Path, users: int | None = None) -> None:
+    """The benchmark tables, read from the DuckDB dataset, into the engine; with ``users``,
+    only the rows of the users (customers) whose key is below it."""
     con = duckdb.connect(str(db), read_only=True)
     for table, columns in TABLES.items():
         names = ", ".join(c for c, _t in columns)
-        rows = con.execute(f"SELECT {names} FROM {table}").fetchall()
+        where = f" WHERE {columns[0][0]} < {int(users)}" if users else ""
+        rows = con.execute(f"SELECT {names} FROM {table}{where}").fetchall()
         start = time.perf_counter()
         engine.create_table(table, columns, rows)
         _log(f"  loaded {table}: {len(rows):,} rows in {time.perf_counter() - start:.1f} s")
@@ -144,13 +146,17 @@ def create_views(engine, target: str) -> None:
             engine.execute(list(compiled.statements))
 
 
-def run_engine(name: str, db: Path, reps: int, warmup: int) -> dict:
+def run_engine(name: str, db: Path, reps: int, warmup: int, engine=None,
+               users: int | None = None) -> dict:
+    """Load, create, check agreement, time; an ``engine`` passed in is left running (its
+    tables and views are dropped), one started here is stopped."""
     target = ENGINE_TARGET[name]
     dialect = target  # spell() takes the target and writes its dialect
     _log(f"{name}: starting")
-    engine = start_engine(name)
+    owned = engine is None
+    engine = engine or start_engine(name)
     try:
-        load(engine, db)
+        load(engine, db, users)
         create_views(engine, target)
         found = cases()
         _log(f"{name}: checking that implementations agree")
@@ -188,7 +194,10 @@ def run_engine(name: str, db: Path, reps: int, warmup: int) -> dict:
         return {"engine": name, "target": target, "agreement": agreed, "cases": found,
                 "explain": explain}
     finally:
-        engine.close()
+        if owned:
+            engine.close()
+        else:
+            engine.reset()
 
 
 def markdown(size: str, results: list[dict], reps: int, warmup: int) -> str:

@@ -12,6 +12,7 @@ import sys
 from pathlib import Path
 
 import pytest
+from conftest import selected_engines
 
 BENCH = Path(__file__).resolve().parent.parent / "bench"
 
@@ -94,3 +95,33 @@ def test_memory_probes_report_a_peak(smoke):
                               capture_output=True, text=True, timeout=120, check=True)
         found = json.loads(done.stdout)
         assert found["peak_rss_mb"] >= found["baseline_rss_mb"] > 0
+
+
+OTHER_ENGINES = ("postgres", "clickhouse", "spark", "mysql")
+
+
+@pytest.fixture(scope="module")
+def smoke_db(tmp_path_factory):
+    """The smoke dataset with its revenue tables (generated in a second or two)."""
+    sys.path.insert(0, str(BENCH))
+    import data
+
+    path = data.generate(data.SIZES["smoke"], tmp_path_factory.mktemp("engines"), log=len)
+    data.add_revenue_tables(path, data.SIZES["smoke"], log=len)
+    return path
+
+
+@pytest.mark.parametrize("engine_name", [e for e in OTHER_ENGINES if e in selected_engines()])
+def test_other_engine_benchmark_agrees(engine_name, engines, smoke_db):
+    """bench/other_engines.py on the engine the suite started, over the first 400 users:
+    every implementation of each group returns the same rows (checked before any timing)
+    and each case is timed once. No timing assertion."""
+    import other_engines
+
+    result = other_engines.run_engine(engine_name, smoke_db, reps=1, warmup=0,
+                                      engine=engines(engine_name), users=400)
+    assert set(result["agreement"]) == {"month", "week", "cohorts", "revenue"}
+    assert result["agreement"]["month"] == 24  # 2023-01 .. 2024-12, as on DuckDB
+    assert all(len(case["times"]) == 1 for case in result["cases"])
+    page = other_engines.markdown("smoke", [result], 1, 0)
+    assert f"## {engine_name} " in page
