@@ -232,6 +232,8 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--size", choices=sorted(data.SIZES), default="1m")
     parser.add_argument("--engine", action="append", choices=sorted(ENGINE_TARGET),
                         help="repeatable; default postgres, clickhouse, spark")
+    parser.add_argument("--users", type=int, default=None,
+                        help="load only the users (customers) whose key is below N")
     parser.add_argument("--reps", type=int, default=3)
     parser.add_argument("--warmup", type=int, default=1)
     parser.add_argument("--data-dir", type=Path, default=HERE / "data")
@@ -242,7 +244,7 @@ def main(argv: list[str] | None = None) -> int:
     data.add_revenue_tables(db, size, log=_log)
     results = []
     for name in args.engine or ["postgres", "clickhouse", "spark"]:
-        results.append(run_engine(name, db, args.reps, args.warmup))
+        results.append(run_engine(name, db, args.reps, args.warmup, users=args.users))
         args.results.mkdir(parents=True, exist_ok=True)
         page = markdown(size.name, results, args.reps, args.warmup)
         (args.results / f"engines_{size.name}.md").write_text(page)
