@@ -53,16 +53,26 @@ def engine_target_pairs(only: tuple[str, ...] | None = None, every_target: bool 
             for t in ENGINE_TARGETS[e][:None if every_target else 1]]
 
 
+# Engines whose start is costly (a JVM; a database server with its time zone tables): all
+# their tests share one worker, so each starts once per run. The others start in a few
+# hundred milliseconds and are grouped per file, so their tests spread over both workers.
+ONE_WORKER_ENGINES = ("spark", "mysql")
+
+
+def engine_group(engine: str, module: str) -> str:
+    """The xdist group of one engine's tests in one test module."""
+    return engine if engine in ONE_WORKER_ENGINES else f"{engine}-{module}"
+
+
 @pytest.hookimpl(tryfirst=True)  # before xdist's loadgroup reads the marks
 def pytest_collection_modifyitems(items):
-    """With xdist's loadgroup, keep one engine's tests of one file on one worker: an engine
-    starts at most once per worker and file, and slow engines spread over both workers."""
+    """With xdist's loadgroup, keep one engine's tests on one worker (see engine_group)."""
     for item in items:
         params = getattr(item, "callspec", None)
         engine = params.params.get("engine_name") if params else None
-        if engine:
-            item.add_marker(pytest.mark.xdist_group(f"{engine}-{item.module.__name__}"))
-
+        if isinstance(engine, str):   # not the placeholder of an empty engine list
+            item.add_marker(pytest.mark.xdist_group(engine_group(engine, item.module.__name__)))
+            item.user_properties.append(("engine", engine))   # for the time summary below
 
 
 def pytest_collection_finish(session):
@@ -107,3 +117,28 @@ def engines():
             found.close()
     _STARTED.clear()
 
+
+# ---------------------------------------------------------------- time per engine and worker
+# Printed at the end of every run (CI included), so that the next trim of the suite's time
+# starts from where the time goes rather than from a guess.
+_SPENT: dict[tuple[str, str], float] = {}
+
+
+def pytest_runtest_logreport(report):
+    node = getattr(report, "node", None)
+    worker = getattr(getattr(node, "gateway", None), "id", "main")
+    engine = dict(report.user_properties).get("engine", "no engine")
+    key = (worker, engine)
+    _SPENT[key] = _SPENT.get(key, 0.0) + report.duration
+
+
+def pytest_terminal_summary(terminalreporter):
+    if not _SPENT:
+        return
+    write = terminalreporter.write_line
+    terminalreporter.section("time per worker and engine (s, setup + call + teardown)")
+    for worker in sorted({w for w, _ in _SPENT}):
+        parts = sorted(((e, t) for (w, e), t in _SPENT.items() if w == worker),
+                       key=lambda item: -item[1])
+        total = sum(t for _, t in parts)
+        write(f"{worker}: {total:.0f}  " + "  ".join(f"{e} {t:.0f}" for e, t in parts))
