@@ -113,13 +113,13 @@ def smoke_db(tmp_path_factory):
 
 @pytest.mark.parametrize("engine_name", [e for e in OTHER_ENGINES if e in selected_engines()])
 def test_other_engine_benchmark_agrees(engine_name, engines, smoke_db):
-    """bench/other_engines.py on the engine the suite started, over the first 400 users:
+    """bench/other_engines.py on the engine the suite started, over the first 250 users:
     every implementation of each group returns the same rows (checked before any timing)
     and each case is timed once. No timing assertion."""
     import other_engines
 
     result = other_engines.run_engine(engine_name, smoke_db, reps=1, warmup=0,
-                                      engine=engines(engine_name), users=400)
+                                      engine=engines(engine_name), users=250)
     assert set(result["agreement"]) == {"month", "week", "cohorts", "revenue"}
     assert result["agreement"]["month"] == 24  # 2023-01 .. 2024-12, as on DuckDB
     assert all(len(case["times"]) == 1 for case in result["cases"])
