@@ -12,14 +12,31 @@ import functools
 from dataclasses import dataclass, field
 from typing import Callable
 
-from sqlglot import exp
-from sqlglot.dialects.dialect import Dialect, NormalizationStrategy
+from typing import TYPE_CHECKING
 
-from .filters import date_operand, interval_parts
+if TYPE_CHECKING:
+    from sqlglot import exp
+    from sqlglot.dialects.dialect import Dialect
+
+
+class _Expressions:
+    """sqlglot's ``exp`` module, imported at its first use. The table of targets is read
+    without sqlglot (the command line's dialect names, a ``--check`` the manifests answer,
+    which imports no compiler): importing sqlglot costs ~0.2 s of every command."""
+
+    def __getattr__(self, name: str):
+        from sqlglot import exp as module
+
+        globals()["exp"] = module
+        return getattr(module, name)
+
+
+if not TYPE_CHECKING:
+    exp = _Expressions()
 
 SOURCE_DIALECT = "duckdb"
 
-Transform = Callable[[exp.Expression], exp.Expression]
+Transform = Callable[["exp.Expression"], "exp.Expression"]
 
 
 @dataclass(frozen=True)
@@ -58,6 +75,8 @@ def _dialect(name: str) -> Dialect:
     """One sqlglot Dialect instance per name: making one costs ~15 ms (it builds its
     tokenizer and settings), and ``spec_identifiers`` asked for one per target per filter
     check and per compile; dialect instances hold settings only, never state of a run."""
+    from sqlglot.dialects.dialect import Dialect
+
     return Dialect.get_or_raise(name)
 
 
@@ -458,6 +477,8 @@ def interval_add_to_date_add(tree: exp.Expression) -> exp.Expression:
     neither). The node remembers whether it offsets a date or a timestamp, for the targets
     that spell the two differently (``timestamp_offsets``).
     """
+    from .filters import date_operand
+
     def rewrite(node: exp.Expression) -> exp.Expression:
         if isinstance(node, (exp.Add, exp.Sub)) and isinstance(node.expression, exp.Interval):
             amount, unit = _amount_and_unit(node.expression)
@@ -474,6 +495,8 @@ _UNIT_STEPS = {"WEEK": (7, "DAY"), "QUARTER": (3, "MONTH")}
 
 
 def _amount_and_unit(interval: exp.Interval) -> tuple[exp.Expression, str]:
+    from .filters import interval_parts
+
     parts = interval_parts(interval)
     if parts is not None:
         count, unit = parts
@@ -499,6 +522,8 @@ def filter_feature(node: exp.Expression) -> str:
     """The name of a filter's operation that ``Target.filter_gaps`` lists: ``STARTS_WITH``,
     ``ILIKE``, ``INTERVAL MONTH`` (WEEK and QUARTER count as DAY and MONTH)..."""
     if isinstance(node, exp.Interval):
+        from .filters import interval_parts
+
         parts = interval_parts(node)
         return f"INTERVAL {parts[1] if parts else node.unit.name.upper()}"
     if isinstance(node, exp.Func):
@@ -512,6 +537,8 @@ def spec_identifiers(target: Target) -> Transform:
     A bare name behaves as unquoted SQL would (``user_id`` is ``USER_ID`` on Snowflake,
     ``userid`` for ``UserId`` on Postgres) while a keyword such as ``user`` stays a column.
     """
+    from sqlglot.dialects.dialect import NormalizationStrategy
+
     strategy = target.dialect().normalization_strategy
 
     def rewrite(node: exp.Expression) -> exp.Expression:
