@@ -2,19 +2,32 @@
 
 __version__ = "0.1.0"
 
-from .compiler import compile_spec, render_files  # noqa: E402
-from .errors import OutputError, SpecError, SqlgenError, UnsupportedError  # noqa: E402
-from .spec import Spec, load_spec, parse_spec  # noqa: E402
+# The names below are imported at their first use (PEP 562): `sqlgen build --check` of a
+# folder its manifest vouches for needs neither the compiler nor sqlglot.
+_EXPORTS = {
+    "compile_spec": "compiler",
+    "render_files": "compiler",
+    "OutputError": "errors",
+    "SpecError": "errors",
+    "SqlgenError": "errors",
+    "UnsupportedError": "errors",
+    "Spec": "spec",
+    "load_spec": "spec",
+    "parse_spec": "spec",
+}
 
-__all__ = [
-    "__version__",
-    "OutputError",
-    "Spec",
-    "SpecError",
-    "SqlgenError",
-    "UnsupportedError",
-    "compile_spec",
-    "load_spec",
-    "parse_spec",
-    "render_files",
-]
+__all__ = ["__version__", *sorted(_EXPORTS)]
+
+
+def __getattr__(name: str):
+    if name not in _EXPORTS:
+        raise AttributeError(f"module 'sqlgen' has no attribute {name!r}")
+    from importlib import import_module
+
+    value = getattr(import_module(f".{_EXPORTS[name]}", __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(_EXPORTS))

@@ -12,10 +12,8 @@ import os
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from . import spec as _spec
-from .compiler import build_inputs, file_names, render_files, render_targets
 from .dialects import TARGETS, target_names
 from .errors import EXIT_SPEC, EXIT_USAGE, OutputError, SpecError, SqlgenError, UnsupportedError
 from .output import (
@@ -29,8 +27,9 @@ from .output import (
     tidy,
     write_folders,
 )
-from .spec import Spec
-from .support import spec_gaps
+
+if TYPE_CHECKING:  # the spec, compiler and support modules import sqlglot: at first use
+    from .spec import Spec
 
 PathLike = str | os.PathLike
 
@@ -80,7 +79,15 @@ def load_spec(path: PathLike, schema: str | None = None) -> Spec:
     (a DuckDB file, Parquet/CSV, ``postgresql://`` URL or column listing) also check every
     table and column it names against that source. ``Spec.warnings`` lists keys that are
     valid but change nothing."""
-    spec = _spec.load_spec(str(path))
+    from .source import read_spec_text
+
+    return _load_text(str(path), read_spec_text(str(path)), schema)
+
+
+def _load_text(path: str, text: str, schema: str | None) -> Spec:
+    from .spec import parse_spec
+
+    spec = parse_spec(text, path)
     if schema:
         from .schema import open_source
         from .schemacheck import check_spec
@@ -94,6 +101,8 @@ def load_spec(path: PathLike, schema: str | None = None) -> Spec:
 def compile(spec: Spec, dialect: str | None = None) -> dict[str, str]:  # noqa: A001
     """File name -> SQL text of every file a build writes for one dialect (default the
     spec's ``output.dialect``): one per view and ``create_all.sql``. Deterministic."""
+    from .compiler import render_files
+
     buildable(spec, Dialects.of(dialect, spec))
     return render_files(spec, dialect)
 
@@ -109,6 +118,8 @@ def buildable(spec: Spec, chosen: Dialects) -> tuple[list[str], str]:
     """The dialects to build, and a note naming those skipped (""). With ``every`` a
     dialect that cannot express the spec is skipped (an error when none is left); a named
     one is an error listing every gap of every named dialect."""
+    from .support import spec_gaps
+
     found = {name: spec_gaps(spec, TARGETS[name]) for name in chosen.names}
     blocked = [gap for name in chosen.names for gap in found[name]]
     ok = [name for name in chosen.names if not found[name]]
@@ -157,10 +168,12 @@ def json_schema() -> dict[str, Any]:
 @dataclass
 class SpecBuild:
     """One spec of a build: its folders (folder, target, build inputs, manifest name),
-    which of them the manifest vouches for, and the files compiled for the others."""
+    which of them the manifest vouches for, and the files compiled for the others.
+    ``spec`` is None when the manifests vouched for every folder from the spec's text
+    alone (``freshness.vouched``: the spec was not even loaded)."""
 
     path: str
-    spec: Spec
+    spec: Spec | None
     names: list[str]
     plans: list[tuple[Path, str, list[str], str]]
     fresh: list[bool]
@@ -233,16 +246,38 @@ def _folders(spec: Spec, spec_path: str, chosen: Dialects, dialects: list[str],
     return [(name, base / name) for name in dialects]
 
 
+def _vouched_build(path: str, plan: BuildPlan, dialects, out: str | None) -> SpecBuild | None:
+    """The spec's build when the manifests vouch for every folder it writes, from the spec
+    text alone (no spec loaded, nothing compiled); None otherwise."""
+    from .freshness import vouched
+
+    if dialects is None:
+        found = vouched(path, None, False, out)
+    else:
+        chosen = Dialects.of(dialects, None)  # type: ignore[arg-type]  # not None: no spec read
+        found = vouched(path, chosen.names, chosen.every, out)
+    if found is None:
+        return None
+    if found.note:
+        plan.notes.append(found.note)
+    return SpecBuild(path, None, found.names, found.plans, [True] * len(found.plans), {})
+
+
 def _spec_build(path: str, plan: BuildPlan, dialects, out: str | None, full: bool,
                 jobs: int, schema: str | None) -> SpecBuild:
-    spec = load_spec(path, schema)
+    from .compiler import build_inputs, file_names, render_targets
+    from .source import read_spec_text
+
+    text = read_spec_text(path)
+    spec = _load_text(path, text, schema)
     plan.warnings += spec.warnings
     chosen = Dialects.of(dialects, spec)
     ok, note = buildable(spec, chosen)
     if note:
         plan.notes.append(note)
     names = file_names(spec)
-    plans = [(folder, target, build_inputs(spec, target), spec_owner(path, folder))
+    every = (ok, note) if chosen.every else None
+    plans = [(folder, target, build_inputs(spec, target, text, every), spec_owner(path, folder))
              for target, folder in _folders(spec, path, chosen, ok, out)]
     # A folder whose manifest matches these inputs and whose files match their recorded
     # hashes holds what a build would write: no need to compile its target.
@@ -263,9 +298,11 @@ def plan_build(specs: Sequence[PathLike], dialects: str | Sequence[str] | Dialec
     plan, failed = BuildPlan([]), []
     for path in paths:
         spec_out = Path(out) / Path(path).stem if out and len(paths) > 1 else out
+        spec_out = str(spec_out) if spec_out else None
         try:
-            plan.specs.append(_spec_build(path, plan, dialects, str(spec_out) if spec_out
-                                          else None, full, jobs, schema))
+            job = None if full or schema else _vouched_build(path, plan, dialects, spec_out)
+            plan.specs.append(job or _spec_build(path, plan, dialects, spec_out, full, jobs,
+                                                 schema))
         except (SpecError, UnsupportedError) as err:
             failed.append(err)
     if len(failed) == 1:

@@ -21,7 +21,7 @@ from . import names
 from .compiler import compile_spec, create_schema, view_drops
 from .dialects import TARGETS
 from .errors import EXIT_DATABASE, SpecError, SqlgenError
-from .schema import open_source, redact, scrub
+from .schema import open_source, pg_connect, redact, scrub
 
 _POSTGRES_URL = re.compile(r"^postgres(ql)?(\+\w+)?://", re.IGNORECASE)
 
@@ -189,9 +189,7 @@ def _connect(to: str, target: str) -> _Database:
         if target == "postgres":
             import psycopg
 
-            conninfo = re.sub(r"^postgres(ql)?\+\w+://", "postgresql://", to)
-            conn = psycopg.connect(conninfo, connect_timeout=10)
-            return _Postgres(to, conn, (psycopg.Error,))
+            return _Postgres(to, pg_connect(to), (psycopg.Error,))
         import duckdb
 
         return _Database(to, duckdb.connect(to), (duckdb.Error,))

@@ -1,9 +1,11 @@
 """The run-time guard: a read-only query per target that returns one row per assumption of
-the spec the data breaks (NULL keys, NULL timestamps, rows outside the valid range, ...).
+the spec the data breaks (NULL keys, NULL timestamps, rows outside the valid range, values
+of another type than the declared one, ...).
 
 ``checks_sql(spec, target)`` returns the query file's text: a header, then one SELECT over
 the source summary views that ``create_all.sql`` creates (``activity_source_summary``,
-``revenue_source_summary``). A scheduled job runs it and alerts when it returns a row.
+``revenue_source_summary``) and, for the type checks, the source tables themselves. A
+scheduled job runs it and alerts when it returns a row.
 Its structure is ``templates/sqlgen_checks.sql``; its spelling per target is the same
 pipeline as every view's (``compiler.compile_query``, the rewrites of ``dialects.py``).
 """
@@ -21,9 +23,10 @@ CHECKS = View(
     "sqlgen_checks",
     "One row per assumption of the spec that the data breaks; no row when all hold.",
     (("checked_section", "activity or revenue"),
-     ("broken_assumption", "null_user, null_timestamp, out_of_range, unconverted (activity); "
-                           "null_customer, null_date, null_amount, out_of_range, invalid "
-                           "(revenue)"),
+     ("broken_assumption", "null_user, null_timestamp, out_of_range, unconverted, "
+                           "wrong_type_timestamp (activity); null_customer, null_date, "
+                           "null_amount, out_of_range, invalid, wrong_type_<timestamp, start, "
+                           "end or amount> (revenue)"),
      ("failing_rows", "how many source rows break it")),
     depends=("activity_source_summary", "revenue_source_summary"),
 )

@@ -13,6 +13,7 @@ import json
 import os
 import sys
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from . import __version__, api
 from .api import Dialects, UsageError
@@ -20,7 +21,9 @@ from .comments import printable
 from .dialects import TARGETS, target_names
 from .errors import EXIT_OUTPUT, SpecError, SqlgenError, UnsupportedError
 from .results import emit, gap_fields, paint_diff, problem_fields, result
-from .spec import Spec
+
+if TYPE_CHECKING:
+    from .spec import Spec
 
 
 def _dialects(value: str) -> Dialects:

@@ -202,7 +202,8 @@ def run_demo(folder: Path, grain: str = "month") -> str:
     # With the manifest a build writes, so `sqlgen build --check` on the demo spec vouches
     # for the files without compiling.
     out = folder / spec.output.folder
-    write_files(out, files, build_inputs(spec, spec.output.dialect), spec_owner(spec_path, out))
+    write_files(out, files, build_inputs(spec, spec.output.dialect, spec_text),
+                spec_owner(spec_path, out))
     con.execute(files["create_all.sql"])  # creates the schema too
     cursor = con.execute("SELECT * FROM growth.growth_accounting ORDER BY period_start")
     names = [d[0] for d in cursor.description]

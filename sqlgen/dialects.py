@@ -12,14 +12,31 @@ import functools
 from dataclasses import dataclass, field
 from typing import Callable
 
-from sqlglot import exp
-from sqlglot.dialects.dialect import Dialect, NormalizationStrategy
+from typing import TYPE_CHECKING
 
-from .filters import date_operand, interval_parts
+if TYPE_CHECKING:
+    from sqlglot import exp
+    from sqlglot.dialects.dialect import Dialect
+
+
+class _Expressions:
+    """sqlglot's ``exp`` module, imported at its first use. The table of targets is read
+    without sqlglot (the command line's dialect names, a ``--check`` the manifests answer,
+    which imports no compiler): importing sqlglot costs ~0.2 s of every command."""
+
+    def __getattr__(self, name: str):
+        from sqlglot import exp as module
+
+        globals()["exp"] = module
+        return getattr(module, name)
+
+
+if not TYPE_CHECKING:
+    exp = _Expressions()
 
 SOURCE_DIALECT = "duckdb"
 
-Transform = Callable[[exp.Expression], exp.Expression]
+Transform = Callable[["exp.Expression"], "exp.Expression"]
 
 
 @dataclass(frozen=True)
@@ -58,6 +75,8 @@ def _dialect(name: str) -> Dialect:
     """One sqlglot Dialect instance per name: making one costs ~15 ms (it builds its
     tokenizer and settings), and ``spec_identifiers`` asked for one per target per filter
     check and per compile; dialect instances hold settings only, never state of a run."""
+    from sqlglot.dialects.dialect import Dialect
+
     return Dialect.get_or_raise(name)
 
 
@@ -349,6 +368,46 @@ def tsql_current_date(tree: exp.Expression) -> exp.Expression:
     return tree.transform(rewrite, copy=False)
 
 
+def _number_type(node: exp.Expression) -> bool:
+    return isinstance(node, exp.TryCast) and node.to.is_type(*exp.DataType.REAL_TYPES)
+
+
+def sqlite_readable_values(tree: exp.Expression) -> exp.Expression:
+    """SQLite: sqlglot spells ``TRY_CAST(x AS DECIMAL(38, 2))`` (the run-time checks' test
+    that a value reads as the declared type) ``CAST(x AS REAL(38, 2))``, which reads 'abc'
+    as 0; in SQLite a number is a value stored as one: ``CASE WHEN TYPEOF(x) IN ('integer',
+    'real') THEN x END``. A TIMESTAMPTZ reads as ``DATETIME(x)``, as a TIMESTAMP does."""
+    def rewrite(node: exp.Expression) -> exp.Expression:
+        if _number_type(node):
+            kinds = [exp.Literal.string("integer"), exp.Literal.string("real")]
+            stored = exp.In(this=_fn("TYPEOF", node.this.copy()), expressions=kinds)
+            return exp.Case(ifs=[exp.If(this=stored, true=node.this)])
+        if isinstance(node, exp.TryCast) and node.to.is_type("timestamptz"):
+            return _fn("DATETIME", node.this)
+        return node
+    return tree.transform(rewrite, copy=False)
+
+
+# A number as MySQL's CAST reads one in full (no REGEXP_LIKE: MariaDB has only REGEXP_INSTR).
+_MYSQL_NUMBER = r"^[-+]?([0-9]+[.]?[0-9]*|[.][0-9]+)([eE][-+]?[0-9]+)?$"
+
+
+def mysql_readable_numbers(tree: exp.Expression) -> exp.Expression:
+    """MySQL and MariaDB: ``CAST('abc' AS DECIMAL(38, 2))`` is 0 with a warning, not NULL, so
+    the run-time checks' ``TRY_CAST`` to a number becomes ``CASE WHEN REGEXP_INSTR(CAST(x AS
+    CHAR), '<number>') > 0 THEN CAST(x AS DECIMAL(38, 2)) END``. (A date or timestamp
+    CAST of unreadable text is already NULL.)"""
+    def rewrite(node: exp.Expression) -> exp.Expression:
+        if _number_type(node):
+            text = exp.Cast(this=node.this.copy(), to=exp.DataType.build("CHAR"))
+            found = exp.GT(this=_fn("REGEXP_INSTR", text, exp.Literal.string(_MYSQL_NUMBER)),
+                           expression=exp.Literal.number(0))
+            return exp.Case(ifs=[exp.If(this=found, true=exp.Cast(this=node.this,
+                                                                   to=node.to))])
+        return node
+    return tree.transform(rewrite, copy=False)
+
+
 _NO_TRY_CAST = ("sqlglot writes TRY_CAST as a plain CAST here, which fails on an unreadable "
                 "value instead of giving NULL (SQLite and MySQL: silently 0)")
 _NO_STARTS_WITH = "no STARTS_WITH function; write s LIKE 'prefix%'"
@@ -414,12 +473,12 @@ TARGETS: dict[str, Target] = {
                schema_catalog=False, filter_gaps=_TRY_CAST_GAP,
                unsupported={"valid range before 1970 or after 2105": _NARROW_DATES_CLICKHOUSE}),
         Target("mysql", "mysql", "mysql", "replace",
-               (_zone_rewrite(_zones_mysql), window_keys_nulls_default),
+               (_zone_rewrite(_zones_mysql), window_keys_nulls_default, mysql_readable_numbers),
                no_ddl_transaction=_NO_TX_MYSQL, schema_catalog=False, filter_gaps=_MYSQL_GAPS,
                column_types=_MYSQL_COLUMN_TYPES),
         Target("sqlite", "sqlite", "sqlite", "drop_create",
                (_zone_rewrite(_zones_utc_only), timestamp_offsets(_offset_sqlite),
-                sqlite_date_parts),
+                sqlite_date_parts, sqlite_readable_values),
                unsupported={"activity.timezone": _NO_IANA_SQLITE,
                             "qualified names": _NO_QUALIFIED_SQLITE},
                transaction_note=_SQLITE_BAIL, filter_gaps=_SQLITE_GAPS),
@@ -458,6 +517,8 @@ def interval_add_to_date_add(tree: exp.Expression) -> exp.Expression:
     neither). The node remembers whether it offsets a date or a timestamp, for the targets
     that spell the two differently (``timestamp_offsets``).
     """
+    from .filters import date_operand
+
     def rewrite(node: exp.Expression) -> exp.Expression:
         if isinstance(node, (exp.Add, exp.Sub)) and isinstance(node.expression, exp.Interval):
             amount, unit = _amount_and_unit(node.expression)
@@ -474,6 +535,8 @@ _UNIT_STEPS = {"WEEK": (7, "DAY"), "QUARTER": (3, "MONTH")}
 
 
 def _amount_and_unit(interval: exp.Interval) -> tuple[exp.Expression, str]:
+    from .filters import interval_parts
+
     parts = interval_parts(interval)
     if parts is not None:
         count, unit = parts
@@ -499,6 +562,8 @@ def filter_feature(node: exp.Expression) -> str:
     """The name of a filter's operation that ``Target.filter_gaps`` lists: ``STARTS_WITH``,
     ``ILIKE``, ``INTERVAL MONTH`` (WEEK and QUARTER count as DAY and MONTH)..."""
     if isinstance(node, exp.Interval):
+        from .filters import interval_parts
+
         parts = interval_parts(node)
         return f"INTERVAL {parts[1] if parts else node.unit.name.upper()}"
     if isinstance(node, exp.Func):
@@ -512,6 +577,8 @@ def spec_identifiers(target: Target) -> Transform:
     A bare name behaves as unquoted SQL would (``user_id`` is ``USER_ID`` on Snowflake,
     ``userid`` for ``UserId`` on Postgres) while a keyword such as ``user`` stays a column.
     """
+    from sqlglot.dialects.dialect import NormalizationStrategy
+
     strategy = target.dialect().normalization_strategy
 
     def rewrite(node: exp.Expression) -> exp.Expression:

@@ -25,7 +25,6 @@ import json
 import os
 import re
 import stat
-import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -34,7 +33,7 @@ try:
 except ImportError:  # not POSIX
     fcntl = None
 
-from .compiler import HEADER_MARK
+from .comments import HEADER_MARK
 from .errors import OutputError
 
 MANIFEST = ".sqlgen-manifest"
@@ -557,6 +556,8 @@ def _atomic_write(path: Path, data: bytes) -> None:
         mode = stat.S_IMODE(path.stat().st_mode)
     except FileNotFoundError:
         mode = 0o666 & ~_umask()
+    import tempfile  # here: only a write needs it, and --check imports no more than it must
+
     try:
         fd, tmp = tempfile.mkstemp(prefix=f"{TEMP_PREFIX}{os.getpid()}-", dir=path.parent)
     except OSError as err:  # name the file being written, not the temporary one

@@ -10,8 +10,6 @@ from __future__ import annotations
 import datetime as dt
 import functools
 from dataclasses import dataclass, replace
-from importlib import resources
-from pathlib import Path
 
 import sqlglot
 from sqlglot import exp
@@ -19,6 +17,7 @@ from sqlglot import exp
 from . import names
 from .dialects import SOURCE_DIALECT
 from .filters import parse_filter
+from .freshness import templates_dir
 from .spec import WEEKDAYS, Spec, range_periods
 from .views import View
 
@@ -60,18 +59,6 @@ def grain_of(spec: Spec) -> Grain:
 
     return Grain(spec.grain, family, step, offset, digits(spec.grain), digits("day"),
                  digits("month", 2 * (step - 1)))
-
-
-def templates_dir() -> Path:
-    """The templates folder: installed beside the package, or templates/ in a checkout."""
-    try:
-        installed = resources.files("sqlgen.templates")
-        path = Path(str(installed))
-        if (path / "user_activity.sql").is_file():
-            return path
-    except ModuleNotFoundError:
-        pass
-    return Path(__file__).resolve().parent.parent / "templates"
 
 
 @functools.lru_cache(maxsize=1)

@@ -356,13 +356,21 @@ def _postgres(url: str) -> Catalog:
     return Catalog(redact(url), "postgres", _tables(cleaned, "postgres"), "postgres")
 
 
-def _pg_rows(url: str, sql: str) -> list[tuple]:
-    """The rows of one query over a read-only PostgreSQL session (a ``postgresql+driver://``
-    URL as SQLAlchemy writes it is taken too)."""
+def pg_connect(url: str, **options: object):
+    """A psycopg connection for a ``postgresql://`` URL (a ``postgresql+driver://`` URL as
+    SQLAlchemy writes it is taken too), giving up after 10 s: the one way sqlgen connects to
+    PostgreSQL (schema sources, ``apply``, ``report``). ``options`` go to
+    ``psycopg.connect``. Raises ImportError without psycopg and ``psycopg.Error`` when the
+    server cannot be reached; each caller words that for its own command, redacted."""
     import psycopg
 
     conninfo = re.sub(r"^postgres(ql)?\+\w+://", "postgresql://", url)
-    with psycopg.connect(conninfo, connect_timeout=10) as conn:
+    return psycopg.connect(conninfo, connect_timeout=10, **options)
+
+
+def _pg_rows(url: str, sql: str) -> list[tuple]:
+    """The rows of one query over a read-only PostgreSQL session."""
+    with pg_connect(url) as conn:
         conn.read_only = True
         return conn.execute(sql).fetchall()
 

@@ -75,3 +75,43 @@ def test_checks_command_writes_only_its_own_file(tmp_path, capsys):
     assert main(["checks", str(spec), "--out", str(tmp_path / "mine.sql")]) == 4
     assert (tmp_path / "mine.sql").read_text() == "SELECT 1;\n"
     assert names_for("duckdb")[0] in spec.read_text()
+
+
+# A messy source: the timestamp and amount columns are text, one value of each unreadable.
+MESSY_EVENTS = [("a", "2024-01-05 10:00:00"), ("b", "not a time")]
+MESSY_CHARGES = [("x", "2024-01-05 10:00:00", "10.00"), ("y", "2024-01-05 10:00:00", "ten")]
+# Where an engine stops text declared as a timestamp and an amount with its own error
+# instead: when the views are created (the comparison or the SUM is refused), or when they
+# are read (Spark in ANSI mode: 'not a time' cannot be cast to TIMESTAMP_NTZ).
+REFUSED_WHEN = {"duckdb": "created", "postgres": "created", "clickhouse": "created",
+                "spark": "read"}
+WRONG_TYPE = {("activity", "wrong_type_timestamp", 1), ("revenue", "wrong_type_amount", 1)}
+
+
+@pytest.mark.engines
+@pytest.mark.parametrize("engine_name,target", PAIRS)
+def test_a_value_of_another_type_is_one_row_or_an_engine_error(engines, engine_name, target):
+    """Text columns where the spec declares a timestamp and an amount, one value of each
+    unreadable: an engine that reads such views (comparing text with a timestamp, summing
+    text) gets one row per column holding a value that does not read as the declared type;
+    the others stop with their own error (a clear error, never a number)."""
+    engine = engines(engine_name)
+    engine.reset()
+    load_events(engine, MESSY_EVENTS, kind="text", target=target)
+    load_revenue(engine, MESSY_CHARGES, target=target, kind="text", amount_type="text")
+    text = _spec_text(target)
+    query = _query(checks_sql(parse_spec(text, "checks.yml"), target))
+    stage = "created"
+    try:
+        create_views(engine, text, target)
+        stage = "read"
+        rows = {(section, name, int(count)) for section, name, count in engine.query(query)}
+    except Exception as err:  # the engine's own error type
+        assert REFUSED_WHEN.get(target) == stage, f"{target}: {stage}: {err}"
+        return
+    assert target not in REFUSED_WHEN
+    # SQLite keeps each value's own type: '10.00' in a TEXT column is text, not a number
+    # (SUM reads it, but reads 'ten' as 0), so both amounts are of another type there.
+    expected = WRONG_TYPE if target != "sqlite" else (
+        WRONG_TYPE - {("revenue", "wrong_type_amount", 1)} | {("revenue", "wrong_type_amount", 2)})
+    assert {row for row in rows if row[1].startswith("wrong_type_")} == expected

@@ -350,3 +350,38 @@ def test_where_filter_date_arithmetic(target):
                 ["user_activity"])
     assert FILTER_SQL[target] in text
     assert "NOW()" not in text.upper() and "INTERVAL '400'" not in text
+
+
+# The run-time checks' test that an amount reads as a number: TRY_CAST where the target has
+# it; SQLite's CAST reads 'ten' as 0 and MySQL's CAST too, so those test the stored type or
+# the text; a target whose columns hold only their own type keeps a plain CAST.
+CHECKS_SPEC = BASE.format(table="app_events", kind="timestamp", grain="month",
+                          week_start="monday", extra="") + (
+    "revenue:\n  table: charges\n  customer: account_id\n  timestamp: charged_at\n"
+    "  amount: amount\n")
+_NUMBER = "'^[-+]?([0-9]+[.]?[0-9]*|[.][0-9]+)([eE][-+]?[0-9]+)?$'"
+AMOUNT_READS = {
+    "duckdb": 'TRY_CAST("amount" AS DECIMAL(29, 2)) IS NULL',
+    "postgres": 'CAST("amount" AS DECIMAL(29, 2)) IS NULL',
+    "spark": "TRY_CAST(`amount` AS DECIMAL(29, 2)) IS NULL",
+    "databricks": "TRY_CAST(`amount` AS DECIMAL(29, 2)) IS NULL",
+    "clickhouse": 'CAST("amount" AS Nullable(Decimal(29, 2))) IS NULL',
+    "mysql": f"CASE WHEN REGEXP_INSTR(CAST(`amount` AS CHAR), {_NUMBER}) > 0 "
+             "THEN CAST(`amount` AS DECIMAL(29, 2)) END IS NULL",
+    "sqlite": "CASE WHEN TYPEOF(\"amount\") IN ('integer', 'real') THEN \"amount\" END IS NULL",
+    "bigquery": "SAFE_CAST(`amount` AS NUMERIC(29, 2)) IS NULL",
+    "snowflake": 'CAST("AMOUNT" AS DECIMAL(29, 2)) IS NULL',
+    "redshift": 'TRY_CAST("amount" AS DECIMAL(29, 2)) IS NULL',
+    "trino": 'TRY_CAST("amount" AS DECIMAL(29, 2)) IS NULL',
+    "tsql": "TRY_CAST([amount] AS NUMERIC(29, 2)) IS NULL",
+}
+
+
+@pytest.mark.parametrize("target", TARGETS)
+def test_checks_read_an_amount_as_a_number(target):
+    from sqlgen.checks import checks_sql
+
+    text = flat(checks_sql(parse_spec(CHECKS_SPEC, "t.yml"), target))
+    assert AMOUNT_READS[target] in text
+    if target == "sqlite":  # SQLite has no timestamp type: text DATETIME() reads
+        assert 'DATETIME("occurred_at") IS NULL' in text

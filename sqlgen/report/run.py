@@ -9,7 +9,6 @@ others read them, never queried.
 from __future__ import annotations
 
 import datetime as dt
-import re
 import sys
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, replace
@@ -21,7 +20,7 @@ from sqlglot import exp
 from ..compiler import create_schema, ddl_statements, view_table
 from ..dialects import TARGETS
 from ..errors import SqlgenError
-from ..schema import _URL, redact, scrub
+from ..schema import _URL, pg_connect, redact, scrub
 from ..spec import Spec
 from ..support import require_support
 from ..views import planned_views
@@ -264,9 +263,8 @@ def _postgres(url: str) -> Session:
     except ImportError:
         raise ReportSourceError("a report on PostgreSQL needs psycopg: "
                                 "pip install 'sqlgen-growth[report]'") from None
-    conninfo = re.sub(r"^postgres(ql)?\+\w+://", "postgresql://", url)
     try:
-        conn = psycopg.connect(conninfo, connect_timeout=10, prepare_threshold=None)
+        conn = pg_connect(url, prepare_threshold=None)
     except psycopg.Error as err:
         raise ReportSourceError(f"{redact(url)}: {scrub(_first_line(err), url)}") from None
 
