@@ -88,10 +88,6 @@ CASES = [
     ("first_seen without a table", SEEN.replace("    table: app.users\n", ""),
      ["s.yml:7:5: activity.first_seen.table: required key is missing from "
       "activity.first_seen; e.g. table: app.users"]),
-    ("first_seen with trailing windows", SEEN + "trailing_windows: [7]\n",
-     ["s.yml:11:19: trailing_windows: trailing_activity does not read first_seen (set in "
-      "activity): its new users would not follow the first-seen rule; remove "
-      "trailing_windows or first_seen"]),
 ]
 
 
