@@ -85,6 +85,10 @@ CASES = [
     ("first_seen without the user key", SEEN.replace("    user: user_id\n", ""),
      ["s.yml:7:5: activity.first_seen.user: required key is missing from activity.first_seen; "
       "e.g. user: user_id"]),
+    ("first_seen with segments", SEEN + "segments:\n  p: {kind: event, column: platform}\n",
+     ["s.yml:12:3: segments: the segmented views do not read first_seen (set in activity): "
+      "their new and resurrected users would not follow the first-seen rule, and kind user "
+      "values would not add up to the totals; remove segments or first_seen"]),
     ("first_seen without a table", SEEN.replace("    table: app.users\n", ""),
      ["s.yml:7:5: activity.first_seen.table: required key is missing from "
       "activity.first_seen; e.g. table: app.users"]),
@@ -180,21 +184,23 @@ def test_schema_check_compares_the_user_key_types(tmp_path):
     (or the reverse) is refused at its key; integer against BIGINT is fine."""
     tables = ("CREATE TABLE app.users(user_id BIGINT, signed_up_at TIMESTAMP); "
               "CREATE TABLE app.plans(uid INTEGER, plan TEXT); ")
-    text = SEEN + ("segments:\n  plan:\n    kind: user\n    table: app.plans\n"
-                   "    key: uid\n    column: plan\n")
-    found = schema_problems(tmp_path, tables + "CREATE TABLE raw.app_events(user_id TEXT, "
-                            "occurred_at TIMESTAMP)", text)
+    segmented = GOOD + ("segments:\n  plan:\n    kind: user\n    table: app.plans\n"
+                        "    key: uid\n    column: plan\n")
+    events = "CREATE TABLE raw.app_events(user_id TEXT, occurred_at TIMESTAMP)"
+    found = schema_problems(tmp_path, tables + events, SEEN)
+    (tmp_path / "w.duckdb").unlink()
+    found += schema_problems(tmp_path, tables + events, segmented)
     tail = ("the join on the user key would compare text with numbers (no user matches, or an "
             "error, by engine); give both the same type, e.g. cast one of them in a view "
             "upstream")
     assert found == [
         f"s.yml:8:11: activity.first_seen.user: 'user_id' is BIGINT but activity.user "
         f"'user_id' is VARCHAR: {tail}",
-        f"s.yml:15:10: segments.plan.key: 'uid' is INTEGER but activity.user 'user_id' is "
+        f"s.yml:11:10: segments.plan.key: 'uid' is INTEGER but activity.user 'user_id' is "
         f"VARCHAR: {tail}"]
-    (tmp_path / "w.duckdb").unlink()
-    assert schema_problems(tmp_path, tables + "CREATE TABLE raw.app_events(user_id BIGINT, "
-                           "occurred_at TIMESTAMP)", text) == []
+    for text in (SEEN, segmented):
+        (tmp_path / "w.duckdb").unlink()
+        assert schema_problems(tmp_path, tables + events.replace("TEXT", "BIGINT"), text) == []
 
 
 def test_create_all_and_checks_cover_every_definition():
