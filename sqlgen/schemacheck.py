@@ -103,7 +103,40 @@ def _check_part(spec: Spec, catalog: Catalog) -> list[Problem]:
                                                                            catalog)))
             continue
         problems += _check_section(spec, name, section, table, catalog)
-    return problems + _check_segments(spec, catalog)
+    return problems + _check_segments(spec, catalog) + _check_user_keys(spec, catalog)
+
+
+def _check_user_keys(spec: Spec, catalog: Catalog) -> list[Problem]:
+    """The user keys that the views join to ``activity.user`` (the first-seen table's, a
+    kind user segment table's ``key``) hold the same kind of value: text against text,
+    numbers against numbers. A text key joined to a numeric one matches nothing, or fails,
+    depending on the engine. Columns that are missing are reported elsewhere."""
+    activity = spec.activity
+    base = _column(catalog, activity.table, activity.user) if activity else None
+    if base is None or base.kind not in _KEY_KINDS:
+        return []
+    seen = activity.first_seen
+    joined = [("activity.first_seen.user", seen.table, seen.user)] if seen else []
+    joined += [(f"segments.{s.name}.key", s.table, s.key) for s in spec.segments
+               if s.table is not None and s.key is not None and s.splits_activity]
+    problems = []
+    for key, table, part in joined:
+        column = _column(catalog, table, part)
+        if column is None or column.kind not in _KEY_KINDS:
+            continue
+        if (column.kind == "text") != (base.kind == "text"):
+            problems.append(_problem(spec, key, (
+                f"{shown(column.name)} is {column.type} but activity.user "
+                f"{shown(base.name)} is {base.type}: the join on the user key would compare "
+                "text with numbers (no user matches, or an error, by engine); give both the "
+                "same type, e.g. cast one of them in a view upstream")))
+    return problems
+
+
+def _column(catalog: Catalog, table: tuple[names.Part, ...], part: names.Part
+            ) -> Column | None:
+    found = catalog.find(table)
+    return found.column(*part) if found is not None else None
 
 
 def _check_segments(spec: Spec, catalog: Catalog) -> list[Problem]:

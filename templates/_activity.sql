@@ -76,8 +76,10 @@ sqlgen_source AS (
 {#- The users table of first_seen: one row per user with the period key of the earliest
     valid first-seen date (NULL or sentinel dates are ignored, as activity rows are), and
     sqlgen_seen_found = 1 so that a user missing from it is told apart after a LEFT JOIN
-    even where unmatched columns read as 0 rather than NULL (ClickHouse by default). -#}
-{%- macro first_seen_ctes() -%}
+    even where unmatched columns read as 0 rather than NULL (ClickHouse by default).
+    With key='day' (trailing windows) sqlgen_seen_key is that date's day number instead:
+    days since Monday 1970-01-05, as trailing_activity numbers its days. -#}
+{%- macro first_seen_ctes(key='period') -%}
 seen_source AS (
   /* The first-seen rows with a user and a timestamp; a timestamp far outside the valid range becomes NULL. */
   SELECT __seen_user__ AS sqlgen_seen_user, {{ p.near_value('__seen_timestamp__', source.first_seen.timestamp_type, 'seen') }} AS sqlgen_seen_ts
@@ -94,8 +96,13 @@ seen_source AS (
   WHERE {{ p.in_range('sqlgen_seen_date', 'activity') }}
   GROUP BY sqlgen_seen_user
 ), first_seen AS (
+{%- if key == 'day' %}
+  /* The day number of that date: days since Monday 1970-01-05. */
+  SELECT sqlgen_seen_user, DATE_DIFF('day', DATE '1970-01-05', sqlgen_seen_first) AS sqlgen_seen_key, 1 AS sqlgen_seen_found
+{%- else %}
   /* The period key of that date. */
   SELECT sqlgen_seen_user, {{ p.period_key('sqlgen_seen_first') }} AS sqlgen_seen_key, 1 AS sqlgen_seen_found
+{%- endif %}
   FROM seen_dates
 )
 {%- endmacro -%}

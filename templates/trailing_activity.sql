@@ -12,8 +12,12 @@
       new      in windows ending [f, f+N) for the user's first block
       churned  in windows ending [l+N, min(l+2N, b)) when b > l+N or b is NULL
     Spans become +1/-1 changes per day and a running sum over the calendar turns them into
-    counts. retained = previous - churned and resurrected = active - new - retained. -#}
+    counts. retained = previous - churned and resurrected = active - new - retained.
+    With first_seen, a user first seen on day s before the window is not new in it (the
+    user is resurrected there, as in growth accounting): the first block's new span ends at
+    min(f, s) + N instead of f + N, and is empty when s + N <= f. -#}
 {%- set block = windows | min -%}
+{%- set fs = source.first_seen -%}
 WITH {{ a.source_ctes() }}, numbered AS (
   /* Each active day as a day number: days since Monday 1970-01-05. */
   SELECT user_id AS day_user, DATE_DIFF('day', DATE '1970-01-05', activity_date) AS day_number
@@ -28,14 +32,28 @@ WITH {{ a.source_ctes() }}, numbered AS (
     MAX(day_number) AS last_day
   FROM blocked
   GROUP BY day_user, block_number
-), visits AS (
-  /* Each block with the previous block of the user and next active day. */
+){% if fs %}, {{ a.first_seen_ctes('day') }}{% endif %}, visits AS (
+  /* Each block with the previous block of the user and next active day{% if fs %}, and new_from: the first active day, or the first-seen day when earlier{% endif %}. */
   SELECT
+    {%- if fs %}
+    b.first_day,
+    b.last_day,
+    LAG(b.block_number) OVER (PARTITION BY b.block_user ORDER BY b.block_number) AS prior_block,
+    LEAD(b.first_day) OVER (PARTITION BY b.block_user ORDER BY b.block_number) AS next_day,
+    CASE
+      WHEN s.sqlgen_seen_found = 1 AND s.sqlgen_seen_key < b.first_day THEN s.sqlgen_seen_key
+      ELSE b.first_day
+    END AS new_from
+  FROM user_blocks AS b
+  LEFT JOIN first_seen AS s
+    ON s.sqlgen_seen_user = b.block_user
+    {%- else %}
     first_day,
     last_day,
     LAG(block_number) OVER (PARTITION BY block_user ORDER BY block_number) AS prior_block,
     LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number) AS next_day
   FROM user_blocks
+    {%- endif %}
 ), window_lengths AS (
   /* The window lengths, in days. */
 {%- for n in windows %}
@@ -57,7 +75,12 @@ WITH {{ a.source_ctes() }}, numbered AS (
         THEN v.last_day + 2 * w.window_length
       ELSE v.next_day
     END AS churn_end_day,
+{%- if fs %}
+    v.new_from + w.window_length AS new_end_day,
+    CASE WHEN v.prior_block IS NULL AND v.new_from + w.window_length > v.first_day THEN 1 ELSE 0 END AS first_visit,
+{%- else %}
     CASE WHEN v.prior_block IS NULL THEN 1 ELSE 0 END AS first_visit,
+{%- endif %}
     CASE WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length THEN 1 ELSE 0 END AS lapse
   FROM visits AS v
   CROSS JOIN window_lengths AS w
@@ -67,8 +90,17 @@ WITH {{ a.source_ctes() }}, numbered AS (
     0 AS previous_delta, first_visit AS new_delta, 0 AS churn_delta
   FROM spans
   UNION ALL
+{%- if fs %}
+  SELECT span_window, start_day + span_window, 0, 1, 0, 0
+  FROM spans
+  UNION ALL
+  SELECT span_window, new_end_day, 0, 0, -1, 0
+  FROM spans
+  WHERE first_visit = 1
+{%- else %}
   SELECT span_window, start_day + span_window, 0, 1, 0 - first_visit, 0
   FROM spans
+{%- endif %}
   UNION ALL
   SELECT span_window, end_day, -1, 0, 0, 0
   FROM spans

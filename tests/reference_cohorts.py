@@ -119,13 +119,16 @@ def engagement_depth(events, grain, week_start="monday", timezone=None):
     return rows
 
 
-def trailing_activity(events, windows, timezone=None):
+def trailing_activity(events, windows, timezone=None, first_seen=None):
     """One dict per day (first to last active day) and window length, sorted by window, day.
 
     With W(d) the N days ending on d: active = users active in W(d); previous = users
     active in W(d - N); new = active users whose first active day is in W(d); retained =
     active in both; resurrected = active, not in the previous window, not new; churned =
     in the previous window but not in W(d).
+    ``first_seen`` (``{user: date}``, reference.first_seen_dates): a user first seen before
+    W(d) is not new in it (first active in W(d), so resurrected), as a user first seen in an
+    earlier period is not new in growth accounting.
     """
     dates = active_dates(events, timezone)
     if not dates:
@@ -135,6 +138,7 @@ def trailing_activity(events, windows, timezone=None):
         for d in ds:
             by_day[d].add(user)
     first_day = {user: min(ds) for user, ds in dates.items()}
+    seen = first_seen or {}
     start, end = min(by_day), max(by_day)
 
     def window(last_day, n):
@@ -145,15 +149,16 @@ def trailing_activity(events, windows, timezone=None):
         d = start
         while d <= end:
             rows.append(_trailing_row(d, n, window(d, n), window(d - timedelta(days=n), n),
-                                      first_day))
+                                      first_day, seen))
             d += timedelta(days=1)
     return rows
 
 
-def _trailing_row(d, n, current, previous, first_day):
+def _trailing_row(d, n, current, previous, first_day, seen):
     """One trailing_activity row from the sets of users in this and the previous window."""
     window_start = d - timedelta(days=n - 1)
-    new = {u for u in current if first_day[u] >= window_start}
+    new = {u for u in current if first_day[u] >= window_start
+           and (u not in seen or seen[u] >= window_start)}
     retained = current & previous
     resurrected = current - previous - new
     churned = previous - current

@@ -159,8 +159,10 @@ def test_first_seen_fixture(engines, engine_name, target):
     engine.reset()
     load_events(engine, raw, target=target)
     load_users(engine, storable_rows(engine_name, users), target)
-    create_views(engine, spec(target, first_seen="timestamp", cohorts=True), target)
-    got = views(engine, target, ["growth_accounting", "user_states", "cohort_retention"])
+    create_views(engine, spec(target, first_seen="timestamp", cohorts=True)
+                 + "trailing_windows: [1, 7, 28]\n", target)
+    got = views(engine, target, ["growth_accounting", "user_states", "cohort_retention",
+                                 "trailing_activity"])
     assert growth_rows(got["growth_accounting"]) == [
         (D(2024, 1, 1), 2, 0, 1, 0, 1, 0, "complete"),
         (D(2024, 2, 1), 3, 2, 1, 1, 1, 1, "complete"),
@@ -193,6 +195,65 @@ def test_first_seen_fixture(engines, engine_name, target):
     assert_rows_match(got["cohort_retention"],
                       rc.cohort_retention(events, "month", first_seen=seen),
                       COHORT_KEYS, rc.COHORT_COLUMNS)
+    assert_trailing(got["trailing_activity"],
+                    rc.trailing_activity(events, (1, 7, 28), first_seen=seen))
+    # Before d's first day (2024-01-12) only a is active, first seen before every window.
+    assert not [r for r in got["trailing_activity"] if r["window_days"] == 28
+                and r["day"] < D(2024, 1, 12) and r["new_users"]]
+
+
+def assert_trailing(actual, expected) -> None:
+    """trailing_activity rows against the reference, and the identities on every row."""
+    assert_rows_match(actual, expected, TRAILING_KEYS, rc.TRAILING_COLUMNS)
+    for r in actual:
+        assert r["active_users"] == r["new_users"] + r["retained_users"] + r["resurrected_users"]
+        assert r["previous_active_users"] == r["retained_users"] + r["churned_users"]
+        assert min(r[c] for c in rc.TRAILING_COLUMNS[2:-1]) >= 0, r
+
+
+# Window 3 over the days of March 2024 (the worked example of docs/cohorts.md): ann active
+# on days 1 and 2, first seen 2024-02-20; bob on days 1 and 8, not in the users table; cat
+# on day 5, first seen on day 4. Derived by hand: ann is resurrected, not new, in every
+# window she is active in (seen before each); cat is new in the windows ending on days 5
+# and 6 (days 3-5 and 4-6 hold her sign-up) and resurrected in the one ending on day 7
+# (days 5-7: seen before it). Without first_seen, days 1-3 would have 2 new and 0
+# resurrected, and day 7 1 new and 0 resurrected.
+SEEN_WORKED_EVENTS = [("ann", dt.datetime(2024, 3, 1, 9)), ("ann", dt.datetime(2024, 3, 2, 9)),
+                      ("bob", dt.datetime(2024, 3, 1, 10)), ("bob", dt.datetime(2024, 3, 8, 10)),
+                      ("cat", dt.datetime(2024, 3, 5, 10))]
+SEEN_WORKED_USERS = [("ann", dt.datetime(2024, 2, 20, 12)), ("cat", dt.datetime(2024, 3, 4, 18))]
+SEEN_WORKED_TABLE = {  # day: (active, previous, new, retained, resurrected, churned)
+    1: (2, 0, 1, 0, 1, 0), 2: (2, 0, 1, 0, 1, 0), 3: (2, 0, 1, 0, 1, 0),
+    4: (1, 2, 0, 1, 0, 1), 5: (1, 2, 1, 0, 0, 2), 6: (1, 2, 1, 0, 0, 2),
+    7: (1, 1, 0, 0, 1, 1), 8: (1, 1, 0, 0, 1, 1)}
+SEEN_WORKED_QUICK = [None, None, None, 0.0, 0.5, 0.5, 1.0, 1.0]
+TRAILING_KEYS = ("window_days", "day")
+
+
+def worked_table(rows) -> dict[int, tuple]:
+    return {r["day"].day: tuple(r[c] for c in rc.TRAILING_COLUMNS[2:-1])
+            for r in sorted(rows, key=lambda r: r["day"])}
+
+
+def test_first_seen_trailing_worked_example_by_hand():
+    rows = rc.trailing_activity(SEEN_WORKED_EVENTS, [3],
+                                first_seen=ref.first_seen_dates(SEEN_WORKED_USERS))
+    assert worked_table(rows) == SEEN_WORKED_TABLE
+    assert [r["quick_ratio"] for r in rows] == SEEN_WORKED_QUICK
+
+
+@pytest.mark.parametrize("engine_name,target", PAIRS)
+def test_first_seen_trailing_worked_example(engines, engine_name, target):
+    """The hand-derived table above, from trailing_activity on each engine."""
+    engine = engines(engine_name)
+    engine.reset()
+    load_events(engine, [(u, ts, "app_opened") for u, ts in SEEN_WORKED_EVENTS], target=target)
+    load_users(engine, SEEN_WORKED_USERS, target)
+    create_views(engine, spec(target, "day", first_seen="timestamp")
+                 + "trailing_windows: [3]\n", target)
+    rows = sorted(read_view(engine, "trailing_activity", target), key=lambda r: r["day"])
+    assert worked_table(rows) == SEEN_WORKED_TABLE
+    assert [r["quick_ratio"] for r in rows] == SEEN_WORKED_QUICK
 
 
 @pytest.mark.parametrize("engine_name,target", PAIRS)
@@ -264,7 +325,7 @@ REPORT_DATES = (None, D(2020, 1, 1), D(2020, 12, 29), D(2021, 3, 14), D(2024, 2,
 @st.composite
 def cases(draw, kind="timestamp", engine=None):
     """Events (with an event name, half of them 'purchase'), users rows (NULLs, sentinels,
-    duplicates, users without activity), a grain and a report_from."""
+    duplicates, users without activity), a grain, a report_from and trailing windows."""
     events = draw(strategies.events(kind=kind))
     names = draw(st.lists(st.sampled_from(("app_opened", "purchase")),
                           min_size=len(events), max_size=len(events)))
@@ -272,7 +333,8 @@ def cases(draw, kind="timestamp", engine=None):
                                   sentinels=strategies.sentinel_values(kind, engine)))
     return ([(u, ts, n) for (u, ts), n in zip(events, names)], seen,
             draw(strategies.grains()), draw(strategies.week_starts()),
-            draw(st.sampled_from(REPORT_DATES)))
+            draw(st.sampled_from(REPORT_DATES)),
+            draw(st.lists(st.sampled_from((1, 3, 7, 28)), min_size=1, max_size=2, unique=True)))
 
 
 HYPOTHESIS_DEFINITIONS = """\
@@ -288,19 +350,21 @@ def test_random_data_matches_reference(engines, engine_name, target):
     @settings(max_examples=max(1, HYPOTHESIS_EXAMPLES[engine_name] // 2))
     @given(case=cases(engine=engine_name))
     def check(case):
-        raw, users, grain, week_start, report_from = case
+        raw, users, grain, week_start, report_from, windows = case
         engine.reset()
         load_events(engine, storable_rows(engine_name, raw), target=target)
         load_users(engine, storable_rows(engine_name, users), target)
         text = spec(target, grain, week_start, first_seen="timestamp", report_from=report_from,
                     definitions=HYPOTHESIS_DEFINITIONS, cohorts=True)
-        create_views(engine, text, target)
+        create_views(engine, text + f"trailing_windows: [{', '.join(map(str, windows))}]\n",
+                     target)
         seen = ref.first_seen_dates(users)
         events = [(u, ts) for u, ts, _n in raw]
         purchases = [(u, ts) for u, ts, n in raw if n == "purchase"]
         for prefix, rows in (("", events), ("purchasers_", purchases)):
             got = views(engine, target, [prefix + v for v in (
-                "growth_accounting", "user_states", "user_activity", "cohort_retention")])
+                "growth_accounting", "user_states", "user_activity", "cohort_retention",
+                "trailing_activity")])
             args = dict(first_seen=seen, report_from=report_from)
             assert_growth(got[prefix + "growth_accounting"],
                           ref.growth_accounting(rows, grain, week_start, **args))
@@ -313,5 +377,8 @@ def test_random_data_matches_reference(engines, engine_name, target):
             assert_rows_match(got[prefix + "cohort_retention"],
                               rc.cohort_retention(rows, grain, week_start, **args),
                               COHORT_KEYS, rc.COHORT_COLUMNS)
+            assert_trailing(got[prefix + "trailing_activity"], [
+                r for r in rc.trailing_activity(rows, windows, first_seen=seen)
+                if report_from is None or r["day"] >= report_from])
 
     check()

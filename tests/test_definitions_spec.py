@@ -85,13 +85,13 @@ CASES = [
     ("first_seen without the user key", SEEN.replace("    user: user_id\n", ""),
      ["s.yml:7:5: activity.first_seen.user: required key is missing from activity.first_seen; "
       "e.g. user: user_id"]),
+    ("first_seen with segments", SEEN + "segments:\n  p: {kind: event, column: platform}\n",
+     ["s.yml:12:3: segments: the segmented views do not read first_seen (set in activity): "
+      "their new and resurrected users would not follow the first-seen rule, and kind user "
+      "values would not add up to the totals; remove segments or first_seen"]),
     ("first_seen without a table", SEEN.replace("    table: app.users\n", ""),
      ["s.yml:7:5: activity.first_seen.table: required key is missing from "
       "activity.first_seen; e.g. table: app.users"]),
-    ("first_seen with trailing windows", SEEN + "trailing_windows: [7]\n",
-     ["s.yml:11:19: trailing_windows: trailing_activity does not read first_seen (set in "
-      "activity): its new users would not follow the first-seen rule; remove "
-      "trailing_windows or first_seen"]),
 ]
 
 
@@ -141,8 +141,8 @@ def test_hash_of_specs_without_the_new_keys_is_unchanged():
     assert before != parse_spec(GOOD + "definitions:\n  b:\n", "s.yml").digest()
 
 
-def test_schema_check_reads_first_seen_and_definitions(tmp_path):
-    """validate --schema checks the users table and each definition's own keys, once each."""
+def schema_problems(tmp_path, ddl: str, text: str) -> list[str]:
+    """check_spec's problems for a spec against a DuckDB file made by ``ddl``."""
     import duckdb
 
     from sqlgen.schema import open_source
@@ -150,14 +150,20 @@ def test_schema_check_reads_first_seen_and_definitions(tmp_path):
 
     path = tmp_path / "w.duckdb"
     con = duckdb.connect(str(path))
-    con.execute("CREATE SCHEMA raw; CREATE SCHEMA app; "
-                "CREATE TABLE raw.app_events(user_id TEXT, occurred_at TIMESTAMP, event_name TEXT); "
-                "CREATE TABLE app.users(uid TEXT, signed_up_at TIMESTAMPTZ); "
-                "CREATE TABLE raw.orders(user_id TEXT, ordered_at DATE)")
+    con.execute("CREATE SCHEMA IF NOT EXISTS raw; CREATE SCHEMA IF NOT EXISTS app; " + ddl)
     con.close()
+    return [str(p) for p in check_spec(parse_spec(text, "s.yml"), open_source(str(path)))]
+
+
+def test_schema_check_reads_first_seen_and_definitions(tmp_path):
+    """validate --schema checks the users table and each definition's own keys, once each."""
+    path = tmp_path / "w.duckdb"
     text = SEEN + ("definitions:\n  buyers:\n    table: raw.orders\n    timestamp: ordered_at\n"
                    "  openers:\n    where: \"event_nam = 'x'\"\n")
-    found = [str(p) for p in check_spec(parse_spec(text, "s.yml"), open_source(str(path)))]
+    found = schema_problems(
+        tmp_path, "CREATE TABLE raw.app_events(user_id TEXT, occurred_at TIMESTAMP, "
+        "event_name TEXT); CREATE TABLE app.users(uid TEXT, signed_up_at TIMESTAMPTZ); "
+        "CREATE TABLE raw.orders(user_id TEXT, ordered_at DATE)", text)
     label = f"({path})"
     assert found == [
         f"s.yml:8:11: activity.first_seen.user: column 'user_id' is not in app.users {label}. "
@@ -171,6 +177,30 @@ def test_schema_check_reads_first_seen_and_definitions(tmp_path):
         "set timestamp_type: date",
         f"s.yml:16:12: definitions.openers.where: column 'event_nam' is not in raw.app_events "
         f"{label}. Did you mean 'event_name'?"]
+
+
+def test_schema_check_compares_the_user_key_types(tmp_path):
+    """A first-seen or segment table whose user key is a number while activity.user is text
+    (or the reverse) is refused at its key; integer against BIGINT is fine."""
+    tables = ("CREATE TABLE app.users(user_id BIGINT, signed_up_at TIMESTAMP); "
+              "CREATE TABLE app.plans(uid INTEGER, plan TEXT); ")
+    segmented = GOOD + ("segments:\n  plan:\n    kind: user\n    table: app.plans\n"
+                        "    key: uid\n    column: plan\n")
+    events = "CREATE TABLE raw.app_events(user_id TEXT, occurred_at TIMESTAMP)"
+    found = schema_problems(tmp_path, tables + events, SEEN)
+    (tmp_path / "w.duckdb").unlink()
+    found += schema_problems(tmp_path, tables + events, segmented)
+    tail = ("the join on the user key would compare text with numbers (no user matches, or an "
+            "error, by engine); give both the same type, e.g. cast one of them in a view "
+            "upstream")
+    assert found == [
+        f"s.yml:8:11: activity.first_seen.user: 'user_id' is BIGINT but activity.user "
+        f"'user_id' is VARCHAR: {tail}",
+        f"s.yml:11:10: segments.plan.key: 'uid' is INTEGER but activity.user 'user_id' is "
+        f"VARCHAR: {tail}"]
+    for text in (SEEN, segmented):
+        (tmp_path / "w.duckdb").unlink()
+        assert schema_problems(tmp_path, tables + events.replace("TEXT", "BIGINT"), text) == []
 
 
 def test_create_all_and_checks_cover_every_definition():

@@ -76,7 +76,7 @@ report_from: 2023-01-01
 definitions:
   purchasers:
     where: "event_name = 'purchase'"
-""").replace("trailing_windows: [7, 28]\n", "")
+""")
 SPECS = {label: (SPEC, grain) for label, grain in GRAINS.items()}
 SPECS["definitions_month"] = (DEFINITIONS_SPEC, GRAINS["month"])
 SPECS.update({f"revenue_{label}": (REVENUE_SPEC, grain) for label, grain in GRAINS.items()})
