@@ -18,7 +18,7 @@ from sqlglot import exp
 from sqlglot.errors import ErrorLevel, UnsupportedError as SqlglotUnsupported
 
 from . import __version__, names
-from .dialects import TARGETS, Target, rewrites
+from .dialects import TARGETS, Target, rewrites, table_properties
 from .comments import comment_text
 from .errors import SqlgenError, UnsupportedError
 from .render import bind, parse, render, templates_dir
@@ -150,10 +150,13 @@ def _generate(node: exp.Expression, target: Target, key: str) -> str:
 
 def ddl_statements(view: View, spec: Spec, target: Target,
                    queries: Queries | None = None) -> tuple[str, ...]:
-    """The statements that (re)create one view on the target."""
+    """The statements that (re)create one view on the target (with `output.materialize:
+    table`, the table holding its rows)."""
     query = compile_query(view, spec, target, queries)
     table = view_table(spec, view.name)
     key = f"view {view.name}"
+    if spec.output.materialize != "view":
+        return table_statements(table, query, target, key)
     if target.view_ddl == "drop_create":
         drop = exp.Drop(tables=[table.copy()], kind="VIEW", exists=True)
         create = exp.Create(this=table, kind="VIEW", expression=query)
@@ -164,6 +167,16 @@ def ddl_statements(view: View, spec: Spec, target: Target,
     if target.view_ddl == "create_or_alter":
         text = _create_or_alter(text)
     return (text,)
+
+
+def table_statements(table: exp.Table, query: exp.Expression, target: Target,
+                     key: str) -> tuple[str, ...]:
+    """DROP TABLE IF EXISTS, then CREATE TABLE ... AS the query in the target's form
+    (``Target.table_form``; T-SQL: SELECT ... INTO, which sqlglot writes for it)."""
+    drop = exp.Drop(tables=[table.copy()], kind="TABLE", exists=True)
+    create = exp.Create(this=table, kind="TABLE", expression=query,
+                        properties=table_properties(target))
+    return (_generate(drop, target, key), _generate(create, target, key))
 
 
 def _create_or_alter(text: str) -> str:
@@ -187,6 +200,7 @@ def header(spec: Spec, target: Target, view: View | None) -> list[str]:
         lines.append(f"{view.name}: {view.summary}")
         if view.personal_data:
             lines.append(PERSONAL)
+    lines += materialize_lines(spec, view)
     lines.append("What decides the numbers:")
     lines += [f"  {line}" for line in deciding_lines(spec, view)]
     lines.append(CAUTION)
@@ -194,6 +208,17 @@ def header(spec: Spec, target: Target, view: View | None) -> list[str]:
         lines.append(target.ddl_note)
     return [f"{HEADER_MARK} {comment_text(lines[0], HEADER_LINE_LIMIT)}"] + [
         f"-- {comment_text(line, HEADER_LINE_LIMIT)}" for line in lines[1:]]
+
+
+def materialize_lines(spec: Spec, view: View | None) -> list[str]:
+    """What a table (not a view) holds, for the header; [] for views (their output is
+    unchanged)."""
+    if spec.output.materialize == "table":
+        what = "A table" if view is not None else "Tables"
+        return [f"{what}, not views (output.materialize: table): the rows as of the last run "
+                "of create_all.sql, which rebuilds every table in full; run it again after "
+                "new data arrives."]
+    return []
 
 
 def deciding_lines(spec: Spec, view: View | None) -> list[str]:
@@ -442,7 +467,11 @@ def _create_all(spec: Spec, target: Target, compiled: list[CompiledView]) -> str
     """Every view in dependency order, after the schema they go in; in one transaction
     where the target's DDL is transactional, so a run that fails changes nothing."""
     lines = header(spec, target, None)
-    lines.append("-- Every view, each after the views it reads.")
+    if spec.output.materialize == "view":
+        lines.append("-- Every view, each after the views it reads.")
+    else:
+        lines.append("-- Every table, each after the tables it reads: each dropped and computed "
+                     "again in full.")
     if target.no_ddl_transaction:
         lines.append(f"-- Not one transaction: {target.no_ddl_transaction}. A failed run can "
                      "leave some views created; run it again after fixing the cause.")

@@ -12,6 +12,7 @@ import functools
 from dataclasses import dataclass, field
 from typing import Callable
 
+import sqlglot
 from sqlglot import exp
 from sqlglot.dialects.dialect import Dialect, NormalizationStrategy
 
@@ -48,6 +49,9 @@ class Target:
     # Operations of a where filter (filter_feature names) it cannot express -> reason
     filter_gaps: dict[str, str] = field(default_factory=dict)
     column_types: str = ""  # which column types the spec's timestamp_type values mean here
+    # `output.materialize: table`: what follows CREATE TABLE <name> in the target's own
+    # spelling, before AS <query> ("" when the target's default table is right).
+    table_form: str = ""
 
     def dialect(self) -> Dialect:
         return _dialect(self.sqlglot_dialect)
@@ -391,6 +395,13 @@ _PG_NOTE = ("CREATE OR REPLACE VIEW cannot change an existing view's columns on 
             "after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, "
             "which does so).")
 
+# ClickHouse needs a table engine; MergeTree keeps rows on disk, ORDER BY tuple() keeps them
+# unsorted (the views' columns are Nullable, which a sorting key refuses by default).
+_CLICKHOUSE_TABLE = "ENGINE = MergeTree ORDER BY tuple()"
+# Spark: Parquet, the file format it ships with (a plain CREATE TABLE is a Hive table where
+# Hive support is on). Databricks' default, Delta, is kept there.
+_SPARK_TABLE = "USING PARQUET"
+
 TARGETS: dict[str, Target] = {
     t.name: t
     for t in (
@@ -402,7 +413,7 @@ TARGETS: dict[str, Target] = {
         Target("spark", "spark", "spark", "replace",
                (_zone_rewrite(_zones_spark), timestamp_offsets(_offset_spark), int_date_offsets,
                 constant_unions_as_values),
-               no_ddl_transaction=_NO_TX_SPARK),
+               no_ddl_transaction=_NO_TX_SPARK, table_form=_SPARK_TABLE),
         Target("databricks", "databricks", "spark", "replace",
                (_zone_rewrite(_zones_spark), timestamp_offsets(_offset_spark), int_date_offsets,
                 constant_unions_as_values),
@@ -411,7 +422,7 @@ TARGETS: dict[str, Target] = {
         # that name (its data gone), while DROP VIEW refuses one ("is not a View").
         Target("clickhouse", "clickhouse", "clickhouse", "drop_create",
                (_zone_rewrite(_zones_clickhouse),), no_ddl_transaction=_NO_TX_CLICKHOUSE,
-               schema_catalog=False, filter_gaps=_TRY_CAST_GAP,
+               schema_catalog=False, filter_gaps=_TRY_CAST_GAP, table_form=_CLICKHOUSE_TABLE,
                unsupported={"valid range before 1970 or after 2105": _NARROW_DATES_CLICKHOUSE}),
         Target("mysql", "mysql", "mysql", "replace",
                (_zone_rewrite(_zones_mysql), window_keys_nulls_default),
@@ -550,3 +561,18 @@ def rewrites(target: Target) -> list[Transform]:
     """Every rewrite for a target, in order: shared lowering first, then its own."""
     return [interval_add_to_date_add, lower_time_zones, is_not_null, spec_identifiers(target),
             *target.transforms]
+
+
+def table_properties(target: Target) -> exp.Properties | None:
+    """The properties of ``Target.table_form``, parsed in the target's dialect (None: none)."""
+    if not target.table_form:
+        return None
+    return _table_properties(target.name).copy()
+
+
+@functools.lru_cache(maxsize=None)
+def _table_properties(name: str) -> exp.Properties:
+    target = TARGETS[name]
+    parsed = sqlglot.parse_one(f"CREATE TABLE sqlgen_t {target.table_form} AS SELECT 1",
+                               read=target.sqlglot_dialect)
+    return parsed.args["properties"]
