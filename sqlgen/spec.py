@@ -536,6 +536,29 @@ def _cross_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
         _revenue_shape_checks(checker, revenue, v)
     _activity_view_checks(checker, root, v)
     _segment_revenue_check(checker, v)
+    _incremental_checks(checker, v)
+
+
+def _incremental_checks(checker: _Checker, v: dict[str, Any]) -> None:
+    """What `materialize: incremental` cannot keep exact yet, refused at its key: a time zone
+    conversion or an instant type (a local date then differs from the timestamp's date, so
+    the days a refresh reads and the days it computes again would not match), segments."""
+    if v.get("output.materialize") != "incremental":
+        return
+    pos = checker.positions.get("output.materialize", (1, 1))
+    sources = ["activity"] + [f"definitions.{name}" for name in v.get("definitions") or ()]
+    for path in sources:
+        if v.get(f"{path}.timezone"):
+            checker.report(pos, "output.materialize",
+                           f"incremental does not support {path}.timezone yet: use "
+                           "materialize: table, or a spec without a time zone conversion")
+        if v.get(f"{path}.timestamp_type") == "timestamptz":
+            checker.report(pos, "output.materialize",
+                           f"incremental does not support {path}.timestamp_type: timestamptz "
+                           "yet: use materialize: table")
+    if v.get("segments"):
+        checker.report(pos, "output.materialize",
+                       "incremental does not support segments yet: use materialize: table")
 
 
 def _segment_revenue_check(checker: _Checker, v: dict[str, Any]) -> None:
