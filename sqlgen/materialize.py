@@ -85,8 +85,10 @@ def refresh_statements(part: Spec, target: Target) -> list[str]:
 
 def recompute_statements(table: exp.Table, query: exp.Expression, target: Target,
                          key: str) -> list[str]:
-    """A table's rows computed again: DELETE, then INSERT of its query."""
+    """A table's rows computed again: DELETE (WHERE TRUE: BigQuery refuses a DELETE
+    without a WHERE clause), then INSERT of its query."""
     from .compiler import _generate
 
-    return [_generate(exp.Delete(this=table.copy()), target, key),
+    delete = exp.Delete(this=table.copy(), where=exp.Where(this=exp.true()))
+    return [_generate(delete, target, key),
             _generate(exp.Insert(this=table.copy(), expression=query), target, key)]
