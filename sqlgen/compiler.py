@@ -560,6 +560,9 @@ def _refresh(spec: Spec, target: Target, compiled: list[CompiledView]) -> str:
         if statements:
             body.append(f"-- {comment_text(c.view.name)}\n"
                         + "\n\n".join(run(s) for s in statements))
+    if target.snapshot_statement and not target.no_ddl_transaction:
+        body.insert(0, "-- Every step reads one snapshot of the source.\n"
+                    f"{target.snapshot_statement};")
     return _script(lines, body, target)
 
 

@@ -52,6 +52,9 @@ class Target:
     # `output.materialize: table`: what follows CREATE TABLE <name> in the target's own
     # spelling, before AS <query> ("" when the target's default table is right).
     table_form: str = ""
+    # refresh.sql's first statement in its transaction, where the default isolation gives
+    # each statement its own snapshot of the source (its steps must see one): "" elsewhere.
+    snapshot_statement: str = ""
 
     def dialect(self) -> Dialect:
         return _dialect(self.sqlglot_dialect)
@@ -419,7 +422,8 @@ TARGETS: dict[str, Target] = {
                (_zone_rewrite(_zones_at_time_zone),)),
         Target("postgres", "postgres", "postgres", "replace",
                (_zone_rewrite(_zones_at_time_zone),), ddl_note=_PG_NOTE, schema_catalog=False,
-               filter_gaps=_TRY_CAST_GAP),
+               filter_gaps=_TRY_CAST_GAP,
+               snapshot_statement="SET TRANSACTION ISOLATION LEVEL REPEATABLE READ"),
         Target("spark", "spark", "spark", "replace",
                (_zone_rewrite(_zones_spark), timestamp_offsets(_offset_spark), int_date_offsets,
                 constant_unions_as_values),

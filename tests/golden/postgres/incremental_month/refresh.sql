@@ -19,6 +19,9 @@
 
 BEGIN;
 
+-- Every step reads one snapshot of the source.
+SET TRANSACTION ISOLATION LEVEL REPEATABLE READ;
+
 -- sqlgen_activity_days
 UPDATE "growth".sqlgen_refresh_state SET late_rows = late_rows - rows_before, rows_before = (
   SELECT
