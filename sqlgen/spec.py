@@ -515,6 +515,13 @@ def _warnings(checker: _Checker, spec: Spec) -> list[Problem]:
                              f"warning: has no effect with grain: {spec.grain}; it sets the "
                              "first day of a week for grain: week only. Remove it or set "
                              "grain: week"))
+    if spec.output.materialize != "incremental" and "output.lookback" in checker.positions:
+        line, col = checker.positions["output.lookback"]
+        found.append(Problem(checker.filename, line, col, "output.lookback",
+                             "warning: has no effect with materialize: "
+                             f"{spec.output.materialize}; it sets how far refresh.sql reads "
+                             "back for materialize: incremental only. Remove it or set "
+                             "materialize: incremental"))
     return found
 
 

@@ -167,3 +167,11 @@ def test_table_form_per_target():
     assert "INTO growth_accounting" in found["tsql"]
     assert all("DROP TABLE IF EXISTS" in text for text in found.values())
     assert all("output.materialize: table" in text for text in found.values())
+
+
+def test_lookback_without_incremental_is_a_located_warning():
+    spec = parse_spec(BASE + "  materialize: table\n  lookback: 2 days\n", "s.yml")
+    assert [str(w) for w in spec.warnings] == [
+        "s.yml:8:13: output.lookback: warning: has no effect with materialize: table; it sets "
+        "how far refresh.sql reads back for materialize: incremental only. Remove it or set "
+        "materialize: incremental"]
