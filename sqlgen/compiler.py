@@ -14,7 +14,7 @@ from sqlglot import exp
 from sqlglot.errors import ErrorLevel, UnsupportedError as SqlglotUnsupported
 
 from . import __version__, names
-from .dialects import TARGETS, Target, rewrites
+from .dialects import TARGETS, Target, rewrites, table_properties
 from .comments import HEADER_MARK, comment_text
 from .errors import SqlgenError, UnsupportedError
 from .freshness import generator_digest, spec_text_line
@@ -29,6 +29,7 @@ PERSONAL = ("Holds one row per user: personal data. Grant access as you would to
             "underlying user table.")
 HEADER_LINE_LIMIT = 400  # a header line's text, at most (a long `where` is cut)
 CREATE_ALL = "create_all.sql"
+REFRESH = "refresh.sql"
 
 
 @dataclass(frozen=True)
@@ -146,10 +147,13 @@ def _generate(node: exp.Expression, target: Target, key: str) -> str:
 
 def ddl_statements(view: View, spec: Spec, target: Target,
                    queries: Queries | None = None) -> tuple[str, ...]:
-    """The statements that (re)create one view on the target."""
+    """The statements that (re)create one view on the target (with `output.materialize:
+    table`, the table holding its rows)."""
     query = compile_query(view, spec, target, queries)
     table = view_table(spec, view.name)
     key = f"view {view.name}"
+    if materialized(view, spec):
+        return table_statements(table, query, target, key)
     if target.view_ddl == "drop_create":
         drop = exp.Drop(tables=[table.copy()], kind="VIEW", exists=True)
         create = exp.Create(this=table, kind="VIEW", expression=query)
@@ -160,6 +164,36 @@ def ddl_statements(view: View, spec: Spec, target: Target,
     if target.view_ddl == "create_or_alter":
         text = _create_or_alter(text)
     return (text,)
+
+
+def materialized(view: View, spec: Spec) -> bool:
+    """Whether a view is kept as a table: with `materialize: table` every one; with
+    `incremental` every one but activity_source_summary, a view (it counts the source's
+    own rows, all of them: as a table each refresh would read the whole source)."""
+    mode = spec.output.materialize
+    return mode == "table" or (mode == "incremental" and view.name != "activity_source_summary")
+
+
+def refresh_statements(view: View, spec: Spec, target: Target) -> tuple[str, ...]:
+    """refresh.sql's statements for one view's table: its rows computed again (none for
+    a view)."""
+    from .materialize import recompute_statements
+
+    if spec.output.materialize != "incremental" or not materialized(view, spec):
+        return ()
+    query = compile_query(view, spec, target)
+    return tuple(recompute_statements(view_table(spec, view.name), query, target,
+                                      f"view {view.name}"))
+
+
+def table_statements(table: exp.Table, query: exp.Expression, target: Target,
+                     key: str) -> tuple[str, ...]:
+    """DROP TABLE IF EXISTS, then CREATE TABLE ... AS the query in the target's form
+    (``Target.table_form``; T-SQL: SELECT ... INTO, which sqlglot writes for it)."""
+    drop = exp.Drop(tables=[table.copy()], kind="TABLE", exists=True)
+    create = exp.Create(this=table, kind="TABLE", expression=query,
+                        properties=table_properties(target))
+    return (_generate(drop, target, key), _generate(create, target, key))
 
 
 def _create_or_alter(text: str) -> str:
@@ -183,6 +217,7 @@ def header(spec: Spec, target: Target, view: View | None) -> list[str]:
         lines.append(f"{view.name}: {view.summary}")
         if view.personal_data:
             lines.append(PERSONAL)
+    lines += materialize_lines(spec, view)
     lines.append("What decides the numbers:")
     lines += [f"  {line}" for line in deciding_lines(spec, view)]
     lines.append(CAUTION)
@@ -190,6 +225,26 @@ def header(spec: Spec, target: Target, view: View | None) -> list[str]:
         lines.append(target.ddl_note)
     return [f"{HEADER_MARK} {comment_text(lines[0], HEADER_LINE_LIMIT)}"] + [
         f"-- {comment_text(line, HEADER_LINE_LIMIT)}" for line in lines[1:]]
+
+
+def materialize_lines(spec: Spec, view: View | None) -> list[str]:
+    """What a table (not a view) holds, for the header; [] for views (their output is
+    unchanged)."""
+    if spec.output.materialize == "incremental":
+        if view is not None and not materialized(view, spec):
+            return ["A view (output.materialize: incremental keeps this one a view: it "
+                    "counts every source row)."]
+        what = "A table" if view is not None else "Tables"
+        return [f"{what}, not views (output.materialize: incremental): computed by "
+                "create_all.sql, brought up to date by refresh.sql (which reads the source "
+                f"rows from {spec.output.lookback} days before the newest day on); "
+                "create_all.sql rebuilds in full."]
+    if spec.output.materialize == "table":
+        what = "A table" if view is not None else "Tables"
+        return [f"{what}, not views (output.materialize: table): the rows as of the last run "
+                "of create_all.sql, which rebuilds every table in full; run it again after "
+                "new data arrives."]
+    return []
 
 
 def deciding_lines(spec: Spec, view: View | None) -> list[str]:
@@ -301,8 +356,9 @@ def file_names(spec: Spec) -> list[str]:
     each created view's own name (prefix included) and ``<prefix>create_all.sql``. The one
     place that names files, so that specs with other prefixes share a folder."""
     prefix = spec.output.prefix
+    refresh = [prefix + REFRESH] if spec.output.materialize == "incremental" else []
     return ([f"{part.output.prefix}{view.name}.sql" for part, view in planned(spec)]
-            + [prefix + CREATE_ALL])
+            + [prefix + CREATE_ALL] + refresh)
 
 
 def render_files(spec: Spec, target_name: str | None = None,
@@ -311,6 +367,8 @@ def render_files(spec: Spec, target_name: str | None = None,
     target = TARGETS[target_name or spec.output.dialect]
     compiled = compile_spec(spec, target.name, queries)
     texts = [c.text for c in compiled] + [_create_all(spec, target, compiled)]
+    if spec.output.materialize == "incremental":
+        texts.append(_refresh(spec, target, compiled))
     return dict(zip(file_names(spec), texts))
 
 
@@ -423,25 +481,70 @@ def _create_all(spec: Spec, target: Target, compiled: list[CompiledView]) -> str
     """Every view in dependency order, after the schema they go in; in one transaction
     where the target's DDL is transactional, so a run that fails changes nothing."""
     lines = header(spec, target, None)
-    lines.append("-- Every view, each after the views it reads.")
-    if target.no_ddl_transaction:
-        lines.append(f"-- Not one transaction: {target.no_ddl_transaction}. A failed run can "
-                     "leave some views created; run it again after fixing the cause.")
+    if spec.output.materialize == "view":
+        lines.append("-- Every view, each after the views it reads.")
     else:
-        lines.append("-- One transaction: a run that fails leaves every object as it was"
-                     + (f"; {target.transaction_note}." if target.transaction_note else "."))
+        lines.append("-- Every table, each after the tables it reads: each dropped and computed "
+                     "again in full.")
+    lines.append(_transaction_line(target, "some views created", "every object"))
     statements = [s for s in (create_schema(spec, target),) if s]
     statements += view_drops(spec, target, compiled)
+    from .materialize import create_statements, parts_with_days
+
+    for part in parts_with_days(spec):  # the per-day and state tables, before the views'
+        statements += create_statements(part, target)
     run = _through_exec if target.exec_batch else (lambda statement: statement + ";")
     body = [s + ";" for s in statements]  # the schema and the drops
     body += [f"-- {comment_text(c.view.name)}\n" + "\n\n".join(run(s) for s in c.statements)
              for c in compiled]
+    return _script(lines, body, target)
+
+
+def _transaction_line(target: Target, partial: str, kept: str) -> str:
+    """Whether a script is one transaction, and what a failed run leaves."""
+    if target.no_ddl_transaction:
+        return (f"-- Not one transaction: {target.no_ddl_transaction}. A failed run can "
+                f"leave {partial}; run it again after fixing the cause.")
+    return (f"-- One transaction: a run that fails leaves {kept} as it was"
+            + (f"; {target.transaction_note}." if target.transaction_note else "."))
+
+
+def _script(lines: list[str], body: list[str], target: Target) -> str:
+    """A script's header and statements, in one transaction where the target has one."""
     if not target.no_ddl_transaction:
         body = [_generate(exp.Transaction(), target, "transaction") + ";", *body,
                 _generate(exp.Commit(), target, "transaction") + ";"]
     if target.exec_batch:  # an error rolls the whole transaction back, not one statement
         body.insert(0, "SET XACT_ABORT ON;")
     return "\n\n".join(["\n".join(lines), *body]) + "\n"
+
+
+def _refresh(spec: Spec, target: Target, compiled: list[CompiledView]) -> str:
+    """refresh.sql: the per-day and state tables of each part brought up to date, then
+    every table computed again from them (sqlgen/materialize.py), in one transaction where
+    the target has one."""
+    from .materialize import parts_with_days, refresh_statements as day_statements
+
+    lines = header(spec, target, None)
+    lines.append("-- Brings every table up to date: the source rows from each state table's "
+                 "from_day on are read again,")
+    lines.append("-- those days computed again, then every table from the per-day table. "
+                 "Running it twice changes nothing.")
+    lines.append(_transaction_line(target, "some tables updated", "every table"))
+    run = _through_exec if target.exec_batch else (lambda statement: statement + ";")
+    body = []
+    for part in parts_with_days(spec):
+        body.append(f"-- {comment_text(part.output.prefix + 'sqlgen_activity_days')}\n"
+                    + "\n\n".join(run(s) for s in day_statements(part, target)))
+    for c in compiled:
+        statements = refresh_statements(c.view, c.part or spec, target)
+        if statements:
+            body.append(f"-- {comment_text(c.view.name)}\n"
+                        + "\n\n".join(run(s) for s in statements))
+    if target.snapshot_statement and not target.no_ddl_transaction:
+        body.insert(0, "-- Every step reads one snapshot of the source.\n"
+                    f"{target.snapshot_statement};")
+    return _script(lines, body, target)
 
 
 def view_drops(spec: Spec, target: Target, compiled: list[CompiledView],

@@ -75,8 +75,25 @@ def _environment():
 
 def render(view: View, spec: Spec) -> str:
     """The view's query as source-dialect SQL text, with markers for spec names."""
-    template = _environment().get_template(view.template)
+    return render_template(view.template, spec, from_days=reads_days(view, spec))
+
+
+def reads_days(view: View, spec: Spec) -> bool:
+    """Whether the view reads the per-(user, day) table rather than the activity table:
+    with `output.materialize: incremental`, every activity view but the source summary
+    (which counts the source's own rows)."""
+    return (spec.output.materialize == "incremental" and view.reads == "activity"
+            and view.name != "activity_source_summary")
+
+
+def render_template(name: str, spec: Spec, from_days: bool = False, **flags) -> str:
+    """A template as source-dialect SQL text, with markers for spec names; ``flags`` are
+    further template variables (the incremental statements' ``since``)."""
+    template = _environment().get_template(name)
     return template.render(
+        from_days=from_days,
+        lookback=spec.output.lookback,
+        **flags,
         grain=grain_of(spec),
         source=spec.activity,
         revenue=spec.revenue,

@@ -40,6 +40,9 @@ VALID_UNTIL = dt.date(2100, 1, 1)
 EARLIEST_DATE = dt.date(1000, 1, 1)  # MySQL's DATE starts here (from memory of its manual)
 LATEST_DATE = dt.date(9999, 1, 1)  # a margin below 9999-12-31, the largest date most engines hold
 MAX_CALENDAR_PERIODS = 10 ** 6  # the longest calendar of periods (or days) a view may build
+MATERIALIZE = ("view", "table", "incremental")
+LOOKBACK_DAYS = 3  # output.lookback's default: late events up to 3 days old are picked up
+MAX_LOOKBACK_DAYS = 366
 
 
 @dataclass(frozen=True)
@@ -194,6 +197,18 @@ KEYS: tuple[Key, ...] = (
     Key("output.folder", "text",
         "Folder for the generated files, relative to the spec file; `--out` overrides.",
         default="sql"),
+    Key("output.materialize", "choice",
+        "How each query is kept: `view` (computed when read), `table` (computed by "
+        "`create_all.sql`, rebuilt in full by each run of it) or `incremental` (tables "
+        "created by `create_all.sql` and brought up to date by `refresh.sql`, which reads "
+        "only the source rows from the stored high-water mark minus `output.lookback`). "
+        "See docs/materialize.md.", default="view", choices=MATERIALIZE, example="table"),
+    Key("output.lookback", "lookback",
+        "For `materialize: incremental`: how far before the stored high-water mark "
+        "`refresh.sql` reads again, for late-arriving events: `N days` or `N weeks`, "
+        f"0 to {MAX_LOOKBACK_DAYS} days. Rows older than that are counted in the state "
+        "table, not added (run `create_all.sql` to rebuild in full).",
+        default=f"{LOOKBACK_DAYS} days", example="3 days"),
     Key("cohorts", "boolean",
         "Build `cohort_retention` (users by first active period and age), and "
         "`revenue_cohorts` when the spec has revenue.", default=False, example="true"),
@@ -336,6 +351,8 @@ class Output:
     schema: tuple[names.Part, ...] | None
     prefix: str
     folder: str
+    materialize: str = "view"
+    lookback: int = LOOKBACK_DAYS  # days
 
 
 @dataclass(frozen=True)
@@ -396,6 +413,9 @@ class Spec:
         """
         data = {f.name: getattr(self, f.name) for f in fields(self) if f.compare}
         data = {name: asdict(v) if is_dataclass(v) else v for name, v in data.items()}
+        if data["output"]["materialize"] == "view":  # specs of views keep their earlier hash
+            data["output"].pop("materialize")
+            data["output"].pop("lookback")
         if not data.get("allow_functions"):
             data.pop("allow_functions")  # specs without it keep their earlier hash
         if data.get("revenue") is None:
@@ -499,6 +519,13 @@ def _warnings(checker: _Checker, spec: Spec) -> list[Problem]:
                              f"warning: has no effect with grain: {spec.grain}; it sets the "
                              "first day of a week for grain: week only. Remove it or set "
                              "grain: week"))
+    if spec.output.materialize != "incremental" and "output.lookback" in checker.positions:
+        line, col = checker.positions["output.lookback"]
+        found.append(Problem(checker.filename, line, col, "output.lookback",
+                             "warning: has no effect with materialize: "
+                             f"{spec.output.materialize}; it sets how far refresh.sql reads "
+                             "back for materialize: incremental only. Remove it or set "
+                             "materialize: incremental"))
     return found
 
 
@@ -520,6 +547,29 @@ def _cross_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
         _revenue_shape_checks(checker, revenue, v)
     _activity_view_checks(checker, root, v)
     _segment_revenue_check(checker, v)
+    _incremental_checks(checker, v)
+
+
+def _incremental_checks(checker: _Checker, v: dict[str, Any]) -> None:
+    """What `materialize: incremental` cannot keep exact yet, refused at its key: a time zone
+    conversion or an instant type (a local date then differs from the timestamp's date, so
+    the days a refresh reads and the days it computes again would not match), segments."""
+    if v.get("output.materialize") != "incremental":
+        return
+    pos = checker.positions.get("output.materialize", (1, 1))
+    sources = ["activity"] + [f"definitions.{name}" for name in v.get("definitions") or ()]
+    for path in sources:
+        if v.get(f"{path}.timezone"):
+            checker.report(pos, "output.materialize",
+                           f"incremental does not support {path}.timezone yet: use "
+                           "materialize: table, or a spec without a time zone conversion")
+        if v.get(f"{path}.timestamp_type") == "timestamptz":
+            checker.report(pos, "output.materialize",
+                           f"incremental does not support {path}.timestamp_type: timestamptz "
+                           "yet: use materialize: table")
+    if v.get("segments"):
+        checker.report(pos, "output.materialize",
+                       "incremental does not support segments yet: use materialize: table")
 
 
 def _segment_revenue_check(checker: _Checker, v: dict[str, Any]) -> None:
@@ -682,7 +732,9 @@ def _build(v: dict[str, Any], filename: str, given: set[str] = frozenset()) -> S
         definitions.append(Definition(name, ActivitySource(**own, first_seen=seen,
                                                            report_from=report)))
     output = Output(dialect=v["output.dialect"], schema=v["output.schema"],
-                    prefix=v["output.prefix"], folder=v["output.folder"])
+                    prefix=v["output.prefix"], folder=v["output.folder"],
+                    materialize=v["output.materialize"],
+                    lookback=_lookback_days(v["output.lookback"]))
     return Spec(version=v["version"], activity=activity, grain=v["grain"],
                 week_start=v["week_start"], output=output, cohorts=v["cohorts"],
                 engagement=v["engagement"], trailing_windows=tuple(v["trailing_windows"] or ()),
@@ -1006,6 +1058,26 @@ def _check_scale(_c: _Checker, _key: Key, value: Any) -> int:
     return value
 
 
+def _lookback_days(value: int | str) -> int:
+    """output.lookback in days: the checked value, or the default's text."""
+    return value if isinstance(value, int) else _check_lookback(None, None, value)
+
+
+def _check_lookback(_c: _Checker | None, _key: Key | None, value: Any) -> int:
+    """`N days` or `N weeks` (also `1 day`, `1 week`) -> days; a bare whole number is refused,
+    so that the unit is always written."""
+    text = str(value).strip().lower() if isinstance(value, (str, int)) else None
+    parts = text.split() if text is not None and not isinstance(value, bool) else []
+    units = {"day": 1, "days": 1, "week": 7, "weeks": 7}
+    if len(parts) != 2 or not parts[0].isdigit() or parts[1] not in units:
+        raise ValueError(f"expected a length such as 3 days or 1 week, got {_describe(value)}")
+    days = int(parts[0]) * units[parts[1]]
+    if days > MAX_LOOKBACK_DAYS:
+        raise ValueError(f"{days} days is longer than {MAX_LOOKBACK_DAYS} days; a lookback "
+                         "that long is a full rebuild (create_all.sql)")
+    return days
+
+
 def _check_boolean(_c: _Checker, _key: Key, value: Any) -> bool:
     if not isinstance(value, bool):
         raise ValueError(f"expected true or false, got {_describe(value)}")
@@ -1165,6 +1237,7 @@ _CHECKS: dict[str, Callable[[_Checker, Key, Any], Any]] = {
     "text": _check_text,
     "scale": _check_scale,
     "boolean": _check_boolean,
+    "lookback": _check_lookback,
     "windows": _check_windows,
     "functions": _check_functions,
     "date": _check_date,

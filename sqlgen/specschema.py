@@ -37,6 +37,7 @@ KINDS: dict[str, dict[str, Any]] = {
     "prefix": {"type": "string", "pattern": r"^$|" + _NAME},
     "text": {"type": "string"},
     "boolean": {"type": "boolean"},
+    "lookback": {"type": "string", "pattern": r"^\s*[0-9]+\s+(day|days|week|weeks)\s*$"},
     "windows": {"type": "array", "uniqueItems": True,
                 "items": {"type": "integer", "minimum": 1, "maximum": MAX_WINDOW_DAYS}},
     "functions": {"type": "array", "uniqueItems": True,

@@ -19,7 +19,7 @@ from .views import VIEWS, VIEWS_BY_NAME
 
 OPTIONS = ("grain: week", "activity.timezone", "timestamp_type: timestamptz", "activity.where",
            "revenue.timezone", "revenue.where", "shape: subscriptions", "qualified names",
-           "valid range before 1970 or after 2105")
+           "valid range before 1970 or after 2105", "materialize: incremental")
 FEATURES: tuple[str, ...] = tuple(v.name for v in VIEWS) + OPTIONS
 # A revenue option needs what the activity option of the same kind needs, unless a target
 # lists it separately.
@@ -61,6 +61,7 @@ def features_used(spec: Spec) -> list[tuple[str, str]]:
 
 # A valid range inside these dates needs date types no wider than 1970 .. 2106 (the range
 # check compares with its bounds two days wider).
+RANGE_OPTION = "valid range before 1970 or after 2105"
 NARROW_RANGE = (dt.date(1970, 1, 3), dt.date(2106, 1, 1))
 
 
@@ -70,9 +71,11 @@ def _range_features(spec: Spec) -> list[tuple[str, str]]:
         if source is None:
             continue
         if source.valid_from < NARROW_RANGE[0]:
-            used.append((OPTIONS[-1], f"{name}.valid_from"))
+            used.append((RANGE_OPTION, f"{name}.valid_from"))
         if source.valid_until > NARROW_RANGE[1]:
-            used.append((OPTIONS[-1], f"{name}.valid_until"))
+            used.append((RANGE_OPTION, f"{name}.valid_until"))
+    if spec.output.materialize == "incremental":
+        used.append(("materialize: incremental", "output.materialize"))
     return used
 
 

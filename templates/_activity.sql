@@ -19,16 +19,28 @@
                     with its events, distinct active days and first and last active dates.
 A view reads these CTEs rather than another view, so that each is computed once per query
 however often the view refers to it.
+With `output.materialize: incremental` (from_days), source_ctes() reads the per-(user, day)
+table instead (its rows are what `dated` grouped by user and date, with their count as
+sqlgen_events), and user_periods() adds those counts up; every other CTE is unchanged.
+since (source_ctes) keeps only the rows from the state table's from_day on: the rows a
+refresh reads again.
 -#}
 {%- import '_periods.sql' as p with context -%}
 
-{%- macro source_ctes(carry=()) -%}
+{%- macro source_ctes(carry=(), since=False) -%}
+{%- if from_days %}
+dated AS (
+  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+  SELECT user_id, activity_date, events AS sqlgen_events
+  FROM {{ ref('sqlgen_activity_days') }}
+)
+{%- else %}
 sqlgen_source AS (
   /* The activity rows that count: a user and a timestamp, and kept by the filter of the spec.
      A timestamp far outside the valid range becomes NULL before any zone conversion. */
   SELECT __user__ AS sqlgen_user, {{ p.near_value('__timestamp__', source.timestamp_type, 'activity') }} AS sqlgen_ts{% for column, name in carry %}, {{ column }} AS {{ name }}{% endfor %}
   FROM __activity_table__
-  WHERE __user__ IS NOT NULL AND __timestamp__ IS NOT NULL{% if source.where %} AND (__where__){% endif %}
+  WHERE __user__ IS NOT NULL AND __timestamp__ IS NOT NULL{% if source.where %} AND (__where__){% endif %}{% if since %} AND __timestamp__ >= (SELECT from_day FROM {{ ref('sqlgen_refresh_state') }}){% endif %}
 ), sqlgen_local AS (
   /* The local calendar date of each row, by the time zone rule of the spec. */
   SELECT sqlgen_user, {{ p.local_date('sqlgen_ts') }} AS sqlgen_date{% for _column, name in carry %}, {{ name }}{% endfor %}
@@ -39,12 +51,13 @@ sqlgen_source AS (
   FROM sqlgen_local
   WHERE {{ p.in_range('sqlgen_date', 'activity') }}
 )
+{%- endif %}
 {%- endmacro -%}
 
 {%- macro keyed(carry=()) -%}
 {{ source_ctes(carry) }}, keyed AS (
   /* {% if grain.family == 'day' %}period_key: days since Monday 1970-01-05, a week keyed by its first day, so adjacent periods differ by the step in days{% else %}period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months{% endif %}. */
-  SELECT user_id, activity_date, {{ p.period_key('activity_date') }} AS period_key{% for _column, name in carry %}, {{ name }}{% endfor %}
+  SELECT user_id, activity_date, {{ p.period_key('activity_date') }} AS period_key{% for _column, name in carry %}, {{ name }}{% endfor %}{% if from_days %}, sqlgen_events{% endif %}
   FROM dated
 )
 {%- endmacro -%}
@@ -113,7 +126,7 @@ seen_source AS (
   SELECT
     user_id,
     period_key,
-    COUNT(*) AS events,
+    {% if from_days %}SUM(sqlgen_events){% else %}COUNT(*){% endif %} AS events,
     COUNT(DISTINCT activity_date) AS active_days,
     MIN(activity_date) AS first_active_date,
     MAX(activity_date) AS last_active_date

@@ -1,0 +1,112 @@
+"""`output.materialize: incremental` on DuckDB: refresh.sql against the full computation.
+
+For each history length and batch size: the activity table holds the events before a cut,
+create_all.sql builds the tables (not timed), the events of the batch (the days after the
+cut) are appended, and refresh.sql is timed. Side by side in the same run: the full
+computation (every view computed once: create_all.sql of `materialize: table` over the
+same rows) and a dashboard read (`SELECT * FROM growth_accounting`) of the view and of the
+table. Ratios only; the machine is shared, so absolute times move between runs.
+
+    .venv/bin/python -m bench.incremental --db bench/data/activity_10m.duckdb
+    .venv/bin/python -m bench.incremental --size smoke      # generates the data first
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+import statistics
+import time
+from pathlib import Path
+
+import duckdb
+
+from sqlgen import parse_spec, render_files
+
+from . import data
+
+BATCH_DAYS = (1, 7, 30)
+SPEC = """\
+version: 1
+activity:
+  table: ev
+  user: user_id
+  timestamp: ts
+cohorts: true
+engagement: true
+trailing_windows: [7, 28]
+output:
+  prefix: {prefix}
+  materialize: {materialize}
+  lookback: 3 days
+"""
+
+
+def files(prefix: str, materialize: str) -> dict[str, str]:
+    return render_files(parse_spec(SPEC.format(prefix=prefix, materialize=materialize)))
+
+
+def timed(con, sql: str, reps: int = 1) -> float:
+    """The median seconds of ``reps`` runs."""
+    spent = []
+    for _ in range(reps):
+        start = time.perf_counter()
+        con.execute(sql)
+        spent.append(time.perf_counter() - start)
+    return statistics.median(spent)
+
+
+def case(source: str, since: dt.datetime, cut: dt.datetime, days: int, threads: int) -> dict:
+    """One history (events from ``since`` to ``cut``) and one batch of ``days`` days."""
+    con = duckdb.connect()
+    con.execute(f"SET threads = {threads}")
+    con.execute(f"ATTACH '{source}' AS src (READ_ONLY)")
+    end = cut + dt.timedelta(days=days)
+    con.execute("CREATE TABLE ev AS SELECT user_id, ts FROM src.events "
+                f"WHERE ts >= TIMESTAMP '{since}' AND ts < TIMESTAMP '{cut}'")
+    history = con.execute("SELECT count(*) FROM ev").fetchone()[0]
+    incremental, table, view = files("t_", "incremental"), files("f_", "table"), files("v_", "view")
+    con.execute(view["v_create_all.sql"])
+    con.execute(incremental["t_create_all.sql"])
+    con.execute("INSERT INTO ev SELECT user_id, ts FROM src.events "
+                f"WHERE ts >= TIMESTAMP '{cut}' AND ts < TIMESTAMP '{end}'")
+    batch = con.execute("SELECT count(*) FROM ev").fetchone()[0] - history
+    refresh = timed(con, incremental["t_refresh.sql"])
+    full = timed(con, table["f_create_all.sql"])
+    read_view = timed(con, "SELECT * FROM v_growth_accounting", reps=3)
+    read_table = timed(con, "SELECT * FROM t_growth_accounting", reps=3)
+    same = con.execute("SELECT count(*) FROM (SELECT * FROM t_growth_accounting EXCEPT ALL "
+                       "SELECT * FROM v_growth_accounting)").fetchone()[0]
+    con.close()
+    assert same == 0, "the refreshed table differs from the view"
+    return {"history": history, "batch": batch, "days": days, "refresh": refresh,
+            "full": full, "read_view": read_view, "read_table": read_table}
+
+
+def main(argv: list[str] | None = None) -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--size", default="10m", choices=sorted(data.SIZES))
+    parser.add_argument("--db", type=Path, help="a database made by bench/data.py")
+    parser.add_argument("--data-dir", type=Path, default=Path(__file__).parent / "data")
+    parser.add_argument("--threads", type=int, default=2)
+    args = parser.parse_args(argv)
+    source = args.db or data.generate(data.SIZES[args.size], args.data_dir)
+    with duckdb.connect(str(source), read_only=True) as con:
+        last = con.execute("SELECT max(ts) FROM events").fetchone()[0]
+        first = con.execute("SELECT min(ts) FROM events").fetchone()[0]
+    cut = dt.datetime.combine(last.date(), dt.time()) - dt.timedelta(days=max(BATCH_DAYS) - 1)
+    histories = {"full history": first, "last 6 months": cut - dt.timedelta(days=182)}
+    print("| history | history rows | batch | batch rows | refresh / full | "
+          "table read / view read | refresh s | full s |")
+    print("| --- | --- | --- | --- | --- | --- | --- | --- |")
+    for label, since in histories.items():
+        for days in BATCH_DAYS:
+            r = case(str(source), since, cut, days, args.threads)
+            print(f"| {label} | {r['history']:,} | {days} day{'s' if days > 1 else ''} | "
+                  f"{r['batch']:,} | {r['refresh'] / r['full']:.1%} | "
+                  f"{r['read_table'] / r['read_view']:.2%} | {r['refresh']:.2f} | "
+                  f"{r['full']:.2f} |", flush=True)
+
+
+if __name__ == "__main__":
+    main()

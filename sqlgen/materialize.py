@@ -1,0 +1,94 @@
+"""`output.materialize: incremental`: the per-(user, day) table, the state table and refresh.sql.
+
+create_all.sql creates, for each part of the spec with activity (``Spec.parts``), the
+per-(user, day) table ``<prefix>sqlgen_activity_days`` and the one-row state table
+``<prefix>sqlgen_refresh_state`` before the views' tables, which are computed from the
+per-day table (templates read it in place of the activity table: ``render.reads_days``).
+
+refresh.sql, in one transaction where the target has one, for each part:
+  1. counts the source rows now before from_day that were not there when it was set
+     (late rows older than the lookback: not added, counted in the state table);
+  2. deletes the days from from_day on and inserts them again from the source rows with a
+     timestamp from from_day on (exact and idempotent: those days are complete);
+  3. moves the mark to the newest day and from_day to mark - lookback;
+then computes every table again from the per-day table (and the revenue tables from their
+source: subscription rows change after they are written). Statements are templates in the
+source dialect, bound and rewritten per target like every view.
+"""
+
+from __future__ import annotations
+
+import sqlglot
+from sqlglot import exp
+
+from .dialects import Target
+from .render import bind, render_template
+from .spec import Spec
+
+DAYS = "sqlgen_activity_days"
+STATE = "sqlgen_refresh_state"
+REFRESH = "refresh.sql"
+
+
+def parts_with_days(spec: Spec) -> list[Spec]:
+    """The parts of an incremental spec that keep a per-day table: those with activity."""
+    if spec.output.materialize != "incremental":
+        return []
+    return [part for part in spec.parts() if part.activity is not None]
+
+
+def _statements(name: str, part: Spec, target: Target, **flags) -> list[exp.Expression]:
+    """A template's statements, bound to the part's names and rewritten for the target."""
+    from .compiler import _without_positions, view_table
+    from .dialects import rewrites
+
+    text = render_template(name, part, **flags)
+    trees = []
+    for tree in sqlglot.parse(text, read="duckdb"):
+        if tree is None:
+            continue
+        tree = bind(_without_positions(tree), part, lambda view: view_table(part, view))
+        for rewrite in rewrites(target):
+            tree = rewrite(tree)
+        trees.append(tree)
+    return trees
+
+
+def create_statements(part: Spec, target: Target) -> list[str]:
+    """The per-day and state tables of a part, computed in full (create_all.sql)."""
+    from .compiler import table_statements, view_table
+
+    out: list[str] = []
+    for name, template in ((DAYS, "sqlgen_activity_days.sql"),
+                           (STATE, "sqlgen_refresh_state.sql")):
+        (query,) = _statements(template, part, target, since=False)
+        out += table_statements(view_table(part, name), query, target, f"view {name}")
+    return out
+
+
+def refresh_statements(part: Spec, target: Target) -> list[str]:
+    """Steps 1 to 3 of refresh.sql for a part (see the module's docstring)."""
+    from .compiler import _generate, view_table
+
+    key = "output.materialize"
+    days = view_table(part, DAYS)
+    state = view_table(part, STATE)
+    since = exp.select("from_day").from_(state.copy()).subquery()
+    delete = exp.Delete(this=days.copy(), where=exp.Where(this=exp.GTE(
+        this=exp.column("activity_date"), expression=since)))
+    (query,) = _statements("sqlgen_activity_days.sql", part, target, since=True)
+    insert = exp.Insert(this=days.copy(), expression=query)
+    trees = [*_statements("sqlgen_refresh_steps.sql", part, target, step="late"), delete,
+             insert, *_statements("sqlgen_refresh_steps.sql", part, target, step="mark")]
+    return [_generate(tree, target, key) for tree in trees]
+
+
+def recompute_statements(table: exp.Table, query: exp.Expression, target: Target,
+                         key: str) -> list[str]:
+    """A table's rows computed again: DELETE (WHERE TRUE: BigQuery refuses a DELETE
+    without a WHERE clause), then INSERT of its query."""
+    from .compiler import _generate
+
+    delete = exp.Delete(this=table.copy(), where=exp.Where(this=exp.true()))
+    return [_generate(delete, target, key),
+            _generate(exp.Insert(this=table.copy(), expression=query), target, key)]

@@ -1,0 +1,237 @@
+"""`output.materialize: incremental`: after every refresh.sql the tables equal the views.
+
+The oracle: one engine holds two copies of the activity table. `raw.app_events` gets every
+append batch and is read by the incremental spec (tables, prefix t_); `raw.app_events_kept`
+gets the same batches less the rows the refresh must leave out and count (late rows with
+a timestamp before the state's from_day), and is read by the same spec as views (prefix
+v_). The views are proven against the plain-Python references in the other suites; here,
+after create_all.sql and after each refresh.sql, every table must hold its view's rows,
+row for row. Independently of the engine, plain Python computes from_day (the newest
+counted local date less the lookback, common practice for late-arriving data) and the
+late rows; the state table must agree.
+
+Batches come from hypothesis event logs: late events inside and beyond the lookback (an
+event's batch is its time's batch plus a random delay), duplicates, NULL users and
+timestamps, sentinel dates, users coming back after a gap, empty batches and batches that
+open a new period. Idempotence: a second refresh changes nothing. Interruption: a refresh
+with a failing statement after the per-day table was changed leaves every table and the
+state as they were, and the next refresh is correct.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+
+import pytest
+from conftest import HYPOTHESIS_EXAMPLES, engine_target_pairs
+from harness import FLAT_TARGETS, VIEW_SCHEMA, read_view
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from test_create_all import _run_script
+from test_materialize import comparable
+
+from sqlgen import parse_spec, render_files
+from sqlgen.views import planned
+
+PAIRS = engine_target_pairs(only=("duckdb", "postgres", "sqlite"))
+START = dt.datetime(2024, 1, 1)
+SPAN_DAYS = 75  # three calendar months: batches open new months and weeks
+BATCHES = 5
+VALID = (dt.date(1990, 1, 1), dt.date(2100, 1, 1))  # the default valid range
+COLUMNS = [("user_id", "text"), ("occurred_at", "timestamp"), ("event_name", "text")]
+
+
+def tables_for(target: str) -> tuple[str, str]:
+    if target in FLAT_TARGETS:
+        return "app_events", "app_events_kept"
+    return "raw.app_events", "raw.app_events_kept"
+
+
+def spec_text(target: str, table: str, prefix: str, grain: str, lookback: int,
+              materialize: str) -> str:
+    schema = "" if target in FLAT_TARGETS else f"  schema: {VIEW_SCHEMA}\n"
+    return ("version: 1\nactivity:\n"
+            f"  table: {table}\n  user: user_id\n  timestamp: occurred_at\n"
+            f"grain: {grain}\ncohorts: true\nengagement: true\ntrailing_windows: [3, 7]\n"
+            f"output:\n  dialect: {target}\n{schema}  prefix: {prefix}\n"
+            f"  materialize: {materialize}\n  lookback: {lookback} days\n")
+
+
+def build(target: str, grain: str, lookback: int) -> tuple[dict, dict, list[str]]:
+    """(incremental files, view files, names of the compared views)."""
+    full, kept = tables_for(target)
+    tables = parse_spec(spec_text(target, full, "t_", grain, lookback, "incremental"))
+    views = parse_spec(spec_text(target, kept, "v_", grain, lookback, "view"))
+    names = [view.name for _part, view in planned(views)
+             if view.name != "activity_source_summary"]  # a view in both: it reads the source
+    return render_files(tables), render_files(views), names
+
+
+def counted_day(row) -> dt.date | None:
+    """The local date a row counts on, None when it does not count (no time zone: the
+    timestamp's date; NULL user or timestamp, or outside the valid range: left out)."""
+    user, ts = row[0], row[1]
+    if user is None or ts is None or not VALID[0] <= ts.date() < VALID[1]:
+        return None
+    return ts.date()
+
+
+def expected_from_day(rows, lookback: int) -> dt.date:
+    days = [d for d in map(counted_day, rows) if d is not None]
+    return max(days) - dt.timedelta(days=lookback) if days else VALID[0]
+
+
+def snapshot(engine, target: str, names: list[str]) -> dict:
+    return {name: comparable(read_view(engine, f"t_{name}", target)) for name in names + [
+        "sqlgen_refresh_state", "sqlgen_activity_days"]}
+
+
+def check_tables(engine, target: str, names: list[str]) -> None:
+    for name in names:
+        from_view = read_view(engine, f"v_{name}", target)
+        from_table = read_view(engine, f"t_{name}", target)
+        assert comparable(from_table) == comparable(from_view), name
+
+
+def state(engine, target: str) -> tuple:
+    schema = "" if target in FLAT_TARGETS else f"{VIEW_SCHEMA}."
+    ((from_day, late, before),) = engine.query(
+        f"SELECT from_day, late_rows, rows_before FROM {schema}t_sqlgen_refresh_state",
+        date_columns=[0])
+    return from_day, late, before
+
+
+def append(engine, name: str, rows) -> None:
+    if rows:
+        engine._load(engine.qualified(name), COLUMNS, rows)
+
+
+USERS = st.sampled_from(["a", "b", "c", "d", "e", None])
+NORMAL = st.tuples(USERS, st.integers(0, SPAN_DAYS - 1), st.integers(0, 23),
+                   st.integers(0, 3))  # user, day, hour, delay in batches
+ODD = st.tuples(USERS, st.sampled_from([None, dt.datetime(1, 1, 1), dt.datetime(9999, 12, 31),
+                                        dt.datetime(1989, 12, 31, 23)]),
+                st.integers(0, BATCHES - 1))
+
+
+@st.composite
+def batches(draw):
+    """BATCHES lists of rows: each row in its time's batch plus a delay (late rows)."""
+    out = [[] for _ in range(BATCHES)]
+    for user, day, hour, delay in draw(st.lists(NORMAL, max_size=40)):
+        row = (user, START + dt.timedelta(days=day, hours=hour), "app_opened")
+        batch = min(BATCHES - 1, day * BATCHES // SPAN_DAYS + delay)
+        out[batch] += [row] * draw(st.sampled_from([1, 1, 2]))  # some duplicated
+    for user, ts, batch in draw(st.lists(ODD, max_size=4)):
+        out[batch].append((user, ts, "app_opened"))
+    return out
+
+
+def run_case(engine, target: str, grain: str, lookback: int, parts: list[list],
+             interrupt_at: int | None) -> None:
+    engine.reset()
+    full, kept = tables_for(target)
+    incremental, views, names = build(target, grain, lookback)
+    engine.create_table(full, COLUMNS, parts[0])
+    engine.create_table(kept, COLUMNS, parts[0])
+    _run_script(engine, target, views["v_create_all.sql"])
+    _run_script(engine, target, incremental["t_create_all.sql"])
+    seen, late = list(parts[0]), 0
+    check_tables(engine, target, names)
+    assert state(engine, target)[:2] == (expected_from_day(seen, lookback), 0)
+    for number, batch in enumerate(parts[1:], start=1):
+        from_day = expected_from_day(seen, lookback)
+        lost = [row for row in batch if row[1] is not None and row[1].date() < from_day]
+        append(engine, full, batch)
+        append(engine, kept, [row for row in batch if row not in lost])
+        seen += [row for row in batch if row not in lost]
+        late += len(lost)
+        if number == interrupt_at:
+            before = snapshot(engine, target, names)
+            with pytest.raises(Exception):
+                _run_script(engine, target, broken(incremental["t_refresh.sql"]))
+            assert snapshot(engine, target, names) == before, "a failed refresh changed data"
+        _run_script(engine, target, incremental["t_refresh.sql"])
+        check_tables(engine, target, names)
+        assert state(engine, target)[:2] == (expected_from_day(seen, lookback), late)
+    done = snapshot(engine, target, names)
+    _run_script(engine, target, incremental["t_refresh.sql"])  # again: nothing changes
+    assert snapshot(engine, target, names) == done
+
+
+def broken(script: str) -> str:
+    """refresh.sql with a failing statement after the per-day table's INSERT (inside the
+    transaction, after rows were deleted and inserted)."""
+    marker = "\n-- t_user_activity\n"
+    assert marker in script
+    return script.replace(marker, "\nINSERT INTO sqlgen_no_such_table VALUES (1);\n" + marker, 1)
+
+
+@pytest.mark.engines
+@pytest.mark.parametrize("engine_name,target", PAIRS)
+def test_hand_made_batches(engines, engine_name, target):
+    """A hand-made log: a user back after a month away, a duplicate, a late row inside the
+    lookback and one beyond it, an empty batch, a batch opening a new month, sentinels."""
+    T = dt.datetime
+    parts = [
+        [("a", T(2024, 1, 3, 9), "x"), ("b", T(2024, 1, 20), "x"), ("b", T(2024, 1, 20), "x"),
+         (None, T(2024, 1, 21), "x"), ("c", None, "x")],
+        [("a", T(2024, 1, 30, 8), "x"), ("c", T(2024, 1, 19, 5), "x")],  # c: 11 days late
+        [],
+        [("b", T(2024, 2, 2), "x"), ("a", T(2024, 1, 29, 23), "x"),  # a: 4 days late, inside
+         ("d", T(9999, 12, 31), "x"), ("d", T(1, 1, 1), "x")],
+        [("c", T(2024, 3, 4), "x"), ("a", T(2024, 3, 5), "x")],  # a new month; c back
+    ]
+    run_case(engines(engine_name), target, "month", 7, parts, interrupt_at=3)
+
+
+@pytest.mark.engines
+@pytest.mark.slow
+@pytest.mark.parametrize("engine_name,target", PAIRS)
+def test_random_batches(engines, engine_name, target):
+    engine = engines(engine_name)
+
+    @settings(max_examples=max(2, HYPOTHESIS_EXAMPLES[engine_name] // 4), deadline=None,
+              derandomize=True, suppress_health_check=list(HealthCheck))
+    @given(parts=batches(), grain=st.sampled_from(["day", "week", "month"]),
+           lookback=st.sampled_from([0, 2, 9]), interrupt=st.integers(1, BATCHES))
+    def case(parts, grain, lookback, interrupt):
+        run_case(engine, target, grain, lookback, parts, interrupt_at=interrupt)
+
+    case()
+
+
+@pytest.mark.engines
+@pytest.mark.parametrize("engine_name,target", PAIRS)
+def test_revenue_tables_follow_their_source(engines, engine_name, target):
+    """Revenue tables are computed again in full by each refresh (their rows are not
+    append-only): after new charges, and after an old charge changes, they equal the views."""
+    from decimal import Decimal
+
+    from harness import revenue_table
+
+    engine = engines(engine_name)
+    engine.reset()
+    charges = revenue_table(target, "charges")
+    columns = [("account_id", "text"), ("charged_at", "timestamp"), ("amount", "decimal(12,2)")]
+    T = dt.datetime
+    engine.create_table(charges, columns, [("a", T(2024, 1, 3), Decimal("10.00")),
+                                           ("b", T(2024, 2, 3), Decimal("4.00"))])
+    full, _kept = tables_for(target)
+    engine.create_table(full, COLUMNS, [("a", T(2024, 1, 3), "x")])
+    revenue = (f"revenue:\n  table: {charges}\n  customer: account_id\n"
+               "  timestamp: charged_at\n  amount: amount\n")
+    made = {}
+    for prefix, mode in (("t_", "incremental"), ("v_", "view")):
+        text = spec_text(target, full, prefix, "month", 3, mode) + revenue
+        made[prefix] = render_files(parse_spec(text))
+        _run_script(engine, target, made[prefix][f"{prefix}create_all.sql"])
+    names = ("customer_revenue", "revenue_accounting", "revenue_cohorts",
+             "revenue_source_summary")
+    engine._load(engine.qualified(charges), columns, [("a", T(2024, 3, 9), Decimal("12.00"))])
+    engine.execute([f"UPDATE {engine.qualified(charges)} SET amount = 6 WHERE account_id = 'b'"])
+    _run_script(engine, target, made["t_"]["t_refresh.sql"])
+    for name in names:
+        from_table = read_view(engine, f"t_{name}", target)
+        assert from_table, name
+        assert comparable(from_table) == comparable(read_view(engine, f"v_{name}", target)), name
