@@ -766,13 +766,12 @@ def _spark_session():
                    .config('spark.ui.enabled', 'false')
                    .config('spark.ui.showConsoleProgress', 'false')
                    .config('spark.sql.shuffle.partitions', '1')
-                   # Test tables hold a few hundred rows: planning and code generation cost
-                   # more than the work, so adaptive execution and generated code are off
-                   # (SPARK_DEFAULTS). Results do not depend on them; one test
-                   # (test_views.test_spark_default_settings) runs with Spark's defaults.
+                   # Test tables hold a few hundred rows: adaptive execution's re-planning
+                   # costs more than the work, so it is off (SPARK_DEFAULTS). Results do not
+                   # depend on it; one test (test_views.test_spark_default_settings) runs
+                   # with Spark's defaults. (Interpreted expressions, factoryMode
+                   # NO_CODEGEN, were faster still but break the catalog's listTables.)
                    .config('spark.sql.adaptive.enabled', 'false')
-                   .config('spark.sql.codegen.wholeStage', 'false')
-                   .config('spark.sql.codegen.factoryMode', 'NO_CODEGEN')
                    .config('spark.driver.memory', '2g')
                    .getOrCreate())
         session.sparkContext.setLogLevel('ERROR')
@@ -785,9 +784,7 @@ def _spark_session():
 
 # Spark's own defaults of the settings the test session changes (restored by
 # SparkEngine.default_settings).
-SPARK_DEFAULTS = {'spark.sql.adaptive.enabled': 'true',
-                       'spark.sql.codegen.wholeStage': 'true',
-                       'spark.sql.codegen.factoryMode': 'FALLBACK'}
+SPARK_DEFAULTS = {'spark.sql.adaptive.enabled': 'true'}
 
 
 def _spark_log_config(tmp: str) -> str:
@@ -886,7 +883,7 @@ class SparkEngine(Engine):
 
     @contextlib.contextmanager
     def default_settings(self):
-        """Run the block with Spark's default adaptive execution and code generation."""
+        """Run the block with Spark's default adaptive execution."""
         conf = self._spark.conf
         saved = {key: conf.get(key) for key in SPARK_DEFAULTS}
         for key, value in SPARK_DEFAULTS.items():

@@ -87,8 +87,7 @@ def test_fixture_matches_reference(engines, engine_name, target, fixture, grain,
 
 @pytest.mark.parametrize("engine_name,target", engine_target_pairs(only=("spark",)))
 def test_spark_default_settings(engines, engine_name, target):
-    """The suite's Spark session turns adaptive execution and code generation off (small
-    tables); the same views give the same rows with Spark's defaults (the calendar-edge
+    """The suite's Spark session turns adaptive execution off (small tables); the same views give the same rows with Spark's defaults (the calendar-edge
     fixture at day grain: the most periods)."""
     engine = engines(engine_name)
     raw = ref.read_fixture_events(ref.FIXTURES_DIR / "calendar_edges" / "events.csv")
