@@ -14,8 +14,12 @@ from __future__ import annotations
 
 from . import __version__
 from .comments import comment_text
+from sqlglot import exp
+
+from . import names
 from .compiler import _generate, compile_query
-from .dialects import TARGETS
+from .dialects import NO_CATALOG, TARGETS, Target, catalog_rows, rewrites
+from .render import parse, render_template
 from .spec import Spec
 from .views import View
 
@@ -33,9 +37,79 @@ CHECKS = View(
 FILE_NAME = "sqlgen_checks.sql"
 
 
+CATALOG_CHECKS = View(
+    "sqlgen_catalog_checks",
+    "One row per column whose type the spec declares that the catalog does not list, or "
+    "lists with another type; no row when all are as declared.",
+    (("checked_section", "activity, activity.first_seen or revenue"),
+     ("broken_assumption", "missing_column_<key> (no such column or table) or "
+                           "column_type_<key> (listed with another type)"),
+     ("found_type", "the type as the catalog spells it (NULL when not listed)")),
+)
+
+
+def declared_columns(spec: Spec) -> list[tuple[str, str, exp.Table, str, str, int | None]]:
+    """(section, key, table, column, kind, scale) of every column whose type the spec
+    declares: timestamps by their section's timestamp_type, the amount as a DECIMAL."""
+    out = []
+    source = spec.activity
+    if source is not None:
+        out.append(("activity", "timestamp", source.table, source.timestamp,
+                    source.timestamp_type, None))
+        seen = source.first_seen
+        if seen is not None:
+            out.append(("activity.first_seen", "timestamp", seen.table, seen.timestamp,
+                        seen.timestamp_type, None))
+    revenue = spec.revenue
+    if revenue is not None:
+        for key in ("timestamp", "start", "end"):
+            if getattr(revenue, key):
+                out.append(("revenue", key, revenue.table, getattr(revenue, key),
+                            revenue.timestamp_type, None))
+        out.append(("revenue", "amount", revenue.table, revenue.amount, "decimal",
+                    revenue.scale))
+    return [(section, key, names.table(table), names.column(column).name, kind, scale)
+            for section, key, table, column, kind, scale in out]
+
+
+def catalog_query(spec: Spec, target: Target) -> tuple[str | None, list[str]]:
+    """The catalog statement for the target (None when it reads no catalog) and the
+    declared columns it cannot check there, with the reason."""
+    declared = declared_columns(spec)
+    if target.name in NO_CATALOG or not declared:
+        return None, ([f"no catalog check on {target.name}: {NO_CATALOG[target.name]}"]
+                      if declared else [])
+    rows, skipped = {}, []
+    for section, key, table, column, kind, scale in declared:
+        found = catalog_rows(target, table, column, kind, scale)
+        if found is None:
+            skipped.append(f"{section}.{key}: no catalog check (BigQuery's catalog is per "
+                           "dataset: qualify the table)")
+        else:
+            rows[f"__catalog_{section.replace('.', '_')}_{key}__"] = found
+    if not rows:
+        return None, skipped
+    checked = [(section, key, kind) for section, key, _t, _c, kind, _s in declared
+               if f"__catalog_{section.replace('.', '_')}_{key}__" in rows]
+    tree = parse(render_template(CATALOG_CHECKS.template, spec, columns=checked))
+
+    def catalog(node: exp.Expression) -> exp.Expression:
+        if isinstance(node, exp.Table) and node.name in rows:
+            return rows[node.name].copy()
+        return node
+
+    tree = tree.transform(catalog, copy=False)
+    for rewrite in rewrites(target):
+        tree = rewrite(tree)
+    return _generate(tree, target, "sqlgen_checks"), skipped
+
+
 def checks_sql(spec: Spec, target_name: str | None = None) -> str:
-    """The text of the read-only checks query for ``target_name`` (default: the spec's)."""
+    """The text of the read-only checks file for ``target_name`` (default: the spec's):
+    the catalog statement first (where the target has a catalog), then the data
+    statement."""
     target = TARGETS[target_name or spec.output.dialect]
+    catalog, skipped = catalog_query(spec, target)
     query = _generate(compile_query(CHECKS, spec, target), target, "sqlgen_checks")
     lines = [f"-- sqlgen {__version__}: run-time checks for {comment_text(spec.file)} "
              f"(spec {spec.digest()}), target {target.name}.",
@@ -43,7 +117,13 @@ def checks_sql(spec: Spec, target_name: str | None = None) -> str:
              "is an assumption of the spec the data breaks now (alert on any row).",
              "-- Management metrics, not audited figures: a row here means some views "
              "leave rows out."]
-    return "\n".join(lines) + "\n" + query.rstrip() + ";\n"
+    if catalog is not None:
+        lines.append("-- Two statements. The first reads only the catalog: a column missing "
+                     "or of another type than declared. When it returns a row, the second "
+                     "(the data) may stop with the engine's own error.")
+    lines += [f"-- {comment_text(line)}" for line in skipped]
+    body = ([catalog.rstrip() + ";"] if catalog is not None else []) + [query.rstrip() + ";"]
+    return "\n".join(lines) + "\n" + "\n\n".join(body) + "\n"
 
 
 def write_checks(spec: Spec, path: str, target_name: str | None = None) -> str:

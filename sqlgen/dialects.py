@@ -530,6 +530,112 @@ TARGETS: dict[str, Target] = {
 }
 
 
+# ---------------------------------------------------------------- catalog checks
+
+# How each target's catalog (information_schema.columns, or its own) spells the types a
+# spec declares, for sqlgen_catalog_checks.sql: per kind, a condition in the source dialect
+# over {t} (the catalog's data_type, lower case) and {s} (its numeric_scale), {scale} being
+# the declared scale. A kind a target does not list is never accepted there. From each
+# engine's documentation of its catalog, and executed on DuckDB, PostgreSQL, MariaDB and
+# ClickHouse in tests/test_checks.py.
+_DECIMAL = "{t} = 'numeric' AND {s} = {scale}"
+CATALOG_TYPES: dict[str, dict[str, str]] = {
+    "duckdb": {"timestamp": "{t} IN ('timestamp', 'timestamp_s', 'timestamp_ms', 'timestamp_ns')",
+               "timestamptz": "{t} = 'timestamp with time zone'", "date": "{t} = 'date'",
+               "decimal": "{t} LIKE 'decimal(%' AND {s} = {scale}"},
+    "postgres": {"timestamp": "{t} = 'timestamp without time zone'",
+                 "timestamptz": "{t} = 'timestamp with time zone'", "date": "{t} = 'date'",
+                 "decimal": _DECIMAL},
+    # ClickHouse: DateTime or DateTime64, Nullable or not; a time zone parameter (quoted)
+    # makes it an instant.
+    "clickhouse": {
+        "timestamp": "({t} LIKE 'datetime%' OR {t} LIKE 'nullable(datetime%') AND {t} NOT LIKE '%''%'",
+        "timestamptz": "({t} LIKE 'datetime%' OR {t} LIKE 'nullable(datetime%') AND {t} LIKE '%''%'",
+        "date": "{t} IN ('date', 'date32', 'nullable(date)', 'nullable(date32)')",
+        "decimal": "{t} LIKE '%decimal(%' AND {s} = {scale}"},
+    # MySQL's TIMESTAMP is an instant, its DATETIME a wall-clock time (see column_types).
+    "mysql": {"timestamp": "{t} = 'datetime'", "timestamptz": "{t} = 'timestamp'",
+              "date": "{t} = 'date'", "decimal": "{t} = 'decimal' AND {s} = {scale}"},
+    "bigquery": {"timestamp": "{t} = 'datetime'", "timestamptz": "{t} = 'timestamp'",
+                 "date": "{t} = 'date'",
+                 # no numeric_scale: NUMERIC(P, S) or the bare types' scales (9 and 38)
+                 "decimal": "{t} LIKE '%numeric(%, {scale})' OR ({t} = 'numeric' AND {scale} = 9)"
+                            " OR ({t} = 'bignumeric' AND {scale} = 38)"},
+    "snowflake": {"timestamp": "{t} = 'timestamp_ntz'",
+                  "timestamptz": "{t} IN ('timestamp_tz', 'timestamp_ltz')",
+                  "date": "{t} = 'date'", "decimal": "{t} = 'number' AND {s} = {scale}"},
+    "redshift": {"timestamp": "{t} = 'timestamp without time zone'",
+                 "timestamptz": "{t} = 'timestamp with time zone'", "date": "{t} = 'date'",
+                 "decimal": _DECIMAL},
+    # Trino lists no numeric_scale: decimal(P,S) carries it.
+    "trino": {"timestamp": "{t} LIKE 'timestamp%' AND {t} NOT LIKE '%with time zone'",
+              "timestamptz": "{t} LIKE 'timestamp%with time zone'", "date": "{t} = 'date'",
+              "decimal": "{t} LIKE 'decimal(%,{scale})'"},
+    "tsql": {"timestamp": "{t} IN ('datetime2', 'datetime', 'smalldatetime')",
+             "timestamptz": "{t} = 'datetimeoffset'", "date": "{t} = 'date'",
+             "decimal": "{t} IN ('decimal', 'numeric') AND {s} = {scale}"},
+    "databricks": {"timestamp": "{t} = 'timestamp_ntz'", "timestamptz": "{t} = 'timestamp'",
+                   "date": "{t} = 'date'", "decimal": "{t} = 'decimal' AND {s} = {scale}"},
+}
+# Why a target has no catalog check (the other checks still run there).
+NO_CATALOG = {
+    "spark": "Spark has no information_schema; DESCRIBE TABLE lists the types (in ANSI mode "
+             "a value of another type stops the views with Spark's own error)",
+    "sqlite": "SQLite keeps each value's own type whatever the column's: the wrong_type_ "
+              "rows count the values instead",
+}
+# The current schema's name where sqlglot does not spell it for the target.
+_CURRENT_SCHEMA = {"clickhouse": "currentDatabase()", "trino": "current_schema"}
+# Where the catalog is per database: information_schema under the table's own catalog part
+# (BigQuery's is per dataset, so it needs a qualified table).
+_CATALOG_PER_DATABASE = ("snowflake", "trino", "tsql")
+
+
+def catalog_rows(target: Target, table: exp.Table, column: str, kind: str,
+                 scale: int | None) -> exp.Subquery | None:
+    """The catalog's rows for one column of a table, as (sqlgen_found_type,
+    sqlgen_accepted): its type as the catalog spells it, and 1 when that is of ``kind``
+    (a DECIMAL of ``scale`` for kind decimal), else 0. None where the target has no catalog
+    to read (NO_CATALOG), or BigQuery's for a table without a dataset."""
+    import sqlglot
+
+    spelling = CATALOG_TYPES.get(target.name)
+    if spelling is None or (target.name == "bigquery" and not table.db):
+        return None
+    condition = spelling[kind].format(t="LOWER(data_type)", s="numeric_scale",
+                                      scale=int(scale or 0))
+    accepted = sqlglot.parse_one(f"CASE WHEN {condition} THEN 1 ELSE 0 END",
+                                 read=SOURCE_DIALECT)
+    if target.name == "bigquery":  # [project.]dataset.`INFORMATION_SCHEMA.COLUMNS`
+        relation = exp.Table(this=exp.Identifier(this="INFORMATION_SCHEMA.COLUMNS", quoted=True),
+                             db=table.args["db"].copy(),
+                             catalog=table.args["catalog"].copy() if table.catalog else None)
+    else:
+        outer = table.catalog if target.name in _CATALOG_PER_DATABASE else ""
+        relation = exp.Table(this=exp.to_identifier("columns"),
+                             db=exp.to_identifier("information_schema"),
+                             catalog=table.args["catalog"].copy() if outer else None)
+
+    def same(name: str, value: exp.Expression) -> exp.Expression:
+        return exp.EQ(this=exp.Lower(this=exp.column(name)), expression=value)
+
+    def text(value: str) -> exp.Expression:
+        return exp.Literal.string(value.lower())
+
+    matches = [same("table_name", text(table.name)), same("column_name", text(column))]
+    if target.name != "bigquery":
+        schema = (text(table.db) if table.db else exp.Lower(this=(
+            sqlglot.parse_one(_CURRENT_SCHEMA[target.name], read=SOURCE_DIALECT)
+            if target.name in _CURRENT_SCHEMA else exp.CurrentSchema())))
+        matches.insert(0, same("table_schema", schema))
+    if target.name == "duckdb" and table.catalog:
+        matches.insert(0, same("table_catalog", text(table.catalog)))
+    select = (exp.select(exp.alias_(exp.column("data_type"), "sqlgen_found_type"),
+                         exp.alias_(accepted, "sqlgen_accepted"))
+              .from_(relation).where(exp.and_(*matches)))
+    return select.subquery("sqlgen_catalog")
+
+
 def target_names() -> list[str]:
     return list(TARGETS)
 

@@ -7,12 +7,14 @@ like code: it should touch exactly the files the change predicts.
 
 from __future__ import annotations
 
+import functools
 from pathlib import Path
 
 import pytest
 import sqlglot
 
 from sqlgen import parse_spec, render_files
+from sqlgen.compiler import render_targets
 from sqlgen.errors import UnsupportedError
 from sqlgen.dialects import TARGETS
 
@@ -130,20 +132,42 @@ def flatten(text: str) -> str:
 
 
 def generated(target: str, label: str) -> dict[str, str]:
+    """The files of one golden spec for one target. Each spec is compiled once for every
+    target that takes it (``render_targets`` parses each view once for all of them, as
+    `sqlgen build --dialect all` does); SQLite gets its flattened copy of the spec."""
+    return _compiled(label, target == "sqlite")[target]
+
+
+@functools.lru_cache(maxsize=None)
+def _compiled(label: str, flat: bool) -> dict[str, dict[str, str]]:
     text, (grain, week_start) = SPECS[label]
-    if target == "sqlite":
+    if flat:
         text = flatten(text)
     spec = parse_spec(text.format(grain=grain, week_start=week_start), "golden.yml")
-    return render_files(spec, target)
+    names = ["sqlite"] if flat else [t for t in TARGETS if t != "sqlite"]
+    return render_targets(spec, [t for t in names if not refused(t, label)])
 
 
-@pytest.mark.parametrize("label", SPECS)
+def refused_by(target: str, label: str) -> None:
+    """Compile the spec for a target that refuses it (raises its UnsupportedError)."""
+    text, (grain, week_start) = SPECS[label]
+    spec = parse_spec(text.format(grain=grain, week_start=week_start), "golden.yml")
+    render_files(spec, target)
+
+
+def _one_worker_per_spec(label: str):
+    """Keep every target of one spec on one xdist worker, so it is compiled once."""
+    return pytest.mark.xdist_group(f"golden-{label}")
+
+
+@pytest.mark.parametrize("label", [pytest.param(label, marks=_one_worker_per_spec(label))
+                                   for label in SPECS])
 @pytest.mark.parametrize("target", TARGETS)
 def test_golden(target, label, request):
     folder = GOLDEN / target / label
     if refused(target, label):
         with pytest.raises(UnsupportedError, match="output.materialize"):
-            generated(target, label)
+            refused_by(target, label)
         assert not folder.exists()
         return
     files = generated(target, label)
@@ -159,14 +183,32 @@ def test_golden(target, label, request):
     for name, text in files.items():
         assert (folder / name).read_text(encoding="utf-8") == text, (
             f"{folder / name} differs; run pytest --update-golden and review the diff")
+    # Every statement reads back in its own dialect (sqlglot's parser for that dialect).
+    dialect = TARGETS[target].sqlglot_dialect
+    for name, text in files.items():
+        for statement in sqlglot.parse(text, read=dialect):
+            assert statement is not None, f"{folder / name}: an empty statement"
+
+
+# The run-time checks file (sqlgen checks): both statements, first-seen and revenue columns.
+CHECKS_SPEC = DEFINITIONS_SPEC.replace("definitions:\n  purchasers:\n    where: \"event_name = "
+                                       "'purchase'\"\n", "") + (
+    "revenue:\n  table: billing.invoice_lines\n  customer: account_id\n"
+    "  timestamp: invoiced_at\n  amount: amount\n")
 
 
 @pytest.mark.parametrize("target", TARGETS)
-def test_every_statement_reparses_in_its_dialect(target):
-    dialect = TARGETS[target].sqlglot_dialect
-    for label in SPECS:
-        if refused(target, label):
-            continue
-        for name, text in generated(target, label).items():
-            for statement in sqlglot.parse(text, read=dialect):
-                assert statement is not None
+def test_golden_checks(target, request):
+    from sqlgen.checks import FILE_NAME, checks_sql
+
+    text = CHECKS_SPEC if target != "sqlite" else flatten(CHECKS_SPEC)
+    spec = parse_spec(text.format(grain="month", week_start="monday"), "golden.yml")
+    made = checks_sql(spec, target)
+    path = GOLDEN / target / "checks" / FILE_NAME
+    if request.config.getoption("--update-golden"):
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_text(made, encoding="utf-8")
+    assert path.read_text(encoding="utf-8") == made, (
+        f"{path} differs; run pytest --update-golden and review the diff")
+    for statement in sqlglot.parse(made, read=TARGETS[target].sqlglot_dialect):
+        assert statement is not None
