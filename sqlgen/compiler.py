@@ -177,10 +177,14 @@ def materialized(view: View, spec: Spec) -> bool:
 def refresh_statements(view: View, spec: Spec, target: Target) -> tuple[str, ...]:
     """refresh.sql's statements for one view's table: its rows computed again (none for
     a view)."""
-    from .materialize import recompute_statements
+    from .materialize import per_period, period_statements, recompute_statements
 
     if spec.output.materialize != "incremental" or not materialized(view, spec):
         return ()
+    key = f"view {view.name}"
+    if per_period(view.name, spec):
+        return tuple(_generate(tree, target, key)
+                     for tree in period_statements(view.name, view.template, spec, target))
     query = compile_query(view, spec, target)
     return tuple(recompute_statements(view_table(spec, view.name), query, target,
                                       f"view {view.name}"))

@@ -26,6 +26,7 @@ from .render import bind, render_template
 from .spec import Spec
 
 DAYS = "sqlgen_activity_days"
+FIRST = "sqlgen_first_days"
 STATE = "sqlgen_refresh_state"
 REFRESH = "refresh.sql"
 
@@ -60,6 +61,7 @@ def create_statements(part: Spec, target: Target) -> list[str]:
 
     out: list[str] = []
     for name, template in ((DAYS, "sqlgen_activity_days.sql"),
+                           (FIRST, "sqlgen_first_days.sql"),
                            (STATE, "sqlgen_refresh_state.sql")):
         (query,) = _statements(template, part, target, since=False)
         out += table_statements(view_table(part, name), query, target, f"view {name}")
@@ -79,7 +81,8 @@ def refresh_statements(part: Spec, target: Target) -> list[str]:
     (query,) = _statements("sqlgen_activity_days.sql", part, target, since=True)
     insert = exp.Insert(this=days.copy(), expression=query)
     trees = [*_statements("sqlgen_refresh_steps.sql", part, target, step="late"), delete,
-             insert, *_statements("sqlgen_refresh_steps.sql", part, target, step="mark")]
+             insert, *_statements("sqlgen_refresh_steps.sql", part, target, step="mark"),
+             *_statements("sqlgen_refresh_steps.sql", part, target, step="first")]
     return [_generate(tree, target, key) for tree in trees]
 
 
@@ -92,3 +95,31 @@ def recompute_statements(table: exp.Table, query: exp.Expression, target: Target
     delete = exp.Delete(this=table.copy(), where=exp.Where(this=exp.true()))
     return [_generate(delete, target, key),
             _generate(exp.Insert(this=table.copy(), expression=query), target, key)]
+
+
+# The tables refresh.sql computes again from the first changed period on, not in full:
+# view name -> (the column holding a row's period key, its unit: 'period' of the grain, or
+# 'day' for a day number). Their templates take `refresh` (see _activity.sql).
+PER_PERIOD = {
+    "growth_accounting": ("period_key", "period"),
+}
+
+
+def per_period(view_name: str, part: Spec) -> bool:
+    """Whether refresh.sql computes a view's table again only from the first changed period
+    on. Not with activity.first_seen: a users table that changes can change any period."""
+    return (view_name in PER_PERIOD and part.activity is not None
+            and part.activity.first_seen is None)
+
+
+def period_statements(view_name: str, template: str, part: Spec,
+                      target: Target) -> list[exp.Expression]:
+    """A table's rows from the first changed period on: DELETE, then INSERT of the view's
+    own template rendered with `refresh` (it reads only the days it needs)."""
+    column, unit = PER_PERIOD[view_name]
+    (delete,) = _statements("sqlgen_refresh_steps.sql", part, target, step="delete",
+                            table=view_name, column=column, unit=unit)
+    (query,) = _statements(template, part, target, from_days=True, refresh=True)
+    from .compiler import view_table
+
+    return [delete, exp.Insert(this=view_table(part, view_name), expression=query)]

@@ -81,9 +81,35 @@ def expected_from_day(rows, lookback: int) -> dt.date:
     return max(days) - dt.timedelta(days=lookback) if days else VALID[0]
 
 
-def snapshot(engine, target: str, names: list[str]) -> dict:
-    return {name: comparable(read_view(engine, f"t_{name}", target)) for name in names + [
-        "sqlgen_refresh_state", "sqlgen_activity_days"]}
+def snapshot(engine, target: str, names: list[str], read_from: bool = True) -> dict:
+    """Every table's rows; without read_from, the state less that column (the day a
+    refresh read from: a second refresh reads from the newer from_day, by design)."""
+    out = {}
+    for name in names + ["sqlgen_refresh_state", "sqlgen_activity_days", "sqlgen_first_days"]:
+        rows = read_view(engine, f"t_{name}", target)
+        if not read_from and name == "sqlgen_refresh_state":
+            rows = [{k: v for k, v in row.items() if k != "read_from"} for row in rows]
+        out[name] = comparable(rows)
+    return out
+
+
+def as_date(value) -> dt.date:
+    if isinstance(value, str):
+        return dt.date.fromisoformat(value[:10])
+    return value.date() if isinstance(value, dt.datetime) else value
+
+
+def check_first_days(engine, target: str, rows) -> None:
+    """The per-user first active dates refresh.sql keeps, against plain Python over the
+    rows the views count."""
+    expected: dict = {}
+    for row in rows:
+        day = counted_day(row)
+        if day is not None:
+            expected[row[0]] = min(day, expected.get(row[0], day))
+    found = {r["user_id"]: as_date(r["first_date"])
+             for r in read_view(engine, "t_sqlgen_first_days", target)}
+    assert found == expected
 
 
 def check_tables(engine, target: str, names: list[str]) -> None:
@@ -138,6 +164,7 @@ def run_case(engine, target: str, grain: str, lookback: int, parts: list[list],
     _run_script(engine, target, incremental["t_create_all.sql"])
     seen, late = list(parts[0]), 0
     check_tables(engine, target, names)
+    check_first_days(engine, target, seen)
     assert state(engine, target)[:2] == (expected_from_day(seen, lookback), 0)
     for number, batch in enumerate(parts[1:], start=1):
         from_day = expected_from_day(seen, lookback)
@@ -153,10 +180,12 @@ def run_case(engine, target: str, grain: str, lookback: int, parts: list[list],
             assert snapshot(engine, target, names) == before, "a failed refresh changed data"
         _run_script(engine, target, incremental["t_refresh.sql"])
         check_tables(engine, target, names)
+        check_first_days(engine, target, seen)
         assert state(engine, target)[:2] == (expected_from_day(seen, lookback), late)
-    done = snapshot(engine, target, names)
+    done = snapshot(engine, target, names, read_from=False)
     _run_script(engine, target, incremental["t_refresh.sql"])  # again: nothing changes
-    assert snapshot(engine, target, names) == done
+    assert snapshot(engine, target, names, read_from=False) == done
+    check_tables(engine, target, names)
 
 
 def broken(script: str) -> str:

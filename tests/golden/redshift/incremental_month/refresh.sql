@@ -101,6 +101,10 @@ GROUP BY
   user_id,
   activity_date;
 
+UPDATE "growth".sqlgen_refresh_state SET read_from = from_day
+WHERE
+  TRUE;
+
 UPDATE "growth".sqlgen_refresh_state SET mark_day = COALESCE(
   (
     SELECT
@@ -140,6 +144,31 @@ WHERE
 UPDATE "growth".sqlgen_refresh_state SET from_day = COALESCE(CAST(DATEADD(DAY, -7, mark_day) AS DATE), CAST('1990-01-01' AS DATE))
 WHERE
   TRUE;
+
+DELETE FROM "growth".sqlgen_first_days
+WHERE
+  first_date >= (
+    SELECT
+      read_from
+    FROM "growth".sqlgen_refresh_state
+  );
+
+INSERT INTO "growth".sqlgen_first_days
+SELECT
+  d.user_id,
+  MIN(d.activity_date) AS first_date
+FROM "growth".sqlgen_activity_days AS d
+LEFT JOIN "growth".sqlgen_first_days AS k
+  ON k.user_id = d.user_id
+WHERE
+  d.activity_date >= (
+    SELECT
+      read_from
+    FROM "growth".sqlgen_refresh_state
+  )
+  AND k.user_id IS NULL
+GROUP BY
+  d.user_id;
 
 -- user_activity
 DELETE FROM "growth".user_activity
@@ -272,16 +301,45 @@ FROM lapsed;
 -- growth_accounting
 DELETE FROM "growth".growth_accounting
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+      )
+    FROM "growth".sqlgen_refresh_state
+  );
 
 INSERT INTO "growth".growth_accounting
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM "growth".sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM "growth".sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the period before the changed one on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM "growth".sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(DATEADD(MONTH, changed_key - 1 - 23640, CAST('1970-01-01' AS DATE)) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -292,8 +350,8 @@ WITH dated AS (
     ) AS period_key,
     sqlgen_events
   FROM dated
-), active_periods AS (
-  /* One row per user and active period (the one grouping of the events), with the last active date. */
+), grouped_periods AS (
+  /* One row per user and active period read, with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -302,12 +360,27 @@ WITH dated AS (
   GROUP BY
     user_id,
     period_key
+), active_periods AS (
+  /* Each active (user, period) read, with first_key: the period of the user's first active date (earlier periods are not read). */
+  SELECT
+    g.user_id,
+    g.period_key,
+    g.last_date,
+    (
+      EXTRACT(YEAR FROM f.first_date) * 12 + EXTRACT(MONTH FROM f.first_date) - 1
+    ) AS first_key
+  FROM grouped_periods AS g
+  JOIN "growth".sqlgen_first_days AS f
+    ON f.user_id = g.user_id
 ), sequenced AS (
-  /* Each active (user, period) with the previous active period of the user (NULL: the first). */
+  /* Each active (user, period) with the previous active period of the user (NULL: the first); with none read, the first active period when earlier. */
   SELECT
     period_key,
     last_date,
-    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
+    COALESCE(
+      LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key),
+      CASE WHEN first_key < period_key THEN first_key END
+    ) AS prior_key
   FROM active_periods
 ), tallies AS (
   /* Per period: actives. new (no earlier period), retained (the period before), resurrected (an earlier one). */
@@ -322,9 +395,17 @@ WITH dated AS (
   GROUP BY
     period_key
 ), data_range AS (
-  /* The first and last period with data, and the last active date. */
+  /* The first period of the calendar (the one before the changed period, or the first with data when later), the last period with data, and the last active date. */
   SELECT
-    MIN(tally_key) AS first_key,
+    (
+      SELECT
+        CASE
+          WHEN data_first_key > changed_key - 1
+          THEN data_first_key
+          ELSE changed_key - 1
+        END
+      FROM refresh_bounds
+    ) AS first_key,
     MAX(tally_key) AS last_key,
     MAX(through_tally) AS data_through
   FROM tallies
@@ -440,7 +521,14 @@ SELECT
   CAST(churned_count AS DOUBLE PRECISION) / NULLIF(previous_count, 0) AS churn_rate,
   status AS period_status,
   calendar_key AS period_key
-FROM balanced;
+FROM balanced
+/* Only the periods from the changed one on: refresh.sql deleted them. */
+WHERE
+  calendar_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  );
 
 -- revenue_source_summary
 DELETE FROM "growth".revenue_source_summary
