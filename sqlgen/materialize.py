@@ -101,7 +101,11 @@ def recompute_statements(table: exp.Table, query: exp.Expression, target: Target
 # view name -> (the column holding a row's period key, its unit: 'period' of the grain, or
 # 'day' for a day number). Their templates take `refresh` (see _activity.sql).
 PER_PERIOD = {
+    "user_activity": ("period_key", "period"),
     "growth_accounting": ("period_key", "period"),
+    "user_states": ("period_key", "period"),
+    "engagement_depth": ("period_key", "period"),
+    "cohort_retention": ("period_key", "period"),
 }
 
 

@@ -170,16 +170,45 @@ GROUP BY
 -- user_activity
 DELETE FROM "growth".user_activity
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+      )
+    FROM "growth".sqlgen_refresh_state
+  );
 
 INSERT INTO "growth".user_activity
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM "growth".sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM "growth".sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the changed period on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM "growth".sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(DATE_ADD('MONTH', CAST(changed_key - 23640 AS BIGINT), CAST('1970-01-01' AS DATE)) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -213,21 +242,56 @@ SELECT
   active_days,
   first_active_date,
   last_active_date
-FROM user_periods;
+FROM user_periods
+WHERE
+  period_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  );
 
 -- user_states
 DELETE FROM "growth".user_states
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+      )
+    FROM "growth".sqlgen_refresh_state
+  );
 
 INSERT INTO "growth".user_states
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM "growth".sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM "growth".sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the period before the changed one on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM "growth".sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(DATE_ADD('MONTH', CAST(changed_key - 1 - 23640 AS BIGINT), CAST('1970-01-01' AS DATE)) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -238,8 +302,8 @@ WITH dated AS (
     ) AS period_key,
     sqlgen_events
   FROM dated
-), active_periods AS (
-  /* One row per user and active period (the one grouping of the events), with the last active date. */
+), grouped_periods AS (
+  /* One row per user and active period read, with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -248,12 +312,27 @@ WITH dated AS (
   GROUP BY
     user_id,
     period_key
+), active_periods AS (
+  /* Each active (user, period) read, with first_key: the period of the user's first active date (earlier periods are not read). */
+  SELECT
+    g.user_id,
+    g.period_key,
+    g.last_date,
+    (
+      EXTRACT(YEAR FROM f.first_date) * 12 + EXTRACT(MONTH FROM f.first_date) - 1
+    ) AS first_key
+  FROM grouped_periods AS g
+  JOIN "growth".sqlgen_first_days AS f
+    ON f.user_id = g.user_id
 ), sequenced AS (
-  /* Each active (user, period) with the previous and next active periods of the user. */
+  /* Each active (user, period) with the previous and next active periods of the user (with no previous one read, the first active period when earlier). */
   SELECT
     user_id,
     period_key,
-    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key,
+    COALESCE(
+      LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key),
+      CASE WHEN first_key < period_key THEN first_key END
+    ) AS prior_key,
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS later_key
   FROM active_periods
 ), data_range AS (
@@ -287,13 +366,25 @@ SELECT
     ELSE 'resurrected'
   END AS state
 FROM sequenced
+WHERE
+  period_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  )
 UNION ALL
 SELECT
   user_id,
   lapse_key AS period_key,
   CAST(DATE_ADD('MONTH', CAST(lapse_key - 23640 AS BIGINT), CAST('1970-01-01' AS DATE)) AS DATE) AS period_start,
   'churned' AS state
-FROM lapsed;
+FROM lapsed
+WHERE
+  lapse_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  );
 
 -- growth_accounting
 DELETE FROM "growth".growth_accounting
@@ -976,16 +1067,45 @@ FROM filled;
 -- cohort_retention
 DELETE FROM "growth".cohort_retention
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+      )
+    FROM "growth".sqlgen_refresh_state
+  );
 
 INSERT INTO "growth".cohort_retention
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM "growth".sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM "growth".sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the changed period on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM "growth".sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(DATE_ADD('MONTH', CAST(changed_key - 23640 AS BIGINT), CAST('1970-01-01' AS DATE)) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -996,8 +1116,8 @@ WITH dated AS (
     ) AS period_key,
     sqlgen_events
   FROM dated
-), active_periods AS (
-  /* One row per user and active period (the one grouping of the events), with the last active date. */
+), grouped_periods AS (
+  /* One row per user and active period read, with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -1006,11 +1126,23 @@ WITH dated AS (
   GROUP BY
     user_id,
     period_key
+), active_periods AS (
+  /* Each active (user, period) read, with first_key: the period of the user's first active date (earlier periods are not read). */
+  SELECT
+    g.user_id,
+    g.period_key,
+    g.last_date,
+    (
+      EXTRACT(YEAR FROM f.first_date) * 12 + EXTRACT(MONTH FROM f.first_date) - 1
+    ) AS first_key
+  FROM grouped_periods AS g
+  JOIN "growth".sqlgen_first_days AS f
+    ON f.user_id = g.user_id
 ), marked AS (
-  /* Each active (user, period) with the cohort of the user: the first active period. */
+  /* Each active (user, period) read with the cohort of the user: the period of the first active date. */
   SELECT
     period_key AS marked_key,
-    MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
+    first_key AS marked_cohort_key
   FROM active_periods
 ), cohort_actives AS (
   /* Actives per cohort and period. */
@@ -1023,17 +1155,25 @@ WITH dated AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
-  /* The size of a cohort: its actives in the cohort period. */
+  /* The size of a cohort: the users whose first active date is in it. */
   SELECT
-    active_cohort_key AS size_key,
-    active_count AS size_count
-  FROM cohort_actives
-  WHERE
-    active_key = active_cohort_key
+    (
+      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+    ) AS size_key,
+    COUNT(*) AS size_count
+  FROM "growth".sqlgen_first_days
+  GROUP BY
+    (
+      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+    )
 ), data_range AS (
-  /* The first and last period with data. */
+  /* The first cohort and the last period with data. */
   SELECT
-    MIN(period_key) AS first_data_key,
+    (
+      SELECT
+        data_first_key
+      FROM refresh_bounds
+    ) AS first_data_key,
     MAX(period_key) AS last_data_key
   FROM active_periods
 ), digits AS (
@@ -1092,6 +1232,11 @@ WITH dated AS (
   CROSS JOIN data_range AS r
   WHERE
     s.size_key + 1 * g.age_number <= r.last_data_key
+    AND s.size_key + 1 * g.age_number >= (
+      SELECT
+        changed_key
+      FROM refresh_bounds
+    )
 )
 /* Each cell with its actives (0 when none) and retention = actives / cohort size. */
 SELECT
@@ -1110,16 +1255,45 @@ LEFT JOIN cohort_actives AS c
 -- engagement_depth
 DELETE FROM "growth".engagement_depth
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+      )
+    FROM "growth".sqlgen_refresh_state
+  );
 
 INSERT INTO "growth".engagement_depth
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM "growth".sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM "growth".sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the changed period on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM "growth".sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(DATE_ADD('MONTH', CAST(changed_key - 23640 AS BIGINT), CAST('1970-01-01' AS DATE)) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -1163,9 +1337,13 @@ WITH dated AS (
   GROUP BY
     period_key
 ), data_range AS (
-  /* The first and last period with data, and the last active date. */
+  /* The first period of the calendar (the changed one, or the first with data when later), the last period with data, and the last active date. */
   SELECT
-    MIN(period_key) AS first_key,
+    (
+      SELECT
+        CASE WHEN data_first_key > changed_key THEN data_first_key ELSE changed_key END
+      FROM refresh_bounds
+    ) AS first_key,
     MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
   FROM user_periods
