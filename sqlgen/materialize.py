@@ -10,10 +10,16 @@ refresh.sql, in one transaction where the target has one, for each part:
      (late rows older than the lookback: not added, counted in the state table);
   2. deletes the days from from_day on and inserts them again from the source rows with a
      timestamp from from_day on (exact and idempotent: those days are complete);
-  3. moves the mark to the newest day and from_day to mark - lookback;
-then computes every table again from the per-day table (and the revenue tables from their
-source: subscription rows change after they are written). Statements are templates in the
-source dialect, bound and rewritten per target like every view.
+  3. keeps the from_day it read from as read_from, moves the mark to the newest day and
+     from_day to mark - lookback;
+  4. brings the per-user first active dates (``<prefix>sqlgen_first_days``) up to date:
+     those before read_from never change, the others are found again from read_from on;
+then deletes each activity table's rows from the period holding read_from on and inserts
+them from the view's own template rendered with ``refresh`` (PER_PERIOD; it reads the
+per-day rows from a period before, the first dates, and nothing older), and computes the
+revenue tables again from their source (subscription rows change after they are written)
+and, with first_seen, every table in full. Statements are templates in the source
+dialect, bound and rewritten per target like every view.
 """
 
 from __future__ import annotations
@@ -106,6 +112,7 @@ PER_PERIOD = {
     "user_states": ("period_key", "period"),
     "engagement_depth": ("period_key", "period"),
     "cohort_retention": ("period_key", "period"),
+    "trailing_activity": ("day_key", "day"),
 }
 
 

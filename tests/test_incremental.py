@@ -48,20 +48,22 @@ def tables_for(target: str) -> tuple[str, str]:
 
 
 def spec_text(target: str, table: str, prefix: str, grain: str, lookback: int,
-              materialize: str) -> str:
+              materialize: str, extra: str = "") -> str:
+    """``extra``: further lines of the activity section (first_seen, report_from)."""
     schema = "" if target in FLAT_TARGETS else f"  schema: {VIEW_SCHEMA}\n"
     return ("version: 1\nactivity:\n"
-            f"  table: {table}\n  user: user_id\n  timestamp: occurred_at\n"
+            f"  table: {table}\n  user: user_id\n  timestamp: occurred_at\n{extra}"
             f"grain: {grain}\ncohorts: true\nengagement: true\ntrailing_windows: [3, 7]\n"
             f"output:\n  dialect: {target}\n{schema}  prefix: {prefix}\n"
             f"  materialize: {materialize}\n  lookback: {lookback} days\n")
 
 
-def build(target: str, grain: str, lookback: int) -> tuple[dict, dict, list[str]]:
+def build(target: str, grain: str, lookback: int,
+          extra: str = "") -> tuple[dict, dict, list[str]]:
     """(incremental files, view files, names of the compared views)."""
     full, kept = tables_for(target)
-    tables = parse_spec(spec_text(target, full, "t_", grain, lookback, "incremental"))
-    views = parse_spec(spec_text(target, kept, "v_", grain, lookback, "view"))
+    tables = parse_spec(spec_text(target, full, "t_", grain, lookback, "incremental", extra))
+    views = parse_spec(spec_text(target, kept, "v_", grain, lookback, "view", extra))
     names = [view.name for _part, view in planned(views)
              if view.name != "activity_source_summary"]  # a view in both: it reads the source
     return render_files(tables), render_files(views), names
@@ -155,10 +157,16 @@ def batches(draw):
 
 
 def run_case(engine, target: str, grain: str, lookback: int, parts: list[list],
-             interrupt_at: int | None) -> None:
+             interrupt_at: int | None, extra: str = "", users=()) -> None:
+    """``extra``: activity lines of both specs; ``users``: (user, ts) rows of the
+    first-seen table, loaded after the reset."""
     engine.reset()
+    if users:
+        from test_definitions import load_users
+
+        load_users(engine, users, target)
     full, kept = tables_for(target)
-    incremental, views, names = build(target, grain, lookback)
+    incremental, views, names = build(target, grain, lookback, extra)
     engine.create_table(full, COLUMNS, parts[0])
     engine.create_table(kept, COLUMNS, parts[0])
     _run_script(engine, target, views["v_create_all.sql"])
@@ -239,6 +247,15 @@ def test_batches_that_change_earlier_periods(engines, engine_name, target):
     engine = engines(engine_name)
     for grain in ("day", "week", "month"):
         run_case(engine, target, grain, 2, parts, interrupt_at=1 if grain == "week" else None)
+    # report_from inside the data: the rebuilt rows are cut at both bounds.
+    run_case(engine, target, "week", 2, parts, None, extra="  report_from: 2024-01-15\n")
+    # first_seen: every activity table is computed again in full (a users table can change).
+    from test_definitions import users_table
+
+    seen = (f"  first_seen:\n    table: {users_table(target)}\n    user: user_id\n"
+            "    timestamp: signed_up_at\n")
+    run_case(engine, target, "week", 2, parts, None, extra=seen,
+             users=[("a", T(2023, 12, 1)), ("e", T(2024, 1, 2)), ("g", None)])
 
 
 @pytest.mark.engines

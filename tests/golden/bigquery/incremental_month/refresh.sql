@@ -13,7 +13,8 @@
 --   grain: month
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Brings every table up to date: the source rows from each state table's from_day on are read again,
--- those days computed again, then every table from the per-day table. Running it twice changes nothing.
+-- those days computed again, then each activity table's rows from the period holding the first day read on
+-- (in full with activity.first_seen, and the revenue tables). Running it twice changes no table.
 -- Not one transaction: BigQuery multi-statement transactions cannot hold CREATE VIEW or CREATE SCHEMA: each DDL statement applies on its own. A failed run can leave some tables updated; run it again after fixing the cause.
 
 -- sqlgen_activity_days
@@ -1458,16 +1459,43 @@ LEFT JOIN period_totals AS t
 -- trailing_activity
 DELETE FROM `growth`.trailing_activity
 WHERE
-  TRUE;
+  day_key >= (
+    SELECT
+      DATE_DIFF(read_from, CAST('1970-01-05' AS DATE), DAY)
+    FROM `growth`.sqlgen_refresh_state
+  );
 
 INSERT INTO `growth`.trailing_activity
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM `growth`.sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM `growth`.sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from 63 days before read_from on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM `growth`.sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(DATE_ADD(changed_date, INTERVAL -63 DAY) AS DATE)
+      FROM refresh_bounds
+    )
 ), numbered AS (
   /* Each active day as a day number: days since Monday 1970-01-05. */
   SELECT
@@ -1489,17 +1517,26 @@ WITH dated AS (
     MIN(day_number) AS first_day,
     MAX(day_number) AS last_day
   FROM blocked
+  WHERE
+    block_number >= (
+      SELECT
+        DATE_DIFF(changed_date, CAST('1970-01-05' AS DATE), DAY) - 2 * 28 - MOD(DATE_DIFF(changed_date, CAST('1970-01-05' AS DATE), DAY) - 2 * 28 + 700000, 7)
+      FROM refresh_bounds
+    )
   GROUP BY
     day_user,
     block_number
 ), visits AS (
   /* Each block with the previous block of the user and next active day. */
   SELECT
-    first_day,
-    last_day,
-    LAG(block_number) OVER (PARTITION BY block_user ORDER BY block_number) AS prior_block,
-    LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number) AS next_day
-  FROM user_blocks
+    b.first_day,
+    b.last_day,
+    LAG(b.block_number) OVER (PARTITION BY b.block_user ORDER BY b.block_number) AS prior_block,
+    LEAD(b.first_day) OVER (PARTITION BY b.block_user ORDER BY b.block_number) AS next_day,
+    DATE_DIFF(f.first_date, CAST('1970-01-05' AS DATE), DAY) AS user_first_day
+  FROM user_blocks AS b
+  JOIN `growth`.sqlgen_first_days AS f
+    ON f.user_id = b.block_user
 ), window_lengths AS (
   /* The window lengths, in days. */
   SELECT
@@ -1523,7 +1560,7 @@ WITH dated AS (
       THEN v.last_day + 2 * w.window_length
       ELSE v.next_day
     END AS churn_end_day,
-    CASE WHEN v.prior_block IS NULL THEN 1 ELSE 0 END AS first_visit,
+    CASE WHEN v.first_day = v.user_first_day THEN 1 ELSE 0 END AS first_visit,
     CASE
       WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length
       THEN 1
@@ -1604,9 +1641,29 @@ WITH dated AS (
     change_window,
     change_day
 ), data_range AS (
-  /* The first and last active day. */
+  /* The first day of the calendar: the first block read, or read_from when earlier and later than the first active date; the last active day. */
   SELECT
-    MIN(first_day) AS first_day,
+    CASE
+      WHEN MIN(first_day) < (
+        SELECT
+          DATE_DIFF(
+            CASE WHEN data_first_date > changed_date THEN data_first_date ELSE changed_date END,
+            CAST('1970-01-05' AS DATE),
+            DAY
+          )
+        FROM refresh_bounds
+      )
+      THEN MIN(first_day)
+      ELSE (
+        SELECT
+          DATE_DIFF(
+            CASE WHEN data_first_date > changed_date THEN data_first_date ELSE changed_date END,
+            CAST('1970-01-05' AS DATE),
+            DAY
+          )
+        FROM refresh_bounds
+      )
+    END AS first_day,
     MAX(last_day) AS last_day
   FROM user_blocks
 ), digits AS (
@@ -1705,7 +1762,13 @@ SELECT
   churned_tally AS churned_users,
   CAST(active_tally - retained_tally AS FLOAT64) / NULLIF(churned_tally, 0) AS quick_ratio,
   grid_day AS day_key
-FROM tallied;
+FROM tallied
+WHERE
+  grid_day >= (
+    SELECT
+      DATE_DIFF(changed_date, CAST('1970-01-05' AS DATE), DAY)
+    FROM refresh_bounds
+  );
 
 -- revenue_cohorts
 DELETE FROM `growth`.revenue_cohorts
