@@ -5,7 +5,9 @@ create_all.sql builds the tables (not timed), the events of the batch (the days 
 cut) are appended, and refresh.sql is timed. Side by side in the same run: the full
 computation (every view computed once: create_all.sql of `materialize: table` over the
 same rows) and a dashboard read (`SELECT * FROM growth_accounting`) of the view and of the
-table. Ratios only; the machine is shared, so absolute times move between runs.
+table. Ratios only, wall and CPU (the process's, every DuckDB thread), with the 1-minute
+load average (the highest of before and after the timed statements); the machine is
+shared, so absolute times move between runs.
 
     .venv/bin/python -m bench.incremental --db bench/data/activity_10m.duckdb
     .venv/bin/python -m bench.incremental --size smoke      # generates the data first
@@ -15,6 +17,7 @@ from __future__ import annotations
 
 import argparse
 import datetime as dt
+import os
 import statistics
 import time
 from pathlib import Path
@@ -47,13 +50,19 @@ def files(prefix: str, materialize: str) -> dict[str, str]:
 
 
 def timed(con, sql: str, reps: int = 1) -> float:
-    """The median seconds of ``reps`` runs."""
-    spent = []
+    """The median wall seconds of ``reps`` runs."""
+    return timed_cpu(con, sql, reps)[0]
+
+
+def timed_cpu(con, sql: str, reps: int = 1) -> tuple[float, float]:
+    """The median wall and CPU seconds (this process, every DuckDB thread) of ``reps`` runs."""
+    walls, cpus = [], []
     for _ in range(reps):
-        start = time.perf_counter()
+        start, cpu = time.perf_counter(), time.process_time()
         con.execute(sql)
-        spent.append(time.perf_counter() - start)
-    return statistics.median(spent)
+        walls.append(time.perf_counter() - start)
+        cpus.append(time.process_time() - cpu)
+    return statistics.median(walls), statistics.median(cpus)
 
 
 def case(source: str, since: dt.datetime, cut: dt.datetime, days: int, threads: int) -> dict:
@@ -71,8 +80,10 @@ def case(source: str, since: dt.datetime, cut: dt.datetime, days: int, threads: 
     con.execute("INSERT INTO ev SELECT user_id, ts FROM src.events "
                 f"WHERE ts >= TIMESTAMP '{cut}' AND ts < TIMESTAMP '{end}'")
     batch = con.execute("SELECT count(*) FROM ev").fetchone()[0] - history
-    refresh = timed(con, incremental["t_refresh.sql"])
-    full = timed(con, table["f_create_all.sql"])
+    load = os.getloadavg()[0]
+    refresh, refresh_cpu = timed_cpu(con, incremental["t_refresh.sql"])
+    full, full_cpu = timed_cpu(con, table["f_create_all.sql"])
+    load = max(load, os.getloadavg()[0])
     read_view = timed(con, "SELECT * FROM v_growth_accounting", reps=3)
     read_table = timed(con, "SELECT * FROM t_growth_accounting", reps=3)
     same = con.execute("SELECT count(*) FROM (SELECT * FROM t_growth_accounting EXCEPT ALL "
@@ -80,7 +91,8 @@ def case(source: str, since: dt.datetime, cut: dt.datetime, days: int, threads: 
     con.close()
     assert same == 0, "the refreshed table differs from the view"
     return {"history": history, "batch": batch, "days": days, "refresh": refresh,
-            "full": full, "read_view": read_view, "read_table": read_table}
+            "full": full, "read_view": read_view, "read_table": read_table,
+            "refresh_cpu": refresh_cpu, "full_cpu": full_cpu, "load": load}
 
 
 def main(argv: list[str] | None = None) -> None:
@@ -89,6 +101,10 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--db", type=Path, help="a database made by bench/data.py")
     parser.add_argument("--data-dir", type=Path, default=Path(__file__).parent / "data")
     parser.add_argument("--threads", type=int, default=2)
+    parser.add_argument("--days", type=int, nargs="+", default=list(BATCH_DAYS),
+                        help="batch sizes in days (at most 30)")
+    parser.add_argument("--history", default="both",
+                        choices=["both", "full history", "last 6 months"])
     args = parser.parse_args(argv)
     source = args.db or data.generate(data.SIZES[args.size], args.data_dir)
     with duckdb.connect(str(source), read_only=True) as con:
@@ -96,16 +112,21 @@ def main(argv: list[str] | None = None) -> None:
         first = con.execute("SELECT min(ts) FROM events").fetchone()[0]
     cut = dt.datetime.combine(last.date(), dt.time()) - dt.timedelta(days=max(BATCH_DAYS) - 1)
     histories = {"full history": first, "last 6 months": cut - dt.timedelta(days=182)}
-    print("| history | history rows | batch | batch rows | refresh / full | "
-          "table read / view read | refresh s | full s |")
-    print("| --- | --- | --- | --- | --- | --- | --- | --- |")
+    if args.history != "both":
+        histories = {args.history: histories[args.history]}
+    print("| history | history rows | batch | batch rows | refresh / full, wall | "
+          "refresh / full, CPU | table read / view read | refresh s (CPU s) | "
+          "full s (CPU s) | load average |")
+    print("| --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |")
     for label, since in histories.items():
-        for days in BATCH_DAYS:
+        for days in args.days:
             r = case(str(source), since, cut, days, args.threads)
             print(f"| {label} | {r['history']:,} | {days} day{'s' if days > 1 else ''} | "
                   f"{r['batch']:,} | {r['refresh'] / r['full']:.1%} | "
-                  f"{r['read_table'] / r['read_view']:.2%} | {r['refresh']:.2f} | "
-                  f"{r['full']:.2f} |", flush=True)
+                  f"{r['refresh_cpu'] / r['full_cpu']:.1%} | "
+                  f"{r['read_table'] / r['read_view']:.2%} | {r['refresh']:.2f} "
+                  f"({r['refresh_cpu']:.2f}) | {r['full']:.2f} ({r['full_cpu']:.2f}) | "
+                  f"{r['load']:.1f} |", flush=True)
 
 
 if __name__ == "__main__":

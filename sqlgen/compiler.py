@@ -177,10 +177,14 @@ def materialized(view: View, spec: Spec) -> bool:
 def refresh_statements(view: View, spec: Spec, target: Target) -> tuple[str, ...]:
     """refresh.sql's statements for one view's table: its rows computed again (none for
     a view)."""
-    from .materialize import recompute_statements
+    from .materialize import per_period, period_statements, recompute_statements
 
     if spec.output.materialize != "incremental" or not materialized(view, spec):
         return ()
+    key = f"view {view.name}"
+    if per_period(view.name, spec):
+        return tuple(_generate(tree, target, key)
+                     for tree in period_statements(view.name, view.template, spec, target))
     query = compile_query(view, spec, target)
     return tuple(recompute_statements(view_table(spec, view.name), query, target,
                                       f"view {view.name}"))
@@ -520,16 +524,18 @@ def _script(lines: list[str], body: list[str], target: Target) -> str:
 
 
 def _refresh(spec: Spec, target: Target, compiled: list[CompiledView]) -> str:
-    """refresh.sql: the per-day and state tables of each part brought up to date, then
-    every table computed again from them (sqlgen/materialize.py), in one transaction where
-    the target has one."""
+    """refresh.sql: the per-day, first-date and state tables of each part brought up to
+    date, then each table's rows from its first changed period on (or in full, see
+    ``materialize.per_period``), in one transaction where the target has one."""
     from .materialize import parts_with_days, refresh_statements as day_statements
 
     lines = header(spec, target, None)
     lines.append("-- Brings every table up to date: the source rows from each state table's "
                  "from_day on are read again,")
-    lines.append("-- those days computed again, then every table from the per-day table. "
-                 "Running it twice changes nothing.")
+    lines.append("-- those days computed again, then each activity table's rows from the "
+                 "period holding the first day read on")
+    lines.append("-- (in full with activity.first_seen, and the revenue tables). Running it "
+                 "twice changes no table.")
     lines.append(_transaction_line(target, "some tables updated", "every table"))
     run = _through_exec if target.exec_batch else (lambda statement: statement + ";")
     body = []

@@ -10,10 +10,16 @@ refresh.sql, in one transaction where the target has one, for each part:
      (late rows older than the lookback: not added, counted in the state table);
   2. deletes the days from from_day on and inserts them again from the source rows with a
      timestamp from from_day on (exact and idempotent: those days are complete);
-  3. moves the mark to the newest day and from_day to mark - lookback;
-then computes every table again from the per-day table (and the revenue tables from their
-source: subscription rows change after they are written). Statements are templates in the
-source dialect, bound and rewritten per target like every view.
+  3. keeps the from_day it read from as read_from, moves the mark to the newest day and
+     from_day to mark - lookback;
+  4. brings the per-user first active dates (``<prefix>sqlgen_first_days``) up to date:
+     those before read_from never change, the others are found again from read_from on;
+then deletes each activity table's rows from the period holding read_from on and inserts
+them from the view's own template rendered with ``refresh`` (PER_PERIOD; it reads the
+per-day rows from a period before, the first dates, and nothing older), and computes the
+revenue tables again from their source (subscription rows change after they are written)
+and, with first_seen, every table in full. Statements are templates in the source
+dialect, bound and rewritten per target like every view.
 """
 
 from __future__ import annotations
@@ -26,6 +32,7 @@ from .render import bind, render_template
 from .spec import Spec
 
 DAYS = "sqlgen_activity_days"
+FIRST = "sqlgen_first_days"
 STATE = "sqlgen_refresh_state"
 REFRESH = "refresh.sql"
 
@@ -60,6 +67,7 @@ def create_statements(part: Spec, target: Target) -> list[str]:
 
     out: list[str] = []
     for name, template in ((DAYS, "sqlgen_activity_days.sql"),
+                           (FIRST, "sqlgen_first_days.sql"),
                            (STATE, "sqlgen_refresh_state.sql")):
         (query,) = _statements(template, part, target, since=False)
         out += table_statements(view_table(part, name), query, target, f"view {name}")
@@ -79,7 +87,8 @@ def refresh_statements(part: Spec, target: Target) -> list[str]:
     (query,) = _statements("sqlgen_activity_days.sql", part, target, since=True)
     insert = exp.Insert(this=days.copy(), expression=query)
     trees = [*_statements("sqlgen_refresh_steps.sql", part, target, step="late"), delete,
-             insert, *_statements("sqlgen_refresh_steps.sql", part, target, step="mark")]
+             insert, *_statements("sqlgen_refresh_steps.sql", part, target, step="mark"),
+             *_statements("sqlgen_refresh_steps.sql", part, target, step="first")]
     return [_generate(tree, target, key) for tree in trees]
 
 
@@ -92,3 +101,36 @@ def recompute_statements(table: exp.Table, query: exp.Expression, target: Target
     delete = exp.Delete(this=table.copy(), where=exp.Where(this=exp.true()))
     return [_generate(delete, target, key),
             _generate(exp.Insert(this=table.copy(), expression=query), target, key)]
+
+
+# The tables refresh.sql computes again from the first changed period on, not in full:
+# view name -> (the column holding a row's period key, its unit: 'period' of the grain, or
+# 'day' for a day number). Their templates take `refresh` (see _activity.sql).
+PER_PERIOD = {
+    "user_activity": ("period_key", "period"),
+    "growth_accounting": ("period_key", "period"),
+    "user_states": ("period_key", "period"),
+    "engagement_depth": ("period_key", "period"),
+    "cohort_retention": ("period_key", "period"),
+    "trailing_activity": ("day_key", "day"),
+}
+
+
+def per_period(view_name: str, part: Spec) -> bool:
+    """Whether refresh.sql computes a view's table again only from the first changed period
+    on. Not with activity.first_seen: a users table that changes can change any period."""
+    return (view_name in PER_PERIOD and part.activity is not None
+            and part.activity.first_seen is None)
+
+
+def period_statements(view_name: str, template: str, part: Spec,
+                      target: Target) -> list[exp.Expression]:
+    """A table's rows from the first changed period on: DELETE, then INSERT of the view's
+    own template rendered with `refresh` (it reads only the days it needs)."""
+    column, unit = PER_PERIOD[view_name]
+    (delete,) = _statements("sqlgen_refresh_steps.sql", part, target, step="delete",
+                            table=view_name, column=column, unit=unit)
+    (query,) = _statements(template, part, target, from_days=True, refresh=True)
+    from .compiler import view_table
+
+    return [delete, exp.Insert(this=view_table(part, view_name), expression=query)]

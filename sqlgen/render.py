@@ -86,12 +86,15 @@ def reads_days(view: View, spec: Spec) -> bool:
             and view.name != "activity_source_summary")
 
 
-def render_template(name: str, spec: Spec, from_days: bool = False, **flags) -> str:
+def render_template(name: str, spec: Spec, from_days: bool = False, refresh: bool = False,
+                    **flags) -> str:
     """A template as source-dialect SQL text, with markers for spec names; ``flags`` are
-    further template variables (the incremental statements' ``since``)."""
+    further template variables (the incremental statements' ``since``). ``refresh``: the
+    view's rows from the first period refresh.sql changed on (see _activity.sql)."""
     template = _environment().get_template(name)
     return template.render(
         from_days=from_days,
+        refresh=refresh,
         lookback=spec.output.lookback,
         **flags,
         grain=grain_of(spec),

@@ -24,11 +24,39 @@ table instead (its rows are what `dated` grouped by user and date, with their co
 sqlgen_events), and user_periods() adds those counts up; every other CTE is unchanged.
 since (source_ctes) keeps only the rows from the state table's from_day on: the rows a
 refresh reads again.
+With refresh (refresh.sql's query of a table it computes again from the first changed
+period on, sqlgen/materialize.py PER_PERIOD), source_ctes() starts with the CTE
+refresh_bounds (changed_key: the period holding the state's read_from, the first the
+refresh changes; changed_date: read_from; data_first_date and data_first_key: the first
+active date of any user and its period) and reads only the per-day rows from reads on:
+'period' the first day of the changed period, 'period_before' of the period before it,
+a number n: n days before read_from. active_periods() then adds first_key: the period of
+the user's first active date, from the per-user table refresh.sql keeps exact (a user
+whose earlier periods are not read is told apart from a new one).
 -#}
 {%- import '_periods.sql' as p with context -%}
 
-{%- macro source_ctes(carry=(), since=False) -%}
-{%- if from_days %}
+{%- macro source_ctes(carry=(), since=False, reads='period') -%}
+{%- if from_days and refresh %}
+{%- if reads == 'period' %}{% set start = p.period_start('changed_key') %}
+{%- elif reads == 'period_before' %}{% set start = p.period_start('changed_key - ' ~ grain.step) %}
+{%- else %}{% set start = 'CAST(changed_date + INTERVAL (' ~ (-reads) ~ ') DAY AS DATE)' %}{% endif %}
+refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    {{ p.period_key('s.read_from') }} AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    {{ p.period_key('f.sqlgen_first_date') }} AS data_first_key
+  FROM {{ ref('sqlgen_refresh_state') }} AS s
+  CROSS JOIN (SELECT MIN(first_date) AS sqlgen_first_date FROM {{ ref('sqlgen_first_days') }}) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: {% if reads == 'period' %}from the changed period on{% elif reads == 'period_before' %}from the period before the changed one on{% else %}from {{ reads }} days before read_from on{% endif %}. */
+  SELECT user_id, activity_date, events AS sqlgen_events
+  FROM {{ ref('sqlgen_activity_days') }}
+  WHERE activity_date >= (SELECT {{ start }} FROM refresh_bounds)
+)
+{%- elif from_days %}
 dated AS (
   /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
   SELECT user_id, activity_date, events AS sqlgen_events
@@ -54,16 +82,29 @@ sqlgen_source AS (
 {%- endif %}
 {%- endmacro -%}
 
-{%- macro keyed(carry=()) -%}
-{{ source_ctes(carry) }}, keyed AS (
+{%- macro keyed(carry=(), reads='period') -%}
+{{ source_ctes(carry, reads=reads) }}, keyed AS (
   /* {% if grain.family == 'day' %}period_key: days since Monday 1970-01-05, a week keyed by its first day, so adjacent periods differ by the step in days{% else %}period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months{% endif %}. */
   SELECT user_id, activity_date, {{ p.period_key('activity_date') }} AS period_key{% for _column, name in carry %}, {{ name }}{% endfor %}{% if from_days %}, sqlgen_events{% endif %}
   FROM dated
 )
 {%- endmacro -%}
 
-{%- macro active_periods() -%}
-{%- if source.first_seen %}
+{%- macro active_periods(reads='period') -%}
+{%- if refresh %}
+{{ keyed(reads=reads) }}, grouped_periods AS (
+  /* One row per user and active period read, with the last active date. */
+  SELECT user_id, period_key, MAX(activity_date) AS last_date
+  FROM keyed
+  GROUP BY user_id, period_key
+), active_periods AS (
+  /* Each active (user, period) read, with first_key: the period of the user's first active date (earlier periods are not read). */
+  SELECT g.user_id, g.period_key, g.last_date, {{ p.period_key('f.first_date') }} AS first_key
+  FROM grouped_periods AS g
+  JOIN {{ ref('sqlgen_first_days') }} AS f
+    ON f.user_id = g.user_id
+)
+{%- elif source.first_seen %}
 {{ keyed() }}, grouped_periods AS (
   /* One row per user and active period (the one grouping of the events), with the last active date. */
   SELECT user_id, period_key, MAX(activity_date) AS last_date
@@ -120,8 +161,8 @@ seen_source AS (
 )
 {%- endmacro -%}
 
-{%- macro user_periods() -%}
-{{ keyed() }}, user_periods AS (
+{%- macro user_periods(reads='period') -%}
+{{ keyed(reads=reads) }}, user_periods AS (
   /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,

@@ -6,7 +6,10 @@
 {#- Cohort = a user's first active period; one row per cohort and age (periods since the
     cohort period) up to the last period with data, zero rows included: a full triangle.
     With first_seen the cohort is the earlier of the first-seen and first active periods,
-    and a cohort's size counts its users whether or not they were active at age 0. -#}
+    and a cohort's size counts its users whether or not they were active at age 0.
+    With refresh (refresh.sql), only the cells from the changed period on, from its days:
+    a user's cohort is the period of the first active date (first_key, from the per-user
+    table refresh.sql keeps), and a cohort's size its users in that table. -#}
 {%- set fs = source.first_seen -%}
 {%- if fs %}
 WITH {{ a.active_periods() }}, marked AS (
@@ -30,6 +33,27 @@ WITH {{ a.active_periods() }}, marked AS (
   /* The first cohort and the last period with data. */
   SELECT MIN(marked_cohort_key) AS first_data_key, MAX(marked_key) AS last_data_key
   FROM marked
+){% elif refresh %}
+WITH {{ a.active_periods() }}, marked AS (
+  /* Each active (user, period) read with the cohort of the user: the period of the first active date. */
+  SELECT
+    period_key AS marked_key,
+    first_key AS marked_cohort_key
+  FROM active_periods
+), cohort_actives AS (
+  /* Actives per cohort and period. */
+  SELECT marked_cohort_key AS active_cohort_key, marked_key AS active_key, COUNT(*) AS active_count
+  FROM marked
+  GROUP BY marked_cohort_key, marked_key
+), cohort_sizes AS (
+  /* The size of a cohort: the users whose first active date is in it. */
+  SELECT {{ p.period_key('first_date') }} AS size_key, COUNT(*) AS size_count
+  FROM {{ ref('sqlgen_first_days') }}
+  GROUP BY {{ p.period_key('first_date') }}
+), data_range AS (
+  /* The first cohort and the last period with data. */
+  SELECT (SELECT data_first_key FROM refresh_bounds) AS first_data_key, MAX(period_key) AS last_data_key
+  FROM active_periods
 ){% else %}
 WITH {{ a.active_periods() }}, marked AS (
   /* Each active (user, period) with the cohort of the user: the first active period. */
@@ -67,7 +91,8 @@ WITH {{ a.active_periods() }}, marked AS (
   FROM cohort_sizes AS s
   CROSS JOIN ages AS g
   CROSS JOIN data_range AS r
-  WHERE s.size_key + {{ grain.step }} * g.age_number <= r.last_data_key
+  WHERE s.size_key + {{ grain.step }} * g.age_number <= r.last_data_key{% if refresh %}
+    AND s.size_key + {{ grain.step }} * g.age_number >= (SELECT changed_key FROM refresh_bounds){% endif %}
 )
 /* Each cell with its actives (0 when none) and retention = actives / cohort size. */
 SELECT

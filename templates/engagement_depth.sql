@@ -2,7 +2,8 @@
 {%- import '_activity.sql' as a with context -%}
 {#- Per period, how many users were active on exactly 1, 2, ... distinct days of it: one
     row for every day count the period can hold (1 at day grain, 1..7 weekly, 28..31
-    monthly, up to 92 quarterly and 366 yearly), zero rows and empty periods included. -#}
+    monthly, up to 92 quarterly and 366 yearly), zero rows and empty periods included.
+    With refresh (refresh.sql), only the periods from the changed one on, from their days. -#}
 {%- set longest = {'day': 1, 'week': 7, 'month': 31, 'quarter': 92, 'year': 366}[grain.name] -%}
 {%- set places = longest | string | length -%}
 WITH {{ a.user_periods() }}, depth_counts AS (
@@ -16,8 +17,14 @@ WITH {{ a.user_periods() }}, depth_counts AS (
   FROM user_periods
   GROUP BY period_key
 ), data_range AS (
+{%- if refresh %}
+  /* The first period of the calendar (the changed one, or the first with data when later), the last period with data, and the last active date. */
+  SELECT (SELECT CASE WHEN data_first_key > changed_key THEN data_first_key ELSE changed_key END FROM refresh_bounds) AS first_key,
+    MAX(period_key) AS last_key,
+{%- else %}
   /* The first and last period with data, and the last active date. */
   SELECT MIN(period_key) AS first_key, MAX(period_key) AS last_key,
+{%- endif %}
     MAX(last_active_date) AS data_through
   FROM user_periods
 ), {{ p.digits_cte() }}, calendar AS (

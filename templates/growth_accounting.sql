@@ -7,14 +7,21 @@
     read once: the data range comes from the per-period tallies, not from a second read
     (engines that inline CTEs would group the events twice).
     With first_seen, a user's first active period counts as resurrected, not new, when
-    the user was first seen in an earlier period (seen_key < period_key). -#}
+    the user was first seen in an earlier period (seen_key < period_key).
+    With refresh (refresh.sql), only the periods from the changed one on, from the days of
+    the period before it on: a user with no period read before this one but a first active
+    period before it (first_key) returns after a gap, so prior_key takes first_key (any key
+    before period_key - step gives resurrected); the period before gives previous actives. -#}
 {%- set fs = source.first_seen -%}
-WITH {{ a.active_periods() }}, sequenced AS (
-  /* Each active (user, period) with the previous active period of the user (NULL: the first). */
+WITH {{ a.active_periods(reads='period_before') }}, sequenced AS (
+  /* Each active (user, period) with the previous active period of the user (NULL: the first){% if refresh %}; with none read, the first active period when earlier{% endif %}. */
   SELECT
     period_key,
     last_date,
-    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key{% if fs %},
+{%- if refresh %}
+    COALESCE(LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key), CASE WHEN first_key < period_key THEN first_key END) AS prior_key
+{%- else %}
+    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key{% endif %}{% if fs %},
     seen_key{% endif %}
   FROM active_periods
 ), tallies AS (
@@ -35,9 +42,15 @@ WITH {{ a.active_periods() }}, sequenced AS (
   FROM sequenced
   GROUP BY period_key
 ), data_range AS (
+{%- if refresh %}
+  /* The first period of the calendar (the one before the changed period, or the first with data when later), the last period with data, and the last active date. */
+  SELECT
+    (SELECT CASE WHEN data_first_key > changed_key - {{ grain.step }} THEN data_first_key ELSE changed_key - {{ grain.step }} END FROM refresh_bounds) AS first_key,
+{%- else %}
   /* The first and last period with data, and the last active date. */
   SELECT
     MIN(tally_key) AS first_key,
+{%- endif %}
     MAX(tally_key) AS last_key,
     MAX(through_tally) AS data_through
   FROM tallies
@@ -110,5 +123,8 @@ SELECT
 FROM balanced
 {%- if source.report_from %}
 /* Only the periods from report_from on: the earlier ones were computed, so previous_active_users of the first row shown is real. */
-WHERE calendar_key >= {{ p.report_key() }}
+WHERE calendar_key >= {{ p.report_key() }}{% if refresh %} AND calendar_key >= (SELECT changed_key FROM refresh_bounds){% endif %}
+{%- elif refresh %}
+/* Only the periods from the changed one on: refresh.sql deleted them. */
+WHERE calendar_key >= (SELECT changed_key FROM refresh_bounds)
 {%- endif %}

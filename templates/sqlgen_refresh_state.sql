@@ -4,7 +4,9 @@
                 and computes those days again (valid_from when there is no data yet)
     rows_before the source rows with a timestamp before from_day, counted when it was set
     late_rows   the rows found before from_day that were not there when it was set: late
-                rows older than the lookback, not in the tables (create_all.sql includes them) -#}
+                rows older than the lookback, not in the tables (create_all.sql includes them)
+    read_from   the from_day the last refresh read from (set by refresh.sql before it moves
+                from_day): the tables' rows from its period on are the ones it computed again -#}
 WITH marked AS (
   /* The high-water mark: the newest day with activity. */
   SELECT MAX(activity_date) AS sqlgen_mark FROM {{ ref('sqlgen_activity_days') }}
@@ -17,5 +19,6 @@ SELECT
   sqlgen_mark AS mark_day,
   sqlgen_from AS from_day,
   (SELECT COUNT(__timestamp__) FROM __activity_table__ WHERE __timestamp__ < (SELECT sqlgen_from FROM windowed)) AS rows_before,
-  CAST(0 AS BIGINT) AS late_rows
+  CAST(0 AS BIGINT) AS late_rows,
+  sqlgen_from AS read_from
 FROM windowed

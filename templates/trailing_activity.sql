@@ -15,10 +15,17 @@
     counts. retained = previous - churned and resurrected = active - new - retained.
     With first_seen, a user first seen on day s before the window is not new in it (the
     user is resurrected there, as in growth accounting): the first block's new span ends at
-    min(f, s) + N instead of f + N, and is empty when s + N <= f. -#}
+    min(f, s) + N instead of f + N, and is empty when s + N <= f.
+    With refresh (refresh.sql), only the days from read_from (day r) on: a day's counts
+    depend on the activity of the 2N days up to it, and every span of a block ending
+    before the block holding r - 2N ends before r (l + 2N <= r), so only the blocks from
+    that one on are read; a block is the user's first when its first day is the user's
+    first active date (the per-user table refresh.sql keeps), and the calendar starts at
+    the first block read (or at r, or the first active date when later). -#}
 {%- set block = windows | min -%}
+{%- set longest = windows | max -%}
 {%- set fs = source.first_seen -%}
-WITH {{ a.source_ctes() }}, numbered AS (
+WITH {{ a.source_ctes(reads=2 * longest + block) }}, numbered AS (
   /* Each active day as a day number: days since Monday 1970-01-05. */
   SELECT user_id AS day_user, DATE_DIFF('day', DATE '1970-01-05', activity_date) AS day_number
   FROM dated
@@ -31,6 +38,9 @@ WITH {{ a.source_ctes() }}, numbered AS (
   SELECT day_user AS block_user, block_number, MIN(day_number) AS first_day,
     MAX(day_number) AS last_day
   FROM blocked
+{%- if refresh %}
+  WHERE block_number >= (SELECT DATE_DIFF('day', DATE '1970-01-05', changed_date) - 2 * {{ longest }} - (DATE_DIFF('day', DATE '1970-01-05', changed_date) - 2 * {{ longest }} + {{ 700000 - 700000 % block }}) % {{ block }} FROM refresh_bounds)
+{%- endif %}
   GROUP BY day_user, block_number
 ){% if fs %}, {{ a.first_seen_ctes('day') }}{% endif %}, visits AS (
   /* Each block with the previous block of the user and next active day{% if fs %}, and new_from: the first active day, or the first-seen day when earlier{% endif %}. */
@@ -47,6 +57,15 @@ WITH {{ a.source_ctes() }}, numbered AS (
   FROM user_blocks AS b
   LEFT JOIN first_seen AS s
     ON s.sqlgen_seen_user = b.block_user
+    {%- elif refresh %}
+    b.first_day,
+    b.last_day,
+    LAG(b.block_number) OVER (PARTITION BY b.block_user ORDER BY b.block_number) AS prior_block,
+    LEAD(b.first_day) OVER (PARTITION BY b.block_user ORDER BY b.block_number) AS next_day,
+    DATE_DIFF('day', DATE '1970-01-05', f.first_date) AS user_first_day
+  FROM user_blocks AS b
+  JOIN {{ ref('sqlgen_first_days') }} AS f
+    ON f.user_id = b.block_user
     {%- else %}
     first_day,
     last_day,
@@ -78,6 +97,8 @@ WITH {{ a.source_ctes() }}, numbered AS (
 {%- if fs %}
     v.new_from + w.window_length AS new_end_day,
     CASE WHEN v.prior_block IS NULL AND v.new_from + w.window_length > v.first_day THEN 1 ELSE 0 END AS first_visit,
+{%- elif refresh %}
+    CASE WHEN v.first_day = v.user_first_day THEN 1 ELSE 0 END AS first_visit,
 {%- else %}
     CASE WHEN v.prior_block IS NULL THEN 1 ELSE 0 END AS first_visit,
 {%- endif %}
@@ -127,9 +148,18 @@ WITH {{ a.source_ctes() }}, numbered AS (
   FROM boundaries
   GROUP BY change_window, change_day
 ), data_range AS (
+{%- if refresh %}
+  /* The first day of the calendar: the first block read, or read_from when earlier and later than the first active date; the last active day. */
+  SELECT
+    CASE WHEN MIN(first_day) < (SELECT DATE_DIFF('day', DATE '1970-01-05', CASE WHEN data_first_date > changed_date THEN data_first_date ELSE changed_date END) FROM refresh_bounds) THEN MIN(first_day)
+      ELSE (SELECT DATE_DIFF('day', DATE '1970-01-05', CASE WHEN data_first_date > changed_date THEN data_first_date ELSE changed_date END) FROM refresh_bounds) END AS first_day,
+    MAX(last_day) AS last_day
+  FROM user_blocks
+{%- else %}
   /* The first and last active day. */
   SELECT MIN(first_day) AS first_day, MAX(last_day) AS last_day
   FROM user_blocks
+{%- endif %}
 ), {{ p.digits_cte() }}, calendar AS (
   /* Every day from the first to the last. */
   SELECT r.first_day + {{ p.counting_value(grain.day_digits) }} AS calendar_day
@@ -175,5 +205,7 @@ SELECT
   grid_day AS day_key
 FROM tallied
 {%- if source.report_from %}
-WHERE grid_day >= DATE_DIFF('day', DATE '1970-01-05', CAST('__report_from__' AS DATE))
+WHERE grid_day >= DATE_DIFF('day', DATE '1970-01-05', CAST('__report_from__' AS DATE)){% if refresh %} AND grid_day >= (SELECT DATE_DIFF('day', DATE '1970-01-05', changed_date) FROM refresh_bounds){% endif %}
+{%- elif refresh %}
+WHERE grid_day >= (SELECT DATE_DIFF('day', DATE '1970-01-05', changed_date) FROM refresh_bounds)
 {%- endif %}

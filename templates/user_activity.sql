@@ -12,5 +12,7 @@ SELECT
   last_active_date
 FROM user_periods
 {%- if source.report_from %}
-WHERE period_key >= {{ p.report_key() }}
+WHERE period_key >= {{ p.report_key() }}{% if refresh %} AND period_key >= (SELECT changed_key FROM refresh_bounds){% endif %}
+{%- elif refresh %}
+WHERE period_key >= (SELECT changed_key FROM refresh_bounds)
 {%- endif %}

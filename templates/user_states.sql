@@ -1,12 +1,20 @@
 {%- import '_periods.sql' as p with context -%}
 {%- import '_activity.sql' as a with context -%}
 {%- set fs = source.first_seen -%}
-WITH {{ a.active_periods() }}, sequenced AS (
-  /* Each active (user, period) with the previous and next active periods of the user. */
+{#- With refresh (refresh.sql), only the rows from the changed period on, from the days of
+    the period before it on (its actives lapse in the changed period); a user with no
+    period read before one but a first active period before it (first_key) returns after
+    a gap, as in growth_accounting. -#}
+WITH {{ a.active_periods(reads='period_before') }}, sequenced AS (
+  /* Each active (user, period) with the previous and next active periods of the user{% if refresh %} (with no previous one read, the first active period when earlier){% endif %}. */
   SELECT
     user_id,
     period_key,
+{%- if refresh %}
+    COALESCE(LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key), CASE WHEN first_key < period_key THEN first_key END) AS prior_key,
+{%- else %}
     LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key,
+{%- endif %}
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS later_key{% if fs %},
     seen_key{% endif %}
   FROM active_periods
@@ -36,7 +44,9 @@ SELECT
   END AS state
 FROM sequenced
 {%- if source.report_from %}
-WHERE period_key >= {{ p.report_key() }}
+WHERE period_key >= {{ p.report_key() }}{% if refresh %} AND period_key >= (SELECT changed_key FROM refresh_bounds){% endif %}
+{%- elif refresh %}
+WHERE period_key >= (SELECT changed_key FROM refresh_bounds)
 {%- endif %}
 UNION ALL
 SELECT
@@ -46,5 +56,7 @@ SELECT
   'churned' AS state
 FROM lapsed
 {%- if source.report_from %}
-WHERE lapse_key >= {{ p.report_key() }}
+WHERE lapse_key >= {{ p.report_key() }}{% if refresh %} AND lapse_key >= (SELECT changed_key FROM refresh_bounds){% endif %}
+{%- elif refresh %}
+WHERE lapse_key >= (SELECT changed_key FROM refresh_bounds)
 {%- endif %}

@@ -132,3 +132,16 @@ def test_other_engine_benchmark_agrees(engine_name, engines, smoke_db):
     assert all(len(case["times"]) == (0 if plan_only else 1) for case in result["cases"])
     page = other_engines.markdown("smoke", [result], 1, 0)
     assert f"## {engine_name} " in page
+
+
+def test_incremental_benchmark_runs_and_agrees(tmp_path):
+    """bench/incremental.py at the smoke size, one 1-day batch: the refreshed table is
+    checked equal to the view (EXCEPT ALL) before its row is printed. No timing assertion."""
+    done = subprocess.run(
+        [sys.executable, "-m", "bench.incremental", "--size", "smoke", "--data-dir",
+         str(tmp_path / "data"), "--days", "1", "--history", "last 6 months",
+         "--threads", "1"],
+        cwd=BENCH.parent, capture_output=True, text=True, timeout=300, check=False)
+    assert done.returncode == 0, done.stdout[-2000:] + done.stderr[-4000:]
+    rows = [line for line in done.stdout.splitlines() if line.startswith("| last 6 months")]
+    assert len(rows) == 1 and "| 1 day |" in rows[0]

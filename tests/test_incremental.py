@@ -48,20 +48,22 @@ def tables_for(target: str) -> tuple[str, str]:
 
 
 def spec_text(target: str, table: str, prefix: str, grain: str, lookback: int,
-              materialize: str) -> str:
+              materialize: str, extra: str = "") -> str:
+    """``extra``: further lines of the activity section (first_seen, report_from)."""
     schema = "" if target in FLAT_TARGETS else f"  schema: {VIEW_SCHEMA}\n"
     return ("version: 1\nactivity:\n"
-            f"  table: {table}\n  user: user_id\n  timestamp: occurred_at\n"
+            f"  table: {table}\n  user: user_id\n  timestamp: occurred_at\n{extra}"
             f"grain: {grain}\ncohorts: true\nengagement: true\ntrailing_windows: [3, 7]\n"
             f"output:\n  dialect: {target}\n{schema}  prefix: {prefix}\n"
             f"  materialize: {materialize}\n  lookback: {lookback} days\n")
 
 
-def build(target: str, grain: str, lookback: int) -> tuple[dict, dict, list[str]]:
+def build(target: str, grain: str, lookback: int,
+          extra: str = "") -> tuple[dict, dict, list[str]]:
     """(incremental files, view files, names of the compared views)."""
     full, kept = tables_for(target)
-    tables = parse_spec(spec_text(target, full, "t_", grain, lookback, "incremental"))
-    views = parse_spec(spec_text(target, kept, "v_", grain, lookback, "view"))
+    tables = parse_spec(spec_text(target, full, "t_", grain, lookback, "incremental", extra))
+    views = parse_spec(spec_text(target, kept, "v_", grain, lookback, "view", extra))
     names = [view.name for _part, view in planned(views)
              if view.name != "activity_source_summary"]  # a view in both: it reads the source
     return render_files(tables), render_files(views), names
@@ -81,15 +83,42 @@ def expected_from_day(rows, lookback: int) -> dt.date:
     return max(days) - dt.timedelta(days=lookback) if days else VALID[0]
 
 
-def snapshot(engine, target: str, names: list[str]) -> dict:
-    return {name: comparable(read_view(engine, f"t_{name}", target)) for name in names + [
-        "sqlgen_refresh_state", "sqlgen_activity_days"]}
+def snapshot(engine, target: str, names: list[str], read_from: bool = True) -> dict:
+    """Every table's rows; without read_from, the state less that column (the day a
+    refresh read from: a second refresh reads from the newer from_day, by design)."""
+    out = {}
+    for name in names + ["sqlgen_refresh_state", "sqlgen_activity_days", "sqlgen_first_days"]:
+        rows = read_view(engine, f"t_{name}", target)
+        if not read_from and name == "sqlgen_refresh_state":
+            rows = [{k: v for k, v in row.items() if k != "read_from"} for row in rows]
+        out[name] = comparable(rows)
+    return out
 
 
-def check_tables(engine, target: str, names: list[str]) -> None:
+def as_date(value) -> dt.date:
+    if isinstance(value, str):
+        return dt.date.fromisoformat(value[:10])
+    return value.date() if isinstance(value, dt.datetime) else value
+
+
+def check_first_days(engine, target: str, rows) -> None:
+    """The per-user first active dates refresh.sql keeps, against plain Python over the
+    rows the views count."""
+    expected: dict = {}
+    for row in rows:
+        day = counted_day(row)
+        if day is not None:
+            expected[row[0]] = min(day, expected.get(row[0], day))
+    found = {r["user_id"]: as_date(r["first_date"])
+             for r in read_view(engine, "t_sqlgen_first_days", target)}
+    assert found == expected
+
+
+def check_tables(engine, target: str, names: list[str], tables: str = "t_",
+                 views: str = "v_") -> None:
     for name in names:
-        from_view = read_view(engine, f"v_{name}", target)
-        from_table = read_view(engine, f"t_{name}", target)
+        from_view = read_view(engine, f"{views}{name}", target)
+        from_table = read_view(engine, f"{tables}{name}", target)
         assert comparable(from_table) == comparable(from_view), name
 
 
@@ -128,16 +157,23 @@ def batches(draw):
 
 
 def run_case(engine, target: str, grain: str, lookback: int, parts: list[list],
-             interrupt_at: int | None) -> None:
+             interrupt_at: int | None, extra: str = "", users=()) -> None:
+    """``extra``: activity lines of both specs; ``users``: (user, ts) rows of the
+    first-seen table, loaded after the reset."""
     engine.reset()
+    if users:
+        from test_definitions import load_users
+
+        load_users(engine, users, target)
     full, kept = tables_for(target)
-    incremental, views, names = build(target, grain, lookback)
+    incremental, views, names = build(target, grain, lookback, extra)
     engine.create_table(full, COLUMNS, parts[0])
     engine.create_table(kept, COLUMNS, parts[0])
     _run_script(engine, target, views["v_create_all.sql"])
     _run_script(engine, target, incremental["t_create_all.sql"])
     seen, late = list(parts[0]), 0
     check_tables(engine, target, names)
+    check_first_days(engine, target, seen)
     assert state(engine, target)[:2] == (expected_from_day(seen, lookback), 0)
     for number, batch in enumerate(parts[1:], start=1):
         from_day = expected_from_day(seen, lookback)
@@ -153,10 +189,12 @@ def run_case(engine, target: str, grain: str, lookback: int, parts: list[list],
             assert snapshot(engine, target, names) == before, "a failed refresh changed data"
         _run_script(engine, target, incremental["t_refresh.sql"])
         check_tables(engine, target, names)
+        check_first_days(engine, target, seen)
         assert state(engine, target)[:2] == (expected_from_day(seen, lookback), late)
-    done = snapshot(engine, target, names)
+    done = snapshot(engine, target, names, read_from=False)
     _run_script(engine, target, incremental["t_refresh.sql"])  # again: nothing changes
-    assert snapshot(engine, target, names) == done
+    assert snapshot(engine, target, names, read_from=False) == done
+    check_tables(engine, target, names)
 
 
 def broken(script: str) -> str:
@@ -183,6 +221,77 @@ def test_hand_made_batches(engines, engine_name, target):
         [("c", T(2024, 3, 4), "x"), ("a", T(2024, 3, 5), "x")],  # a new month; c back
     ]
     run_case(engines(engine_name), target, "month", 7, parts, interrupt_at=3)
+
+
+@pytest.mark.engines
+@pytest.mark.parametrize("engine_name,target", PAIRS)
+def test_batches_that_change_earlier_periods(engines, engine_name, target):
+    """A pinned log for the per-period refresh, at day, week and month grain with a 2-day
+    lookback (the first refresh reads from Saturday 2024-01-20, in the week of Jan 15):
+    a returns on Jan 23 after a gap older than the period before the changed one (its
+    earlier periods are not read); d's late row on Jan 20 (inside the lookback) makes d
+    retained in the week of Jan 15, where d had churned, and churned in the week after;
+    a NULL user, sentinel dates and a NULL timestamp in the same batch; an old cohort
+    gaining actives; then a late row beyond the lookback and a new month. Monthly, with
+    report_from; weekly, also with first_seen (every table then computed in full)."""
+    T = dt.datetime
+    parts = [
+        [("a", T(2024, 1, 1, 9), "x"), ("b", T(2024, 1, 2), "x"), ("b", T(2024, 1, 9), "x"),
+         ("d", T(2024, 1, 9), "x"), ("c", T(2024, 1, 15), "x"), ("e", T(2024, 1, 22), "x")],
+        [("a", T(2024, 1, 23), "x"), ("d", T(2024, 1, 20, 7), "x"), ("c", T(2024, 1, 21), "x"),
+         (None, T(2024, 1, 23), "x"), ("x", T(1, 1, 1), "x"), ("x", T(9999, 12, 31), "x"),
+         ("f", None, "x")],
+        [],
+        [("e", T(2024, 2, 19), "x"), ("g", T(2024, 2, 20), "x"), ("b", T(2024, 2, 20), "x")],
+        [("a", T(2024, 1, 2), "x"), ("b", T(2024, 2, 21), "x"), ("c", T(2024, 3, 1), "x")],
+    ]
+    engine = engines(engine_name)
+    run_case(engine, target, "day", 2, parts, None)
+    run_case(engine, target, "week", 2, parts, interrupt_at=1)
+    # Monthly with report_from inside the data: the rebuilt rows are cut at both bounds.
+    run_case(engine, target, "month", 2, parts, None, extra="  report_from: 2024-01-15\n")
+    # first_seen: every activity table is computed again in full (a users table can change).
+    from test_definitions import users_table
+
+    seen = (f"  first_seen:\n    table: {users_table(target)}\n    user: user_id\n"
+            "    timestamp: signed_up_at\n")
+    run_case(engine, target, "week", 2, parts, None, extra=seen,
+             users=[("a", T(2023, 12, 1)), ("e", T(2024, 1, 2)), ("g", None)])
+
+
+@pytest.mark.engines
+@pytest.mark.parametrize("engine_name,target", PAIRS)
+def test_two_incremental_specs_in_one_schema(engines, engine_name, target, tmp_path):
+    """Two incremental specs (prefixes t_ and u_, month and week grain) over one source,
+    built into one folder and run in one schema: no file or table is shared, and after a
+    refresh of each, each spec's tables equal its views."""
+    from sqlgen import api
+
+    engine = engines(engine_name)
+    engine.reset()
+    full, _kept = tables_for(target)
+    T = dt.datetime
+    first = [("a", T(2024, 1, 3), "x"), ("b", T(2024, 1, 20), "x"), ("a", T(2024, 2, 5), "x")]
+    later = [("b", T(2024, 2, 6), "x"), ("c", T(2024, 2, 26), "x"), ("a", T(2024, 3, 4), "x")]
+    engine.create_table(full, COLUMNS, first)
+    specs = {"t_": ("month", "v_"), "u_": ("week", "w_")}
+    for prefix, (grain, views) in specs.items():
+        for name, mode in ((prefix, "incremental"), (views, "view")):
+            text = spec_text(target, full, name, grain, 3, mode) + "  folder: out\n"
+            (tmp_path / f"{name}spec.yml").write_text(text)
+    api.build([str(tmp_path)])
+    out = tmp_path / "out"
+    made = {p.name for p in out.iterdir()}
+    assert {"t_refresh.sql", "u_refresh.sql", "t_create_all.sql", "u_create_all.sql"} <= made
+    for name in ("v_", "w_", "t_", "u_"):
+        _run_script(engine, target, (out / f"{name}create_all.sql").read_text())
+    append(engine, full, later)
+    for prefix in specs:
+        _run_script(engine, target, (out / f"{prefix}refresh.sql").read_text())
+    views = planned(parse_spec(spec_text(target, full, "v_", "month", 3, "view")))
+    names = [view.name for _part, view in views if view.name != "activity_source_summary"]
+    for prefix, (_grain, views_prefix) in specs.items():
+        check_tables(engine, target, names, prefix, views_prefix)
 
 
 @pytest.mark.engines
@@ -235,3 +344,39 @@ def test_revenue_tables_follow_their_source(engines, engine_name, target):
         from_table = read_view(engine, f"t_{name}", target)
         assert from_table, name
         assert comparable(from_table) == comparable(read_view(engine, f"v_{name}", target)), name
+
+
+@pytest.mark.engines
+@pytest.mark.parametrize("engine_name,target", PAIRS)
+def test_definitions_are_refreshed_per_period(engines, engine_name, target):
+    """A spec with definitions (another `where`; a report_from of its own): each part keeps
+    its own per-day and first-date tables, and after each refresh every table of every part
+    equals its view (no row here is older than the lookback)."""
+    engine = engines(engine_name)
+    engine.reset()
+    full, _kept = tables_for(target)
+    T = dt.datetime
+    parts = [
+        [("a", T(2024, 1, 1), "purchase"), ("b", T(2024, 1, 9), "x"), ("c", T(2024, 1, 22), "x")],
+        [("a", T(2024, 1, 23), "purchase"), ("b", T(2024, 1, 20), "purchase")],
+        [("c", T(2024, 2, 19), "purchase"), ("d", T(2024, 2, 20), "x")],
+    ]
+    definitions = ("definitions:\n  buyers:\n    where: \"event_name = 'purchase'\"\n"
+                   "  later:\n    report_from: 2024-01-15\n")
+    made = {}
+    engine.create_table(full, COLUMNS, parts[0])
+    for prefix, mode in (("t_", "incremental"), ("v_", "view")):
+        spec = parse_spec(spec_text(target, full, prefix, "week", 2, mode) + definitions)
+        made[prefix] = (spec, render_files(spec))
+        _run_script(engine, target, made[prefix][1][f"{prefix}create_all.sql"])
+    pairs = [(t_part.output.prefix + view.name, v_part.output.prefix + view.name)
+             for (t_part, view), (v_part, _view) in zip(planned(made["t_"][0]),
+                                                         planned(made["v_"][0]))
+             if view.name != "activity_source_summary"]
+    assert any(table.startswith("t_buyers_") for table, _view in pairs)
+    for batch in parts[1:]:
+        append(engine, full, batch)
+        _run_script(engine, target, made["t_"][1]["t_refresh.sql"])
+        for table, view in pairs:
+            assert comparable(read_view(engine, table, target)) == comparable(
+                read_view(engine, view, target)), table

@@ -63,6 +63,17 @@ GROUP BY
   user_id,
   activity_date;
 
+DROP TABLE IF EXISTS `growth`.sqlgen_first_days;
+
+CREATE TABLE `growth`.sqlgen_first_days AS
+/* One row per user with the first active date. */
+SELECT
+  user_id,
+  MIN(activity_date) AS first_date
+FROM `growth`.sqlgen_activity_days
+GROUP BY
+  user_id;
+
 DROP TABLE IF EXISTS `growth`.sqlgen_refresh_state;
 
 CREATE TABLE `growth`.sqlgen_refresh_state AS
@@ -92,7 +103,8 @@ SELECT
         FROM windowed
       )
   ) AS rows_before,
-  CAST(0 AS INT64) AS late_rows
+  CAST(0 AS INT64) AS late_rows,
+  sqlgen_from AS read_from
 FROM windowed;
 
 -- activity_source_summary

@@ -14,7 +14,8 @@
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- CREATE OR REPLACE VIEW cannot change an existing view's columns on this engine: after a change of columns, DROP VIEW ... CASCADE first (or run create_all.sql, which does so).
 -- Brings every table up to date: the source rows from each state table's from_day on are read again,
--- those days computed again, then every table from the per-day table. Running it twice changes nothing.
+-- those days computed again, then each activity table's rows from the period holding the first day read on
+-- (in full with activity.first_seen, and the revenue tables). Running it twice changes no table.
 -- One transaction: a run that fails leaves every table as it was.
 
 BEGIN;
@@ -104,6 +105,10 @@ GROUP BY
   user_id,
   activity_date;
 
+UPDATE "growth".sqlgen_refresh_state SET read_from = from_day
+WHERE
+  TRUE;
+
 UPDATE "growth".sqlgen_refresh_state SET mark_day = COALESCE(
   (
     SELECT
@@ -144,19 +149,77 @@ UPDATE "growth".sqlgen_refresh_state SET from_day = COALESCE(CAST(mark_day + INT
 WHERE
   TRUE;
 
+DELETE FROM "growth".sqlgen_first_days
+WHERE
+  first_date >= (
+    SELECT
+      read_from
+    FROM "growth".sqlgen_refresh_state
+  );
+
+INSERT INTO "growth".sqlgen_first_days
+SELECT
+  d.user_id,
+  MIN(d.activity_date) AS first_date
+FROM "growth".sqlgen_activity_days AS d
+LEFT JOIN "growth".sqlgen_first_days AS k
+  ON k.user_id = d.user_id
+WHERE
+  d.activity_date >= (
+    SELECT
+      read_from
+    FROM "growth".sqlgen_refresh_state
+  )
+  AND k.user_id IS NULL
+GROUP BY
+  d.user_id;
+
 -- user_activity
 DELETE FROM "growth".user_activity
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+      )
+    FROM "growth".sqlgen_refresh_state
+  );
 
 INSERT INTO "growth".user_activity
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM "growth".sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM "growth".sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the changed period on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM "growth".sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(CAST('1970-01-01' AS DATE) + (
+          INTERVAL '1 MONTH' * (
+            changed_key - 23640
+          )
+        ) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -194,21 +257,60 @@ SELECT
   active_days,
   first_active_date,
   last_active_date
-FROM user_periods;
+FROM user_periods
+WHERE
+  period_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  );
 
 -- user_states
 DELETE FROM "growth".user_states
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+      )
+    FROM "growth".sqlgen_refresh_state
+  );
 
 INSERT INTO "growth".user_states
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM "growth".sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM "growth".sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the period before the changed one on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM "growth".sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(CAST('1970-01-01' AS DATE) + (
+          INTERVAL '1 MONTH' * (
+            changed_key - 1 - 23640
+          )
+        ) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -219,8 +321,8 @@ WITH dated AS (
     ) AS period_key,
     sqlgen_events
   FROM dated
-), active_periods AS (
-  /* One row per user and active period (the one grouping of the events), with the last active date. */
+), grouped_periods AS (
+  /* One row per user and active period read, with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -229,12 +331,27 @@ WITH dated AS (
   GROUP BY
     user_id,
     period_key
+), active_periods AS (
+  /* Each active (user, period) read, with first_key: the period of the user's first active date (earlier periods are not read). */
+  SELECT
+    g.user_id,
+    g.period_key,
+    g.last_date,
+    (
+      EXTRACT(YEAR FROM f.first_date) * 12 + EXTRACT(MONTH FROM f.first_date) - 1
+    ) AS first_key
+  FROM grouped_periods AS g
+  JOIN "growth".sqlgen_first_days AS f
+    ON f.user_id = g.user_id
 ), sequenced AS (
-  /* Each active (user, period) with the previous and next active periods of the user. */
+  /* Each active (user, period) with the previous and next active periods of the user (with no previous one read, the first active period when earlier). */
   SELECT
     user_id,
     period_key,
-    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key,
+    COALESCE(
+      LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key),
+      CASE WHEN first_key < period_key THEN first_key END
+    ) AS prior_key,
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS later_key
   FROM active_periods
 ), data_range AS (
@@ -272,6 +389,12 @@ SELECT
     ELSE 'resurrected'
   END AS state
 FROM sequenced
+WHERE
+  period_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  )
 UNION ALL
 SELECT
   user_id,
@@ -282,21 +405,60 @@ SELECT
     )
   ) AS DATE) AS period_start,
   'churned' AS state
-FROM lapsed;
+FROM lapsed
+WHERE
+  lapse_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  );
 
 -- growth_accounting
 DELETE FROM "growth".growth_accounting
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+      )
+    FROM "growth".sqlgen_refresh_state
+  );
 
 INSERT INTO "growth".growth_accounting
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM "growth".sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM "growth".sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the period before the changed one on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM "growth".sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(CAST('1970-01-01' AS DATE) + (
+          INTERVAL '1 MONTH' * (
+            changed_key - 1 - 23640
+          )
+        ) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -307,8 +469,8 @@ WITH dated AS (
     ) AS period_key,
     sqlgen_events
   FROM dated
-), active_periods AS (
-  /* One row per user and active period (the one grouping of the events), with the last active date. */
+), grouped_periods AS (
+  /* One row per user and active period read, with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -317,12 +479,27 @@ WITH dated AS (
   GROUP BY
     user_id,
     period_key
+), active_periods AS (
+  /* Each active (user, period) read, with first_key: the period of the user's first active date (earlier periods are not read). */
+  SELECT
+    g.user_id,
+    g.period_key,
+    g.last_date,
+    (
+      EXTRACT(YEAR FROM f.first_date) * 12 + EXTRACT(MONTH FROM f.first_date) - 1
+    ) AS first_key
+  FROM grouped_periods AS g
+  JOIN "growth".sqlgen_first_days AS f
+    ON f.user_id = g.user_id
 ), sequenced AS (
-  /* Each active (user, period) with the previous active period of the user (NULL: the first). */
+  /* Each active (user, period) with the previous active period of the user (NULL: the first); with none read, the first active period when earlier. */
   SELECT
     period_key,
     last_date,
-    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
+    COALESCE(
+      LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key),
+      CASE WHEN first_key < period_key THEN first_key END
+    ) AS prior_key
   FROM active_periods
 ), tallies AS (
   /* Per period: actives. new (no earlier period), retained (the period before), resurrected (an earlier one). */
@@ -337,9 +514,17 @@ WITH dated AS (
   GROUP BY
     period_key
 ), data_range AS (
-  /* The first and last period with data, and the last active date. */
+  /* The first period of the calendar (the one before the changed period, or the first with data when later), the last period with data, and the last active date. */
   SELECT
-    MIN(tally_key) AS first_key,
+    (
+      SELECT
+        CASE
+          WHEN data_first_key > changed_key - 1
+          THEN data_first_key
+          ELSE changed_key - 1
+        END
+      FROM refresh_bounds
+    ) AS first_key,
     MAX(tally_key) AS last_key,
     MAX(through_tally) AS data_through
   FROM tallies
@@ -459,7 +644,14 @@ SELECT
   CAST(churned_count AS DOUBLE PRECISION) / NULLIF(previous_count, 0) AS churn_rate,
   status AS period_status,
   calendar_key AS period_key
-FROM balanced;
+FROM balanced
+/* Only the periods from the changed one on: refresh.sql deleted them. */
+WHERE
+  calendar_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  );
 
 -- revenue_source_summary
 DELETE FROM "growth".revenue_source_summary
@@ -918,16 +1110,49 @@ FROM filled;
 -- cohort_retention
 DELETE FROM "growth".cohort_retention
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+      )
+    FROM "growth".sqlgen_refresh_state
+  );
 
 INSERT INTO "growth".cohort_retention
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM "growth".sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM "growth".sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the changed period on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM "growth".sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(CAST('1970-01-01' AS DATE) + (
+          INTERVAL '1 MONTH' * (
+            changed_key - 23640
+          )
+        ) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -938,8 +1163,8 @@ WITH dated AS (
     ) AS period_key,
     sqlgen_events
   FROM dated
-), active_periods AS (
-  /* One row per user and active period (the one grouping of the events), with the last active date. */
+), grouped_periods AS (
+  /* One row per user and active period read, with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -948,11 +1173,23 @@ WITH dated AS (
   GROUP BY
     user_id,
     period_key
+), active_periods AS (
+  /* Each active (user, period) read, with first_key: the period of the user's first active date (earlier periods are not read). */
+  SELECT
+    g.user_id,
+    g.period_key,
+    g.last_date,
+    (
+      EXTRACT(YEAR FROM f.first_date) * 12 + EXTRACT(MONTH FROM f.first_date) - 1
+    ) AS first_key
+  FROM grouped_periods AS g
+  JOIN "growth".sqlgen_first_days AS f
+    ON f.user_id = g.user_id
 ), marked AS (
-  /* Each active (user, period) with the cohort of the user: the first active period. */
+  /* Each active (user, period) read with the cohort of the user: the period of the first active date. */
   SELECT
     period_key AS marked_key,
-    MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
+    first_key AS marked_cohort_key
   FROM active_periods
 ), cohort_actives AS (
   /* Actives per cohort and period. */
@@ -965,17 +1202,25 @@ WITH dated AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
-  /* The size of a cohort: its actives in the cohort period. */
+  /* The size of a cohort: the users whose first active date is in it. */
   SELECT
-    active_cohort_key AS size_key,
-    active_count AS size_count
-  FROM cohort_actives
-  WHERE
-    active_key = active_cohort_key
+    (
+      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+    ) AS size_key,
+    COUNT(*) AS size_count
+  FROM "growth".sqlgen_first_days
+  GROUP BY
+    (
+      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+    )
 ), data_range AS (
-  /* The first and last period with data. */
+  /* The first cohort and the last period with data. */
   SELECT
-    MIN(period_key) AS first_data_key,
+    (
+      SELECT
+        data_first_key
+      FROM refresh_bounds
+    ) AS first_data_key,
     MAX(period_key) AS last_data_key
   FROM active_periods
 ), digits AS (
@@ -1034,6 +1279,11 @@ WITH dated AS (
   CROSS JOIN data_range AS r
   WHERE
     s.size_key + 1 * g.age_number <= r.last_data_key
+    AND s.size_key + 1 * g.age_number >= (
+      SELECT
+        changed_key
+      FROM refresh_bounds
+    )
 )
 /* Each cell with its actives (0 when none) and retention = actives / cohort size. */
 SELECT
@@ -1060,16 +1310,49 @@ LEFT JOIN cohort_actives AS c
 -- engagement_depth
 DELETE FROM "growth".engagement_depth
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+      )
+    FROM "growth".sqlgen_refresh_state
+  );
 
 INSERT INTO "growth".engagement_depth
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM "growth".sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM "growth".sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the changed period on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM "growth".sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(CAST('1970-01-01' AS DATE) + (
+          INTERVAL '1 MONTH' * (
+            changed_key - 23640
+          )
+        ) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -1113,9 +1396,13 @@ WITH dated AS (
   GROUP BY
     period_key
 ), data_range AS (
-  /* The first and last period with data, and the last active date. */
+  /* The first period of the calendar (the changed one, or the first with data when later), the last period with data, and the last active date. */
   SELECT
-    MIN(period_key) AS first_key,
+    (
+      SELECT
+        CASE WHEN data_first_key > changed_key THEN data_first_key ELSE changed_key END
+      FROM refresh_bounds
+    ) AS first_key,
     MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
   FROM user_periods
@@ -1248,16 +1535,45 @@ LEFT JOIN period_totals AS t
 -- trailing_activity
 DELETE FROM "growth".trailing_activity
 WHERE
-  TRUE;
+  day_key >= (
+    SELECT
+      (
+        CAST(read_from AS DATE) - CAST('1970-01-05' AS DATE)
+      )
+    FROM "growth".sqlgen_refresh_state
+  );
 
 INSERT INTO "growth".trailing_activity
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM "growth".sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM "growth".sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from 63 days before read_from on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM "growth".sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(changed_date + INTERVAL '-63 DAY' AS DATE)
+      FROM refresh_bounds
+    )
 ), numbered AS (
   /* Each active day as a day number: days since Monday 1970-01-05. */
   SELECT
@@ -1283,17 +1599,34 @@ WITH dated AS (
     MIN(day_number) AS first_day,
     MAX(day_number) AS last_day
   FROM blocked
+  WHERE
+    block_number >= (
+      SELECT
+        (
+          CAST(changed_date AS DATE) - CAST('1970-01-05' AS DATE)
+        ) - 2 * 28 - (
+          (
+            CAST(changed_date AS DATE) - CAST('1970-01-05' AS DATE)
+          ) - 2 * 28 + 700000
+        ) % 7
+      FROM refresh_bounds
+    )
   GROUP BY
     day_user,
     block_number
 ), visits AS (
   /* Each block with the previous block of the user and next active day. */
   SELECT
-    first_day,
-    last_day,
-    LAG(block_number) OVER (PARTITION BY block_user ORDER BY block_number) AS prior_block,
-    LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number) AS next_day
-  FROM user_blocks
+    b.first_day,
+    b.last_day,
+    LAG(b.block_number) OVER (PARTITION BY b.block_user ORDER BY b.block_number) AS prior_block,
+    LEAD(b.first_day) OVER (PARTITION BY b.block_user ORDER BY b.block_number) AS next_day,
+    (
+      CAST(f.first_date AS DATE) - CAST('1970-01-05' AS DATE)
+    ) AS user_first_day
+  FROM user_blocks AS b
+  JOIN "growth".sqlgen_first_days AS f
+    ON f.user_id = b.block_user
 ), window_lengths AS (
   /* The window lengths, in days. */
   SELECT
@@ -1317,7 +1650,7 @@ WITH dated AS (
       THEN v.last_day + 2 * w.window_length
       ELSE v.next_day
     END AS churn_end_day,
-    CASE WHEN v.prior_block IS NULL THEN 1 ELSE 0 END AS first_visit,
+    CASE WHEN v.first_day = v.user_first_day THEN 1 ELSE 0 END AS first_visit,
     CASE
       WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length
       THEN 1
@@ -1398,9 +1731,25 @@ WITH dated AS (
     change_window,
     change_day
 ), data_range AS (
-  /* The first and last active day. */
+  /* The first day of the calendar: the first block read, or read_from when earlier and later than the first active date; the last active day. */
   SELECT
-    MIN(first_day) AS first_day,
+    CASE
+      WHEN MIN(first_day) < (
+        SELECT
+          (
+            CAST(CASE WHEN data_first_date > changed_date THEN data_first_date ELSE changed_date END AS DATE) - CAST('1970-01-05' AS DATE)
+          )
+        FROM refresh_bounds
+      )
+      THEN MIN(first_day)
+      ELSE (
+        SELECT
+          (
+            CAST(CASE WHEN data_first_date > changed_date THEN data_first_date ELSE changed_date END AS DATE) - CAST('1970-01-05' AS DATE)
+          )
+        FROM refresh_bounds
+      )
+    END AS first_day,
     MAX(last_day) AS last_day
   FROM user_blocks
 ), digits AS (
@@ -1501,7 +1850,15 @@ SELECT
   churned_tally AS churned_users,
   CAST(active_tally - retained_tally AS DOUBLE PRECISION) / NULLIF(churned_tally, 0) AS quick_ratio,
   grid_day AS day_key
-FROM tallied;
+FROM tallied
+WHERE
+  grid_day >= (
+    SELECT
+      (
+        CAST(changed_date AS DATE) - CAST('1970-01-05' AS DATE)
+      )
+    FROM refresh_bounds
+  );
 
 -- revenue_cohorts
 DELETE FROM "growth".revenue_cohorts

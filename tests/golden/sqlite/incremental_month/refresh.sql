@@ -13,7 +13,8 @@
 --   grain: month
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Brings every table up to date: the source rows from each state table's from_day on are read again,
--- those days computed again, then every table from the per-day table. Running it twice changes nothing.
+-- those days computed again, then each activity table's rows from the period holding the first day read on
+-- (in full with activity.first_seen, and the revenue tables). Running it twice changes no table.
 -- One transaction: a run that fails leaves every table as it was; run it with `sqlite3 -bail` (or Python's executescript): without -bail the sqlite3 shell goes on after a failed statement and COMMIT keeps the rest.
 
 BEGIN TRANSACTION;
@@ -99,6 +100,10 @@ GROUP BY
   user_id,
   activity_date;
 
+UPDATE sqlgen_refresh_state SET read_from = from_day
+WHERE
+  TRUE;
+
 UPDATE sqlgen_refresh_state SET mark_day = COALESCE(
   (
     SELECT
@@ -139,19 +144,75 @@ UPDATE sqlgen_refresh_state SET from_day = COALESCE(DATE(DATE(mark_day, '-7 DAY'
 WHERE
   TRUE;
 
+DELETE FROM sqlgen_first_days
+WHERE
+  first_date >= (
+    SELECT
+      read_from
+    FROM sqlgen_refresh_state
+  );
+
+INSERT INTO sqlgen_first_days
+SELECT
+  d.user_id,
+  MIN(d.activity_date) AS first_date
+FROM sqlgen_activity_days AS d
+LEFT JOIN sqlgen_first_days AS k
+  ON k.user_id = d.user_id
+WHERE
+  d.activity_date >= (
+    SELECT
+      read_from
+    FROM sqlgen_refresh_state
+  )
+  AND k.user_id IS NULL
+GROUP BY
+  d.user_id;
+
 -- user_activity
 DELETE FROM user_activity
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        CAST(STRFTIME('%Y', read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', read_from) AS INTEGER) - 1
+      )
+    FROM sqlgen_refresh_state
+  );
 
 INSERT INTO user_activity
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      CAST(STRFTIME('%Y', s.read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.read_from) AS INTEGER) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      CAST(STRFTIME('%Y', f.sqlgen_first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.sqlgen_first_date) AS INTEGER) - 1
+    ) AS data_first_key
+  FROM sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the changed period on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        DATE(DATE(DATE('1970-01-01'), (
+          changed_key - 23640
+        ) || ' MONTH'))
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -187,21 +248,58 @@ SELECT
   active_days,
   first_active_date,
   last_active_date
-FROM user_periods;
+FROM user_periods
+WHERE
+  period_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  );
 
 -- user_states
 DELETE FROM user_states
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        CAST(STRFTIME('%Y', read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', read_from) AS INTEGER) - 1
+      )
+    FROM sqlgen_refresh_state
+  );
 
 INSERT INTO user_states
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      CAST(STRFTIME('%Y', s.read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.read_from) AS INTEGER) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      CAST(STRFTIME('%Y', f.sqlgen_first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.sqlgen_first_date) AS INTEGER) - 1
+    ) AS data_first_key
+  FROM sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the period before the changed one on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        DATE(DATE(DATE('1970-01-01'), (
+          changed_key - 1 - 23640
+        ) || ' MONTH'))
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -212,8 +310,8 @@ WITH dated AS (
     ) AS period_key,
     sqlgen_events
   FROM dated
-), active_periods AS (
-  /* One row per user and active period (the one grouping of the events), with the last active date. */
+), grouped_periods AS (
+  /* One row per user and active period read, with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -222,12 +320,27 @@ WITH dated AS (
   GROUP BY
     user_id,
     period_key
+), active_periods AS (
+  /* Each active (user, period) read, with first_key: the period of the user's first active date (earlier periods are not read). */
+  SELECT
+    g.user_id,
+    g.period_key,
+    g.last_date,
+    (
+      CAST(STRFTIME('%Y', f.first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.first_date) AS INTEGER) - 1
+    ) AS first_key
+  FROM grouped_periods AS g
+  JOIN sqlgen_first_days AS f
+    ON f.user_id = g.user_id
 ), sequenced AS (
-  /* Each active (user, period) with the previous and next active periods of the user. */
+  /* Each active (user, period) with the previous and next active periods of the user (with no previous one read, the first active period when earlier). */
   SELECT
     user_id,
     period_key,
-    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key NULLS LAST) AS prior_key,
+    COALESCE(
+      LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key NULLS LAST),
+      CASE WHEN first_key < period_key THEN first_key END
+    ) AS prior_key,
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key NULLS LAST) AS later_key
   FROM active_periods
 ), data_range AS (
@@ -263,6 +376,12 @@ SELECT
     ELSE 'resurrected'
   END AS state
 FROM sequenced
+WHERE
+  period_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  )
 UNION ALL
 SELECT
   user_id,
@@ -271,21 +390,58 @@ SELECT
     lapse_key - 23640
   ) || ' MONTH')) AS period_start,
   'churned' AS state
-FROM lapsed;
+FROM lapsed
+WHERE
+  lapse_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  );
 
 -- growth_accounting
 DELETE FROM growth_accounting
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        CAST(STRFTIME('%Y', read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', read_from) AS INTEGER) - 1
+      )
+    FROM sqlgen_refresh_state
+  );
 
 INSERT INTO growth_accounting
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      CAST(STRFTIME('%Y', s.read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.read_from) AS INTEGER) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      CAST(STRFTIME('%Y', f.sqlgen_first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.sqlgen_first_date) AS INTEGER) - 1
+    ) AS data_first_key
+  FROM sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the period before the changed one on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        DATE(DATE(DATE('1970-01-01'), (
+          changed_key - 1 - 23640
+        ) || ' MONTH'))
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -296,8 +452,8 @@ WITH dated AS (
     ) AS period_key,
     sqlgen_events
   FROM dated
-), active_periods AS (
-  /* One row per user and active period (the one grouping of the events), with the last active date. */
+), grouped_periods AS (
+  /* One row per user and active period read, with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -306,12 +462,27 @@ WITH dated AS (
   GROUP BY
     user_id,
     period_key
+), active_periods AS (
+  /* Each active (user, period) read, with first_key: the period of the user's first active date (earlier periods are not read). */
+  SELECT
+    g.user_id,
+    g.period_key,
+    g.last_date,
+    (
+      CAST(STRFTIME('%Y', f.first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.first_date) AS INTEGER) - 1
+    ) AS first_key
+  FROM grouped_periods AS g
+  JOIN sqlgen_first_days AS f
+    ON f.user_id = g.user_id
 ), sequenced AS (
-  /* Each active (user, period) with the previous active period of the user (NULL: the first). */
+  /* Each active (user, period) with the previous active period of the user (NULL: the first); with none read, the first active period when earlier. */
   SELECT
     period_key,
     last_date,
-    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key NULLS LAST) AS prior_key
+    COALESCE(
+      LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key NULLS LAST),
+      CASE WHEN first_key < period_key THEN first_key END
+    ) AS prior_key
   FROM active_periods
 ), tallies AS (
   /* Per period: actives. new (no earlier period), retained (the period before), resurrected (an earlier one). */
@@ -326,9 +497,17 @@ WITH dated AS (
   GROUP BY
     period_key
 ), data_range AS (
-  /* The first and last period with data, and the last active date. */
+  /* The first period of the calendar (the one before the changed period, or the first with data when later), the last period with data, and the last active date. */
   SELECT
-    MIN(tally_key) AS first_key,
+    (
+      SELECT
+        CASE
+          WHEN data_first_key > changed_key - 1
+          THEN data_first_key
+          ELSE changed_key - 1
+        END
+      FROM refresh_bounds
+    ) AS first_key,
     MAX(tally_key) AS last_key,
     MAX(through_tally) AS data_through
   FROM tallies
@@ -446,7 +625,14 @@ SELECT
   CAST(churned_count AS REAL) / NULLIF(previous_count, 0) AS churn_rate,
   status AS period_status,
   calendar_key AS period_key
-FROM balanced;
+FROM balanced
+/* Only the periods from the changed one on: refresh.sql deleted them. */
+WHERE
+  calendar_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  );
 
 -- revenue_source_summary
 DELETE FROM revenue_source_summary
@@ -901,16 +1087,47 @@ FROM filled;
 -- cohort_retention
 DELETE FROM cohort_retention
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        CAST(STRFTIME('%Y', read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', read_from) AS INTEGER) - 1
+      )
+    FROM sqlgen_refresh_state
+  );
 
 INSERT INTO cohort_retention
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      CAST(STRFTIME('%Y', s.read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.read_from) AS INTEGER) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      CAST(STRFTIME('%Y', f.sqlgen_first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.sqlgen_first_date) AS INTEGER) - 1
+    ) AS data_first_key
+  FROM sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the changed period on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        DATE(DATE(DATE('1970-01-01'), (
+          changed_key - 23640
+        ) || ' MONTH'))
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -921,8 +1138,8 @@ WITH dated AS (
     ) AS period_key,
     sqlgen_events
   FROM dated
-), active_periods AS (
-  /* One row per user and active period (the one grouping of the events), with the last active date. */
+), grouped_periods AS (
+  /* One row per user and active period read, with the last active date. */
   SELECT
     user_id,
     period_key,
@@ -931,11 +1148,23 @@ WITH dated AS (
   GROUP BY
     user_id,
     period_key
+), active_periods AS (
+  /* Each active (user, period) read, with first_key: the period of the user's first active date (earlier periods are not read). */
+  SELECT
+    g.user_id,
+    g.period_key,
+    g.last_date,
+    (
+      CAST(STRFTIME('%Y', f.first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.first_date) AS INTEGER) - 1
+    ) AS first_key
+  FROM grouped_periods AS g
+  JOIN sqlgen_first_days AS f
+    ON f.user_id = g.user_id
 ), marked AS (
-  /* Each active (user, period) with the cohort of the user: the first active period. */
+  /* Each active (user, period) read with the cohort of the user: the period of the first active date. */
   SELECT
     period_key AS marked_key,
-    MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
+    first_key AS marked_cohort_key
   FROM active_periods
 ), cohort_actives AS (
   /* Actives per cohort and period. */
@@ -948,17 +1177,25 @@ WITH dated AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
-  /* The size of a cohort: its actives in the cohort period. */
+  /* The size of a cohort: the users whose first active date is in it. */
   SELECT
-    active_cohort_key AS size_key,
-    active_count AS size_count
-  FROM cohort_actives
-  WHERE
-    active_key = active_cohort_key
+    (
+      CAST(STRFTIME('%Y', first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', first_date) AS INTEGER) - 1
+    ) AS size_key,
+    COUNT(*) AS size_count
+  FROM sqlgen_first_days
+  GROUP BY
+    (
+      CAST(STRFTIME('%Y', first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', first_date) AS INTEGER) - 1
+    )
 ), data_range AS (
-  /* The first and last period with data. */
+  /* The first cohort and the last period with data. */
   SELECT
-    MIN(period_key) AS first_data_key,
+    (
+      SELECT
+        data_first_key
+      FROM refresh_bounds
+    ) AS first_data_key,
     MAX(period_key) AS last_data_key
   FROM active_periods
 ), digits AS (
@@ -1017,6 +1254,11 @@ WITH dated AS (
   CROSS JOIN data_range AS r
   WHERE
     s.size_key + 1 * g.age_number <= r.last_data_key
+    AND s.size_key + 1 * g.age_number >= (
+      SELECT
+        changed_key
+      FROM refresh_bounds
+    )
 )
 /* Each cell with its actives (0 when none) and retention = actives / cohort size. */
 SELECT
@@ -1039,16 +1281,47 @@ LEFT JOIN cohort_actives AS c
 -- engagement_depth
 DELETE FROM engagement_depth
 WHERE
-  TRUE;
+  period_key >= (
+    SELECT
+      (
+        CAST(STRFTIME('%Y', read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', read_from) AS INTEGER) - 1
+      )
+    FROM sqlgen_refresh_state
+  );
 
 INSERT INTO engagement_depth
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      CAST(STRFTIME('%Y', s.read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.read_from) AS INTEGER) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      CAST(STRFTIME('%Y', f.sqlgen_first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.sqlgen_first_date) AS INTEGER) - 1
+    ) AS data_first_key
+  FROM sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the changed period on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        DATE(DATE(DATE('1970-01-01'), (
+          changed_key - 23640
+        ) || ' MONTH'))
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -1092,9 +1365,13 @@ WITH dated AS (
   GROUP BY
     period_key
 ), data_range AS (
-  /* The first and last period with data, and the last active date. */
+  /* The first period of the calendar (the changed one, or the first with data when later), the last period with data, and the last active date. */
   SELECT
-    MIN(period_key) AS first_key,
+    (
+      SELECT
+        CASE WHEN data_first_key > changed_key THEN data_first_key ELSE changed_key END
+      FROM refresh_bounds
+    ) AS first_key,
     MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
   FROM user_periods
@@ -1209,16 +1486,43 @@ LEFT JOIN period_totals AS t
 -- trailing_activity
 DELETE FROM trailing_activity
 WHERE
-  TRUE;
+  day_key >= (
+    SELECT
+      CAST((JULIANDAY(read_from) - JULIANDAY(DATE('1970-01-05'))) AS INTEGER)
+    FROM sqlgen_refresh_state
+  );
 
 INSERT INTO trailing_activity
-WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      CAST(STRFTIME('%Y', s.read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.read_from) AS INTEGER) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      CAST(STRFTIME('%Y', f.sqlgen_first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.sqlgen_first_date) AS INTEGER) - 1
+    ) AS data_first_key
+  FROM sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from 63 days before read_from on. */
   SELECT
     user_id,
     activity_date,
     events AS sqlgen_events
   FROM sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        DATE(DATE(changed_date, '-63 DAY'))
+      FROM refresh_bounds
+    )
 ), numbered AS (
   /* Each active day as a day number: days since Monday 1970-01-05. */
   SELECT
@@ -1242,17 +1546,28 @@ WITH dated AS (
     MIN(day_number) AS first_day,
     MAX(day_number) AS last_day
   FROM blocked
+  WHERE
+    block_number >= (
+      SELECT
+        CAST((JULIANDAY(changed_date) - JULIANDAY(DATE('1970-01-05'))) AS INTEGER) - 2 * 28 - (
+          CAST((JULIANDAY(changed_date) - JULIANDAY(DATE('1970-01-05'))) AS INTEGER) - 2 * 28 + 700000
+        ) % 7
+      FROM refresh_bounds
+    )
   GROUP BY
     day_user,
     block_number
 ), visits AS (
   /* Each block with the previous block of the user and next active day. */
   SELECT
-    first_day,
-    last_day,
-    LAG(block_number) OVER (PARTITION BY block_user ORDER BY block_number NULLS LAST) AS prior_block,
-    LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number NULLS LAST) AS next_day
-  FROM user_blocks
+    b.first_day,
+    b.last_day,
+    LAG(b.block_number) OVER (PARTITION BY b.block_user ORDER BY b.block_number NULLS LAST) AS prior_block,
+    LEAD(b.first_day) OVER (PARTITION BY b.block_user ORDER BY b.block_number NULLS LAST) AS next_day,
+    CAST((JULIANDAY(f.first_date) - JULIANDAY(DATE('1970-01-05'))) AS INTEGER) AS user_first_day
+  FROM user_blocks AS b
+  JOIN sqlgen_first_days AS f
+    ON f.user_id = b.block_user
 ), window_lengths AS (
   /* The window lengths, in days. */
   SELECT
@@ -1276,7 +1591,7 @@ WITH dated AS (
       THEN v.last_day + 2 * w.window_length
       ELSE v.next_day
     END AS churn_end_day,
-    CASE WHEN v.prior_block IS NULL THEN 1 ELSE 0 END AS first_visit,
+    CASE WHEN v.first_day = v.user_first_day THEN 1 ELSE 0 END AS first_visit,
     CASE
       WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length
       THEN 1
@@ -1357,9 +1672,21 @@ WITH dated AS (
     change_window,
     change_day
 ), data_range AS (
-  /* The first and last active day. */
+  /* The first day of the calendar: the first block read, or read_from when earlier and later than the first active date; the last active day. */
   SELECT
-    MIN(first_day) AS first_day,
+    CASE
+      WHEN MIN(first_day) < (
+        SELECT
+          CAST((JULIANDAY(CASE WHEN data_first_date > changed_date THEN data_first_date ELSE changed_date END) - JULIANDAY(DATE('1970-01-05'))) AS INTEGER)
+        FROM refresh_bounds
+      )
+      THEN MIN(first_day)
+      ELSE (
+        SELECT
+          CAST((JULIANDAY(CASE WHEN data_first_date > changed_date THEN data_first_date ELSE changed_date END) - JULIANDAY(DATE('1970-01-05'))) AS INTEGER)
+        FROM refresh_bounds
+      )
+    END AS first_day,
     MAX(last_day) AS last_day
   FROM user_blocks
 ), digits AS (
@@ -1460,7 +1787,13 @@ SELECT
   churned_tally AS churned_users,
   CAST(active_tally - retained_tally AS REAL) / NULLIF(churned_tally, 0) AS quick_ratio,
   grid_day AS day_key
-FROM tallied;
+FROM tallied
+WHERE
+  grid_day >= (
+    SELECT
+      CAST((JULIANDAY(changed_date) - JULIANDAY(DATE('1970-01-05'))) AS INTEGER)
+    FROM refresh_bounds
+  );
 
 -- revenue_cohorts
 DELETE FROM revenue_cohorts

@@ -71,6 +71,21 @@ FROM (
     activity_date
 ) AS temp;
 
+DROP TABLE IF EXISTS [growth].sqlgen_first_days;
+
+SELECT
+  *
+INTO [growth].sqlgen_first_days
+FROM (
+  /* One row per user with the first active date. */
+  SELECT
+    user_id AS user_id,
+    MIN(activity_date) AS first_date
+  FROM [growth].sqlgen_activity_days
+  GROUP BY
+    user_id
+) AS temp;
+
 DROP TABLE IF EXISTS [growth].sqlgen_refresh_state;
 
 WITH marked AS (
@@ -103,7 +118,8 @@ FROM (
           FROM windowed
         )
     ) AS rows_before,
-    CAST(0 AS BIGINT) AS late_rows
+    CAST(0 AS BIGINT) AS late_rows,
+    sqlgen_from AS read_from
   FROM windowed
 ) AS temp;
 

@@ -13,7 +13,8 @@
 --   grain: month
 -- Management metrics, not audited financial statements: check definitions before quoting a figure.
 -- Brings every table up to date: the source rows from each state table's from_day on are read again,
--- those days computed again, then every table from the per-day table. Running it twice changes nothing.
+-- those days computed again, then each activity table's rows from the period holding the first day read on
+-- (in full with activity.first_seen, and the revenue tables). Running it twice changes no table.
 -- One transaction: a run that fails leaves every table as it was; the file is one batch (no GO): each view runs through sp_executesql, and XACT_ABORT ON rolls the whole transaction back on an error.
 
 SET XACT_ABORT ON;
@@ -102,6 +103,10 @@ GROUP BY
   user_id,
   activity_date';
 
+EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET read_from = from_day
+WHERE
+  (1 = 1)';
+
 EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET mark_day = COALESCE(
   (
     SELECT
@@ -142,18 +147,72 @@ EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET from_day = COAL
 WHERE
   (1 = 1)';
 
+EXECUTE sp_executesql N'DELETE FROM [growth].sqlgen_first_days
+WHERE
+  first_date >= (
+    SELECT
+      read_from
+    FROM [growth].sqlgen_refresh_state
+  )';
+
+EXECUTE sp_executesql N'INSERT INTO [growth].sqlgen_first_days
+SELECT
+  d.user_id,
+  MIN(d.activity_date) AS first_date
+FROM [growth].sqlgen_activity_days AS d
+LEFT JOIN [growth].sqlgen_first_days AS k
+  ON k.user_id = d.user_id
+WHERE
+  d.activity_date >= (
+    SELECT
+      read_from
+    FROM [growth].sqlgen_refresh_state
+  )
+  AND k.user_id IS NULL
+GROUP BY
+  d.user_id';
+
 -- user_activity
 EXECUTE sp_executesql N'DELETE FROM [growth].user_activity
 WHERE
-  (1 = 1)';
+  period_key >= (
+    SELECT
+      (
+        DATEPART(YEAR, read_from) * 12 + DATEPART(MONTH, read_from) - 1
+      )
+    FROM [growth].sqlgen_refresh_state
+  )';
 
-EXECUTE sp_executesql N'WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+EXECUTE sp_executesql N'WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state''s read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      DATEPART(YEAR, s.read_from) * 12 + DATEPART(MONTH, s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      DATEPART(YEAR, f.sqlgen_first_date) * 12 + DATEPART(MONTH, f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM [growth].sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM [growth].sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the changed period on. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
     events AS sqlgen_events
   FROM [growth].sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(DATEADD(MONTH, changed_key - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -188,20 +247,55 @@ SELECT
   active_days,
   first_active_date,
   last_active_date
-FROM user_periods';
+FROM user_periods
+WHERE
+  period_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  )';
 
 -- user_states
 EXECUTE sp_executesql N'DELETE FROM [growth].user_states
 WHERE
-  (1 = 1)';
+  period_key >= (
+    SELECT
+      (
+        DATEPART(YEAR, read_from) * 12 + DATEPART(MONTH, read_from) - 1
+      )
+    FROM [growth].sqlgen_refresh_state
+  )';
 
-EXECUTE sp_executesql N'WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+EXECUTE sp_executesql N'WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state''s read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      DATEPART(YEAR, s.read_from) * 12 + DATEPART(MONTH, s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      DATEPART(YEAR, f.sqlgen_first_date) * 12 + DATEPART(MONTH, f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM [growth].sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM [growth].sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the period before the changed one on. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
     events AS sqlgen_events
   FROM [growth].sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(DATEADD(MONTH, changed_key - 1 - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -212,8 +306,8 @@ EXECUTE sp_executesql N'WITH dated AS (
     ) AS period_key,
     sqlgen_events AS sqlgen_events
   FROM dated
-), active_periods AS (
-  /* One row per user and active period (the one grouping of the events), with the last active date. */
+), grouped_periods AS (
+  /* One row per user and active period read, with the last active date. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -222,12 +316,27 @@ EXECUTE sp_executesql N'WITH dated AS (
   GROUP BY
     user_id,
     period_key
+), active_periods AS (
+  /* Each active (user, period) read, with first_key: the period of the user''s first active date (earlier periods are not read). */
+  SELECT
+    g.user_id AS user_id,
+    g.period_key AS period_key,
+    g.last_date AS last_date,
+    (
+      DATEPART(YEAR, f.first_date) * 12 + DATEPART(MONTH, f.first_date) - 1
+    ) AS first_key
+  FROM grouped_periods AS g
+  JOIN [growth].sqlgen_first_days AS f
+    ON f.user_id = g.user_id
 ), sequenced AS (
-  /* Each active (user, period) with the previous and next active periods of the user. */
+  /* Each active (user, period) with the previous and next active periods of the user (with no previous one read, the first active period when earlier). */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
-    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key,
+    COALESCE(
+      LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key),
+      CASE WHEN first_key < period_key THEN first_key END
+    ) AS prior_key,
     LEAD(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS later_key
   FROM active_periods
 ), data_range AS (
@@ -262,26 +371,67 @@ SELECT
     ELSE ''resurrected''
   END AS state
 FROM sequenced
+WHERE
+  period_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  )
 UNION ALL
 SELECT
   user_id,
   lapse_key AS period_key,
   CAST(DATEADD(MONTH, lapse_key - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE) AS period_start,
   ''churned'' AS state
-FROM lapsed';
+FROM lapsed
+WHERE
+  lapse_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  )';
 
 -- growth_accounting
 EXECUTE sp_executesql N'DELETE FROM [growth].growth_accounting
 WHERE
-  (1 = 1)';
+  period_key >= (
+    SELECT
+      (
+        DATEPART(YEAR, read_from) * 12 + DATEPART(MONTH, read_from) - 1
+      )
+    FROM [growth].sqlgen_refresh_state
+  )';
 
-EXECUTE sp_executesql N'WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+EXECUTE sp_executesql N'WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state''s read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      DATEPART(YEAR, s.read_from) * 12 + DATEPART(MONTH, s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      DATEPART(YEAR, f.sqlgen_first_date) * 12 + DATEPART(MONTH, f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM [growth].sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM [growth].sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the period before the changed one on. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
     events AS sqlgen_events
   FROM [growth].sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(DATEADD(MONTH, changed_key - 1 - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -292,8 +442,8 @@ EXECUTE sp_executesql N'WITH dated AS (
     ) AS period_key,
     sqlgen_events AS sqlgen_events
   FROM dated
-), active_periods AS (
-  /* One row per user and active period (the one grouping of the events), with the last active date. */
+), grouped_periods AS (
+  /* One row per user and active period read, with the last active date. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -302,12 +452,27 @@ EXECUTE sp_executesql N'WITH dated AS (
   GROUP BY
     user_id,
     period_key
+), active_periods AS (
+  /* Each active (user, period) read, with first_key: the period of the user''s first active date (earlier periods are not read). */
+  SELECT
+    g.user_id AS user_id,
+    g.period_key AS period_key,
+    g.last_date AS last_date,
+    (
+      DATEPART(YEAR, f.first_date) * 12 + DATEPART(MONTH, f.first_date) - 1
+    ) AS first_key
+  FROM grouped_periods AS g
+  JOIN [growth].sqlgen_first_days AS f
+    ON f.user_id = g.user_id
 ), sequenced AS (
-  /* Each active (user, period) with the previous active period of the user (NULL: the first). */
+  /* Each active (user, period) with the previous active period of the user (NULL: the first); with none read, the first active period when earlier. */
   SELECT
     period_key AS period_key,
     last_date AS last_date,
-    LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key) AS prior_key
+    COALESCE(
+      LAG(period_key) OVER (PARTITION BY user_id ORDER BY period_key),
+      CASE WHEN first_key < period_key THEN first_key END
+    ) AS prior_key
   FROM active_periods
 ), tallies AS (
   /* Per period: actives. new (no earlier period), retained (the period before), resurrected (an earlier one). */
@@ -322,9 +487,17 @@ EXECUTE sp_executesql N'WITH dated AS (
   GROUP BY
     period_key
 ), data_range AS (
-  /* The first and last period with data, and the last active date. */
+  /* The first period of the calendar (the one before the changed period, or the first with data when later), the last period with data, and the last active date. */
   SELECT
-    MIN(tally_key) AS first_key,
+    (
+      SELECT
+        CASE
+          WHEN data_first_key > changed_key - 1
+          THEN data_first_key
+          ELSE changed_key - 1
+        END
+      FROM refresh_bounds
+    ) AS first_key,
     MAX(tally_key) AS last_key,
     MAX(through_tally) AS data_through
   FROM tallies
@@ -441,7 +614,14 @@ SELECT
   CAST(churned_count AS FLOAT) / NULLIF(previous_count, 0) AS churn_rate,
   status AS period_status,
   calendar_key AS period_key
-FROM balanced';
+FROM balanced
+/* Only the periods from the changed one on: refresh.sql deleted them. */
+WHERE
+  calendar_key >= (
+    SELECT
+      changed_key
+    FROM refresh_bounds
+  )';
 
 -- revenue_source_summary
 EXECUTE sp_executesql N'DELETE FROM [growth].revenue_source_summary
@@ -892,15 +1072,44 @@ FROM filled';
 -- cohort_retention
 EXECUTE sp_executesql N'DELETE FROM [growth].cohort_retention
 WHERE
-  (1 = 1)';
+  period_key >= (
+    SELECT
+      (
+        DATEPART(YEAR, read_from) * 12 + DATEPART(MONTH, read_from) - 1
+      )
+    FROM [growth].sqlgen_refresh_state
+  )';
 
-EXECUTE sp_executesql N'WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+EXECUTE sp_executesql N'WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state''s read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      DATEPART(YEAR, s.read_from) * 12 + DATEPART(MONTH, s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      DATEPART(YEAR, f.sqlgen_first_date) * 12 + DATEPART(MONTH, f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM [growth].sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM [growth].sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the changed period on. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
     events AS sqlgen_events
   FROM [growth].sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(DATEADD(MONTH, changed_key - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -911,8 +1120,8 @@ EXECUTE sp_executesql N'WITH dated AS (
     ) AS period_key,
     sqlgen_events AS sqlgen_events
   FROM dated
-), active_periods AS (
-  /* One row per user and active period (the one grouping of the events), with the last active date. */
+), grouped_periods AS (
+  /* One row per user and active period read, with the last active date. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
@@ -921,11 +1130,23 @@ EXECUTE sp_executesql N'WITH dated AS (
   GROUP BY
     user_id,
     period_key
+), active_periods AS (
+  /* Each active (user, period) read, with first_key: the period of the user''s first active date (earlier periods are not read). */
+  SELECT
+    g.user_id AS user_id,
+    g.period_key AS period_key,
+    g.last_date AS last_date,
+    (
+      DATEPART(YEAR, f.first_date) * 12 + DATEPART(MONTH, f.first_date) - 1
+    ) AS first_key
+  FROM grouped_periods AS g
+  JOIN [growth].sqlgen_first_days AS f
+    ON f.user_id = g.user_id
 ), marked AS (
-  /* Each active (user, period) with the cohort of the user: the first active period. */
+  /* Each active (user, period) read with the cohort of the user: the period of the first active date. */
   SELECT
     period_key AS marked_key,
-    MIN(period_key) OVER (PARTITION BY user_id) AS marked_cohort_key
+    first_key AS marked_cohort_key
   FROM active_periods
 ), cohort_actives AS (
   /* Actives per cohort and period. */
@@ -938,17 +1159,25 @@ EXECUTE sp_executesql N'WITH dated AS (
     marked_cohort_key,
     marked_key
 ), cohort_sizes AS (
-  /* The size of a cohort: its actives in the cohort period. */
+  /* The size of a cohort: the users whose first active date is in it. */
   SELECT
-    active_cohort_key AS size_key,
-    active_count AS size_count
-  FROM cohort_actives
-  WHERE
-    active_key = active_cohort_key
+    (
+      DATEPART(YEAR, first_date) * 12 + DATEPART(MONTH, first_date) - 1
+    ) AS size_key,
+    COUNT_BIG(*) AS size_count
+  FROM [growth].sqlgen_first_days
+  GROUP BY
+    (
+      DATEPART(YEAR, first_date) * 12 + DATEPART(MONTH, first_date) - 1
+    )
 ), data_range AS (
-  /* The first and last period with data. */
+  /* The first cohort and the last period with data. */
   SELECT
-    MIN(period_key) AS first_data_key,
+    (
+      SELECT
+        data_first_key
+      FROM refresh_bounds
+    ) AS first_data_key,
     MAX(period_key) AS last_data_key
   FROM active_periods
 ), digits AS (
@@ -1007,6 +1236,11 @@ EXECUTE sp_executesql N'WITH dated AS (
   CROSS JOIN data_range AS r
   WHERE
     s.size_key + 1 * g.age_number <= r.last_data_key
+    AND s.size_key + 1 * g.age_number >= (
+      SELECT
+        changed_key
+      FROM refresh_bounds
+    )
 )
 INSERT INTO [growth].cohort_retention
 /* Each cell with its actives (0 when none) and retention = actives / cohort size. */
@@ -1026,15 +1260,44 @@ LEFT JOIN cohort_actives AS c
 -- engagement_depth
 EXECUTE sp_executesql N'DELETE FROM [growth].engagement_depth
 WHERE
-  (1 = 1)';
+  period_key >= (
+    SELECT
+      (
+        DATEPART(YEAR, read_from) * 12 + DATEPART(MONTH, read_from) - 1
+      )
+    FROM [growth].sqlgen_refresh_state
+  )';
 
-EXECUTE sp_executesql N'WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+EXECUTE sp_executesql N'WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state''s read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      DATEPART(YEAR, s.read_from) * 12 + DATEPART(MONTH, s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      DATEPART(YEAR, f.sqlgen_first_date) * 12 + DATEPART(MONTH, f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM [growth].sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM [growth].sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from the changed period on. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
     events AS sqlgen_events
   FROM [growth].sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(DATEADD(MONTH, changed_key - 23640, CAST(''1970-01-01'' AS DATE)) AS DATE)
+      FROM refresh_bounds
+    )
 ), keyed AS (
   /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
   SELECT
@@ -1078,9 +1341,13 @@ EXECUTE sp_executesql N'WITH dated AS (
   GROUP BY
     period_key
 ), data_range AS (
-  /* The first and last period with data, and the last active date. */
+  /* The first period of the calendar (the changed one, or the first with data when later), the last period with data, and the last active date. */
   SELECT
-    MIN(period_key) AS first_key,
+    (
+      SELECT
+        CASE WHEN data_first_key > changed_key THEN data_first_key ELSE changed_key END
+      FROM refresh_bounds
+    ) AS first_key,
     MAX(period_key) AS last_key,
     MAX(last_active_date) AS data_through
   FROM user_periods
@@ -1196,15 +1463,42 @@ LEFT JOIN period_totals AS t
 -- trailing_activity
 EXECUTE sp_executesql N'DELETE FROM [growth].trailing_activity
 WHERE
-  (1 = 1)';
+  day_key >= (
+    SELECT
+      DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), read_from)
+    FROM [growth].sqlgen_refresh_state
+  )';
 
-EXECUTE sp_executesql N'WITH dated AS (
-  /* The activity rows that count, grouped by user and local date (the table refresh.sql keeps up to date). */
+EXECUTE sp_executesql N'WITH refresh_bounds AS (
+  /* refresh.sql: the first period it computes again (the one holding the state''s read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  SELECT
+    (
+      DATEPART(YEAR, s.read_from) * 12 + DATEPART(MONTH, s.read_from) - 1
+    ) AS changed_key,
+    s.read_from AS changed_date,
+    f.sqlgen_first_date AS data_first_date,
+    (
+      DATEPART(YEAR, f.sqlgen_first_date) * 12 + DATEPART(MONTH, f.sqlgen_first_date) - 1
+    ) AS data_first_key
+  FROM [growth].sqlgen_refresh_state AS s
+  CROSS JOIN (
+    SELECT
+      MIN(first_date) AS sqlgen_first_date
+    FROM [growth].sqlgen_first_days
+  ) AS f
+), dated AS (
+  /* The per-(user, day) rows the changed rows depend on: from 63 days before read_from on. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
     events AS sqlgen_events
   FROM [growth].sqlgen_activity_days
+  WHERE
+    activity_date >= (
+      SELECT
+        CAST(DATEADD(DAY, -63, changed_date) AS DATE)
+      FROM refresh_bounds
+    )
 ), numbered AS (
   /* Each active day as a day number: days since Monday 1970-01-05. */
   SELECT
@@ -1228,17 +1522,28 @@ EXECUTE sp_executesql N'WITH dated AS (
     MIN(day_number) AS first_day,
     MAX(day_number) AS last_day
   FROM blocked
+  WHERE
+    block_number >= (
+      SELECT
+        DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), changed_date) - 2 * 28 - (
+          DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), changed_date) - 2 * 28 + 700000
+        ) % 7
+      FROM refresh_bounds
+    )
   GROUP BY
     day_user,
     block_number
 ), visits AS (
   /* Each block with the previous block of the user and next active day. */
   SELECT
-    first_day AS first_day,
-    last_day AS last_day,
-    LAG(block_number) OVER (PARTITION BY block_user ORDER BY block_number) AS prior_block,
-    LEAD(first_day) OVER (PARTITION BY block_user ORDER BY block_number) AS next_day
-  FROM user_blocks
+    b.first_day AS first_day,
+    b.last_day AS last_day,
+    LAG(b.block_number) OVER (PARTITION BY b.block_user ORDER BY b.block_number) AS prior_block,
+    LEAD(b.first_day) OVER (PARTITION BY b.block_user ORDER BY b.block_number) AS next_day,
+    DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), f.first_date) AS user_first_day
+  FROM user_blocks AS b
+  JOIN [growth].sqlgen_first_days AS f
+    ON f.user_id = b.block_user
 ), window_lengths AS (
   /* The window lengths, in days. */
   SELECT
@@ -1262,7 +1567,7 @@ EXECUTE sp_executesql N'WITH dated AS (
       THEN v.last_day + 2 * w.window_length
       ELSE v.next_day
     END AS churn_end_day,
-    CASE WHEN v.prior_block IS NULL THEN 1 ELSE 0 END AS first_visit,
+    CASE WHEN v.first_day = v.user_first_day THEN 1 ELSE 0 END AS first_visit,
     CASE
       WHEN v.next_day IS NULL OR v.next_day > v.last_day + w.window_length
       THEN 1
@@ -1343,9 +1648,29 @@ EXECUTE sp_executesql N'WITH dated AS (
     change_window,
     change_day
 ), data_range AS (
-  /* The first and last active day. */
+  /* The first day of the calendar: the first block read, or read_from when earlier and later than the first active date; the last active day. */
   SELECT
-    MIN(first_day) AS first_day,
+    CASE
+      WHEN MIN(first_day) < (
+        SELECT
+          DATEDIFF(
+            DAY,
+            CAST(''1970-01-05'' AS DATE),
+            CASE WHEN data_first_date > changed_date THEN data_first_date ELSE changed_date END
+          )
+        FROM refresh_bounds
+      )
+      THEN MIN(first_day)
+      ELSE (
+        SELECT
+          DATEDIFF(
+            DAY,
+            CAST(''1970-01-05'' AS DATE),
+            CASE WHEN data_first_date > changed_date THEN data_first_date ELSE changed_date END
+          )
+        FROM refresh_bounds
+      )
+    END AS first_day,
     MAX(last_day) AS last_day
   FROM user_blocks
 ), digits AS (
@@ -1445,7 +1770,13 @@ SELECT
   churned_tally AS churned_users,
   CAST(active_tally - retained_tally AS FLOAT) / NULLIF(churned_tally, 0) AS quick_ratio,
   grid_day AS day_key
-FROM tallied';
+FROM tallied
+WHERE
+  grid_day >= (
+    SELECT
+      DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), changed_date)
+    FROM refresh_bounds
+  )';
 
 -- revenue_cohorts
 EXECUTE sp_executesql N'DELETE FROM [growth].revenue_cohorts
