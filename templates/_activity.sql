@@ -15,13 +15,15 @@
                     the events; everything after it reads a table many times smaller.
                     With first_seen, also seen_key: the period the user was first seen in
                     (NULL when the users table has no valid date for the user).
-  user_periods()    keyed() and the CTE user_periods: one row per user and active period
-                    with its events, distinct active days and first and last active dates.
+  user_periods()    source_ctes(), the CTEs user_days (one row per user and active day,
+                    with its events) and keyed_days, and user_periods: one row per user
+                    and active period with its events, distinct active days and first and
+                    last active dates.
 A view reads these CTEs rather than another view, so that each is computed once per query
 however often the view refers to it.
 With `output.materialize: incremental` (from_days), source_ctes() reads the per-(user, day)
 table instead (its rows are what `dated` grouped by user and date, with their count as
-sqlgen_events), and user_periods() adds those counts up; every other CTE is unchanged.
+sqlgen_events), which user_periods() takes as its user_days; every other CTE is unchanged.
 since (source_ctes) keeps only the rows from the state table's from_day on: the rows a
 refresh reads again.
 With refresh (refresh.sql's query of a table it computes again from the first changed
@@ -162,16 +164,30 @@ seen_source AS (
 {%- endmacro -%}
 
 {%- macro user_periods(reads='period') -%}
-{{ keyed(reads=reads) }}, user_periods AS (
+{{ source_ctes(reads=reads) }}, user_days AS (
+  /* One row per user and active day with its events: the rows are grouped once, so the distinct active days of a period are its rows (a DISTINCT count would group them a second time). */
+{%- if from_days %}
+  SELECT user_id, activity_date, sqlgen_events AS day_events
+  FROM dated
+{%- else %}
+  SELECT user_id, activity_date, COUNT(*) AS day_events
+  FROM dated
+  GROUP BY user_id, activity_date
+{%- endif %}
+), keyed_days AS (
+  /* Each user's active day with its period key. */
+  SELECT user_id, activity_date, {{ p.period_key('activity_date') }} AS period_key, day_events
+  FROM user_days
+), user_periods AS (
   /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
-    {% if from_days %}SUM(sqlgen_events){% else %}COUNT(*){% endif %} AS events,
-    COUNT(DISTINCT activity_date) AS active_days,
+    CAST(SUM(day_events) AS BIGINT) AS events,
+    COUNT(*) AS active_days,
     MIN(activity_date) AS first_active_date,
     MAX(activity_date) AS last_active_date
-  FROM keyed
+  FROM keyed_days
   GROUP BY user_id, period_key
 )
 {%- endmacro -%}

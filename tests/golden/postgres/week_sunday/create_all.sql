@@ -120,8 +120,18 @@ WITH sqlgen_source AS (
   WHERE
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
-), keyed AS (
-  /* period_key: days since Monday 1970-01-05, a week keyed by its first day, so adjacent periods differ by the step in days. */
+), user_days AS (
+  /* One row per user and active day with its events: the rows are grouped once, so the distinct active days of a period are its rows (a DISTINCT count would group them a second time). */
+  SELECT
+    user_id,
+    activity_date,
+    COUNT(*) AS day_events
+  FROM dated
+  GROUP BY
+    user_id,
+    activity_date
+), keyed_days AS (
+  /* Each user's active day with its period key. */
   SELECT
     user_id,
     activity_date,
@@ -133,18 +143,19 @@ WITH sqlgen_source AS (
           CAST(activity_date AS DATE) - CAST('1970-01-05' AS DATE)
         ) + 699994
       ) % 7
-    ) AS period_key
-  FROM dated
+    ) AS period_key,
+    day_events
+  FROM user_days
 ), user_periods AS (
   /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
-    COUNT(*) AS events,
-    COUNT(DISTINCT activity_date) AS active_days,
+    CAST(SUM(day_events) AS BIGINT) AS events,
+    COUNT(*) AS active_days,
     MIN(activity_date) AS first_active_date,
     MAX(activity_date) AS last_active_date
-  FROM keyed
+  FROM keyed_days
   GROUP BY
     user_id,
     period_key
@@ -677,8 +688,18 @@ WITH sqlgen_source AS (
   WHERE
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
-), keyed AS (
-  /* period_key: days since Monday 1970-01-05, a week keyed by its first day, so adjacent periods differ by the step in days. */
+), user_days AS (
+  /* One row per user and active day with its events: the rows are grouped once, so the distinct active days of a period are its rows (a DISTINCT count would group them a second time). */
+  SELECT
+    user_id,
+    activity_date,
+    COUNT(*) AS day_events
+  FROM dated
+  GROUP BY
+    user_id,
+    activity_date
+), keyed_days AS (
+  /* Each user's active day with its period key. */
   SELECT
     user_id,
     activity_date,
@@ -690,18 +711,19 @@ WITH sqlgen_source AS (
           CAST(activity_date AS DATE) - CAST('1970-01-05' AS DATE)
         ) + 699994
       ) % 7
-    ) AS period_key
-  FROM dated
+    ) AS period_key,
+    day_events
+  FROM user_days
 ), user_periods AS (
   /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
-    COUNT(*) AS events,
-    COUNT(DISTINCT activity_date) AS active_days,
+    CAST(SUM(day_events) AS BIGINT) AS events,
+    COUNT(*) AS active_days,
     MIN(activity_date) AS first_active_date,
     MAX(activity_date) AS last_active_date
-  FROM keyed
+  FROM keyed_days
   GROUP BY
     user_id,
     period_key

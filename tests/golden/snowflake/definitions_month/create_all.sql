@@ -105,25 +105,36 @@ WITH sqlgen_source AS (
   WHERE
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
-), keyed AS (
-  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
+), user_days AS (
+  /* One row per user and active day with its events: the rows are grouped once, so the distinct active days of a period are its rows (a DISTINCT count would group them a second time). */
+  SELECT
+    user_id,
+    activity_date,
+    COUNT(*) AS day_events
+  FROM dated
+  GROUP BY
+    user_id,
+    activity_date
+), keyed_days AS (
+  /* Each user's active day with its period key. */
   SELECT
     user_id,
     activity_date,
     (
       DATE_PART(YEAR, activity_date) * 12 + DATE_PART(MONTH, activity_date) - 1
-    ) AS period_key
-  FROM dated
+    ) AS period_key,
+    day_events
+  FROM user_days
 ), user_periods AS (
   /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
-    COUNT(*) AS events,
-    COUNT(DISTINCT activity_date) AS active_days,
+    CAST(SUM(day_events) AS BIGINT) AS events,
+    COUNT(*) AS active_days,
     MIN(activity_date) AS first_active_date,
     MAX(activity_date) AS last_active_date
-  FROM keyed
+  FROM keyed_days
   GROUP BY
     user_id,
     period_key
@@ -805,25 +816,36 @@ WITH sqlgen_source AS (
   WHERE
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
-), keyed AS (
-  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
+), user_days AS (
+  /* One row per user and active day with its events: the rows are grouped once, so the distinct active days of a period are its rows (a DISTINCT count would group them a second time). */
+  SELECT
+    user_id,
+    activity_date,
+    COUNT(*) AS day_events
+  FROM dated
+  GROUP BY
+    user_id,
+    activity_date
+), keyed_days AS (
+  /* Each user's active day with its period key. */
   SELECT
     user_id,
     activity_date,
     (
       DATE_PART(YEAR, activity_date) * 12 + DATE_PART(MONTH, activity_date) - 1
-    ) AS period_key
-  FROM dated
+    ) AS period_key,
+    day_events
+  FROM user_days
 ), user_periods AS (
   /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
-    COUNT(*) AS events,
-    COUNT(DISTINCT activity_date) AS active_days,
+    CAST(SUM(day_events) AS BIGINT) AS events,
+    COUNT(*) AS active_days,
     MIN(activity_date) AS first_active_date,
     MAX(activity_date) AS last_active_date
-  FROM keyed
+  FROM keyed_days
   GROUP BY
     user_id,
     period_key
@@ -1392,25 +1414,36 @@ WITH sqlgen_source AS (
   WHERE
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
-), keyed AS (
-  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
+), user_days AS (
+  /* One row per user and active day with its events: the rows are grouped once, so the distinct active days of a period are its rows (a DISTINCT count would group them a second time). */
+  SELECT
+    user_id,
+    activity_date,
+    COUNT(*) AS day_events
+  FROM dated
+  GROUP BY
+    user_id,
+    activity_date
+), keyed_days AS (
+  /* Each user's active day with its period key. */
   SELECT
     user_id,
     activity_date,
     (
       DATE_PART(YEAR, activity_date) * 12 + DATE_PART(MONTH, activity_date) - 1
-    ) AS period_key
-  FROM dated
+    ) AS period_key,
+    day_events
+  FROM user_days
 ), user_periods AS (
   /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
-    COUNT(*) AS events,
-    COUNT(DISTINCT activity_date) AS active_days,
+    CAST(SUM(day_events) AS BIGINT) AS events,
+    COUNT(*) AS active_days,
     MIN(activity_date) AS first_active_date,
     MAX(activity_date) AS last_active_date
-  FROM keyed
+  FROM keyed_days
   GROUP BY
     user_id,
     period_key
@@ -2092,25 +2125,36 @@ WITH sqlgen_source AS (
   WHERE
     sqlgen_date >= CAST('1990-01-01' AS DATE)
     AND sqlgen_date < CAST('2100-01-01' AS DATE)
-), keyed AS (
-  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
+), user_days AS (
+  /* One row per user and active day with its events: the rows are grouped once, so the distinct active days of a period are its rows (a DISTINCT count would group them a second time). */
+  SELECT
+    user_id,
+    activity_date,
+    COUNT(*) AS day_events
+  FROM dated
+  GROUP BY
+    user_id,
+    activity_date
+), keyed_days AS (
+  /* Each user's active day with its period key. */
   SELECT
     user_id,
     activity_date,
     (
       DATE_PART(YEAR, activity_date) * 12 + DATE_PART(MONTH, activity_date) - 1
-    ) AS period_key
-  FROM dated
+    ) AS period_key,
+    day_events
+  FROM user_days
 ), user_periods AS (
   /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id,
     period_key,
-    COUNT(*) AS events,
-    COUNT(DISTINCT activity_date) AS active_days,
+    CAST(SUM(day_events) AS BIGINT) AS events,
+    COUNT(*) AS active_days,
     MIN(activity_date) AS first_active_date,
     MAX(activity_date) AS last_active_date
-  FROM keyed
+  FROM keyed_days
   GROUP BY
     user_id,
     period_key

@@ -19,26 +19,33 @@ WITH dated AS (
     activity_date AS activity_date,
     events AS sqlgen_events
   FROM [growth].sqlgen_activity_days
-), keyed AS (
-  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
+), user_days AS (
+  /* One row per user and active day with its events: the rows are grouped once, so the distinct active days of a period are its rows (a DISTINCT count would group them a second time). */
+  SELECT
+    user_id AS user_id,
+    activity_date AS activity_date,
+    sqlgen_events AS day_events
+  FROM dated
+), keyed_days AS (
+  /* Each user's active day with its period key. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
     (
       DATEPART(YEAR, activity_date) * 12 + DATEPART(MONTH, activity_date) - 1
     ) AS period_key,
-    sqlgen_events AS sqlgen_events
-  FROM dated
+    day_events AS day_events
+  FROM user_days
 ), user_periods AS (
   /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
-    SUM(sqlgen_events) AS events,
-    COUNT_BIG(DISTINCT activity_date) AS active_days,
+    CAST(SUM(day_events) AS BIGINT) AS events,
+    COUNT_BIG(*) AS active_days,
     MIN(activity_date) AS first_active_date,
     MAX(activity_date) AS last_active_date
-  FROM keyed
+  FROM keyed_days
   GROUP BY
     user_id,
     period_key

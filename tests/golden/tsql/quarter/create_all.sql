@@ -107,8 +107,18 @@ WITH sqlgen_source AS (
   WHERE
     sqlgen_date >= CAST(''1990-01-01'' AS DATE)
     AND sqlgen_date < CAST(''2100-01-01'' AS DATE)
-), keyed AS (
-  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
+), user_days AS (
+  /* One row per user and active day with its events: the rows are grouped once, so the distinct active days of a period are its rows (a DISTINCT count would group them a second time). */
+  SELECT
+    user_id AS user_id,
+    activity_date AS activity_date,
+    COUNT_BIG(*) AS day_events
+  FROM dated
+  GROUP BY
+    user_id,
+    activity_date
+), keyed_days AS (
+  /* Each user''s active day with its period key. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -116,18 +126,19 @@ WITH sqlgen_source AS (
       DATEPART(YEAR, activity_date) * 12 + DATEPART(MONTH, activity_date) - 1 - (
         DATEPART(MONTH, activity_date) - 1
       ) % 3
-    ) AS period_key
-  FROM dated
+    ) AS period_key,
+    day_events AS day_events
+  FROM user_days
 ), user_periods AS (
   /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
-    COUNT_BIG(*) AS events,
-    COUNT_BIG(DISTINCT activity_date) AS active_days,
+    CAST(SUM(day_events) AS BIGINT) AS events,
+    COUNT_BIG(*) AS active_days,
     MIN(activity_date) AS first_active_date,
     MAX(activity_date) AS last_active_date
-  FROM keyed
+  FROM keyed_days
   GROUP BY
     user_id,
     period_key
@@ -630,8 +641,18 @@ WITH sqlgen_source AS (
   WHERE
     sqlgen_date >= CAST(''1990-01-01'' AS DATE)
     AND sqlgen_date < CAST(''2100-01-01'' AS DATE)
-), keyed AS (
-  /* period_key: year * 12 + month - 1, a quarter or year keyed by its first month, so adjacent periods differ by the step in months. */
+), user_days AS (
+  /* One row per user and active day with its events: the rows are grouped once, so the distinct active days of a period are its rows (a DISTINCT count would group them a second time). */
+  SELECT
+    user_id AS user_id,
+    activity_date AS activity_date,
+    COUNT_BIG(*) AS day_events
+  FROM dated
+  GROUP BY
+    user_id,
+    activity_date
+), keyed_days AS (
+  /* Each user''s active day with its period key. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -639,18 +660,19 @@ WITH sqlgen_source AS (
       DATEPART(YEAR, activity_date) * 12 + DATEPART(MONTH, activity_date) - 1 - (
         DATEPART(MONTH, activity_date) - 1
       ) % 3
-    ) AS period_key
-  FROM dated
+    ) AS period_key,
+    day_events AS day_events
+  FROM user_days
 ), user_periods AS (
   /* One row per user and active period: events, distinct active days, first and last active dates. */
   SELECT
     user_id AS user_id,
     period_key AS period_key,
-    COUNT_BIG(*) AS events,
-    COUNT_BIG(DISTINCT activity_date) AS active_days,
+    CAST(SUM(day_events) AS BIGINT) AS events,
+    COUNT_BIG(*) AS active_days,
     MIN(activity_date) AS first_active_date,
     MAX(activity_date) AS last_active_date
-  FROM keyed
+  FROM keyed_days
   GROUP BY
     user_id,
     period_key
