@@ -175,7 +175,7 @@ seen_source AS (
   GROUP BY user_id, activity_date
 {%- endif %}
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT user_id, activity_date, {{ p.period_key('activity_date') }} AS period_key, day_events
   FROM user_days
 ), user_periods AS (

@@ -19,6 +19,10 @@ BENCH = Path(__file__).resolve().parent.parent / "bench"
 pytestmark = pytest.mark.slow
 
 
+# The tests that read the smoke run share one worker, so the run is made once.
+ONE_RUN = pytest.mark.xdist_group("bench-smoke")
+
+
 @pytest.fixture(scope="module")
 def smoke(tmp_path_factory):
     """One smoke run: seeded data, agreement check, one timed round, the report."""
@@ -33,6 +37,7 @@ def smoke(tmp_path_factory):
     return work, done.stdout, results
 
 
+@ONE_RUN
 def test_every_implementation_agrees(smoke):
     _work, log, results = smoke
     # 24 months, 105 ISO weeks and 730 days of invented activity (2023-2024).
@@ -77,6 +82,7 @@ def test_every_implementation_agrees(smoke):
     assert "identical: every column of bench_week.growth_accounting" in log
 
 
+@ONE_RUN
 def test_report_lists_every_case(smoke):
     work, _log, results = smoke
     page = (work / "results" / "smoke.md").read_text()
@@ -86,6 +92,7 @@ def test_report_lists_every_case(smoke):
         assert f"| {case['name']} |" in page
 
 
+@ONE_RUN
 def test_memory_probes_report_a_peak(smoke):
     work, _log, _results = smoke
     db = work / "data" / "activity_smoke.duckdb"

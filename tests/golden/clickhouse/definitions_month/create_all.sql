@@ -120,7 +120,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,
@@ -839,7 +839,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,
@@ -1443,7 +1443,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,
@@ -2162,7 +2162,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,

@@ -116,7 +116,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,
@@ -795,7 +795,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,
@@ -1361,7 +1361,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,
@@ -2040,7 +2040,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,

@@ -118,7 +118,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,
@@ -829,7 +829,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,
@@ -1427,7 +1427,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,
@@ -2138,7 +2138,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,

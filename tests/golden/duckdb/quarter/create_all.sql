@@ -116,7 +116,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,
@@ -650,7 +650,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,

@@ -131,7 +131,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,
@@ -671,7 +671,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,

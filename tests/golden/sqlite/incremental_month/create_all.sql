@@ -184,7 +184,7 @@ WITH dated AS (
     sqlgen_events AS day_events
   FROM dated
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,
@@ -1074,7 +1074,7 @@ WITH dated AS (
     sqlgen_events AS day_events
   FROM dated
 ), keyed_days AS (
-  /* Each user's active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id,
     activity_date,

@@ -120,7 +120,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user''s active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -831,7 +831,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user''s active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -1429,7 +1429,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user''s active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -2140,7 +2140,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date
 ), keyed_days AS (
-  /* Each user''s active day with its period key. */
+  /* Each active day of a user, with its period key. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
