@@ -79,18 +79,18 @@ def catalog_query(spec: Spec, target: Target) -> tuple[str | None, list[str]]:
     if target.name in NO_CATALOG or not declared:
         return None, ([f"no catalog check on {target.name}: {NO_CATALOG[target.name]}"]
                       if declared else [])
-    rows, skipped = {}, []
+    rows, checked, skipped = {}, [], []
     for section, key, table, column, kind, scale in declared:
         found = catalog_rows(target, table, column, kind, scale)
         if found is None:
             skipped.append(f"{section}.{key}: no catalog check (BigQuery's catalog is per "
                            "dataset: qualify the table)")
-        else:
-            rows[f"__catalog_{section.replace('.', '_')}_{key}__"] = found
+            continue
+        marker = f"__catalog_{section.replace('.', '_')}_{key}__"
+        rows[marker] = found
+        checked.append((section, key, kind, marker))
     if not rows:
         return None, skipped
-    checked = [(section, key, kind) for section, key, _t, _c, kind, _s in declared
-               if f"__catalog_{section.replace('.', '_')}_{key}__" in rows]
     tree = parse(render_template(CATALOG_CHECKS.template, spec, columns=checked))
 
     def catalog(node: exp.Expression) -> exp.Expression:
