@@ -295,6 +295,12 @@ class Engine:
         return [tuple(_parse_date(v) if i in parse else normalize(v) for i, v in enumerate(r))
                 for r in rows]
 
+    def read(self, sql: str) -> tuple[list[str], list[tuple]]:
+        """A query's column names and its rows (normalised as by ``query``), in one run:
+        a separate ``column_names`` call would plan (on most engines: run) it again."""
+        names, rows = self._fetch(clean_statement(sql))
+        return names, [tuple(map(normalize, r)) for r in rows]
+
     def column_names(self, sql: str) -> list[str]:
         """Result column names of a query, in order."""
         names, _ = self._fetch(clean_statement(sql))

@@ -87,8 +87,7 @@ def read_view(engine, name: str, target: str = "duckdb") -> list[dict]:
     """Every row of a generated view as a dict, dates as datetime.date."""
     schema = names_for(target)[1]
     sql = f"SELECT * FROM {schema}.{name}" if schema else f"SELECT * FROM {name}"
-    columns = engine.column_names(sql)
-    rows = engine.query(sql)
+    columns, rows = engine.read(sql)
     return [{c: _date(c, v) for c, v in zip(columns, row)} for row in rows]
 
 

@@ -107,7 +107,11 @@ def test_memory_probes_report_a_peak(smoke):
 # MariaDB is left out: sqlglot's MySQL spelling of the hand-written self-join's date_trunc
 # disagrees with the view, so bench/other_engines.py stops there before any timing (see
 # bench/README.md); the generated views themselves are checked on MariaDB by the engine suite.
-OTHER_ENGINES = ("postgres", "clickhouse", "spark")
+# Spark is left out to keep CI in its budget: its agreement check cost the Spark worker about
+# a minute, and the engine suite checks every generated view on Spark against the references.
+# Run `.venv/bin/python bench/other_engines.py --size smoke --engine spark --users 250`
+# `--plan-only` by hand after changing bench/other_engines.py.
+OTHER_ENGINES = ("postgres", "clickhouse")
 
 
 @pytest.fixture(scope="module")
@@ -125,18 +129,14 @@ def smoke_db(tmp_path_factory):
 def test_other_engine_benchmark_agrees(engine_name, engines, smoke_db):
     """bench/other_engines.py on the engine the suite started, over the first 250 users:
     every implementation of each group returns the same rows (checked before any timing)
-    and each case is timed once (planned only, on Spark). No timing assertion."""
+    and each case is timed once. No timing assertion."""
     import other_engines
 
-    # Spark: every timed statement planned (EXPLAIN), not run: a run of each costs the
-    # suite about two minutes of JVM work, and the agreement check runs every view already.
-    plan_only = engine_name == "spark"
     result = other_engines.run_engine(engine_name, smoke_db, reps=1, warmup=0,
-                                      engine=engines(engine_name), users=250,
-                                      plan_only=plan_only)
+                                      engine=engines(engine_name), users=250)
     assert set(result["agreement"]) == {"month", "week", "cohorts", "revenue"}
     assert result["agreement"]["month"] == 24  # 2023-01 .. 2024-12, as on DuckDB
-    assert all(len(case["times"]) == (0 if plan_only else 1) for case in result["cases"])
+    assert all(len(case["times"]) == 1 for case in result["cases"])
     page = other_engines.markdown("smoke", [result], 1, 0)
     assert f"## {engine_name} " in page
 

@@ -42,12 +42,19 @@ CHARGES = [  # (account, charged_at, amount)
 ]
 
 
+# Spark builds the tables of the core and revenue views only: every optional view as a
+# table cost its worker about 45 s of CI (each CREATE TABLE AS runs the view's whole plan),
+# and the CREATE TABLE form is the same for every view; the other engines build them all.
+CORE_AND_REVENUE = ("spark",)
+
+
 def spec(target: str, prefix: str, materialize: str):
     users = "users" if target in FLAT_TARGETS else "raw.users"
-    extra = ("cohorts: true\nengagement: true\ntrailing_windows: [7]\n"
-             "segments:\n  platform: {kind: event, column: platform}\n"
-             "  plan: {kind: user, column: plan}\n"
-             f"  channel: {{kind: user, column: channel, table: {users}, key: user_id}}\n"
+    optional = ("cohorts: true\nengagement: true\ntrailing_windows: [7]\n"
+                "segments:\n  platform: {kind: event, column: platform}\n"
+                "  plan: {kind: user, column: plan}\n"
+                f"  channel: {{kind: user, column: channel, table: {users}, key: user_id}}\n")
+    extra = ("" if target in CORE_AND_REVENUE else optional) + (
              f"revenue:\n  table: {revenue_table(target, 'charges')}\n"
              "  customer: account_id\n  timestamp: charged_at\n  amount: amount\n")
     text = spec_text(target, extra=extra).replace(
@@ -97,7 +104,8 @@ def test_every_table_holds_its_views_rows(engines, engine_name, target):
     create(engine, target, views)
     create(engine, target, tables)
     names = [view.name for _part, view in planned(spec(target, "v_", "view"))]
-    assert len(names) >= 14  # every optional view is in the comparison
+    # every optional view is in the comparison (the core and revenue ones on Spark)
+    assert len(names) >= (7 if target in CORE_AND_REVENUE else 14), names
     for name in names:
         from_view = read_view(engine, f"v_{name}", target)
         from_table = read_view(engine, f"t_{name}", target)
