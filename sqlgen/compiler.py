@@ -504,18 +504,28 @@ def _create_all(spec: Spec, target: Target, compiled: list[CompiledView]) -> str
     return _script(lines, body, target)
 
 
-def _transaction_line(target: Target, partial: str, kept: str) -> str:
-    """Whether a script is one transaction, and what a failed run leaves."""
-    if target.no_ddl_transaction:
+def _transaction_line(target: Target, partial: str, kept: str, refresh: bool = False) -> str:
+    """Whether a script is one transaction, and what a failed run leaves (``refresh``:
+    refresh.sql, which holds no DDL)."""
+    if not _one_transaction(target, refresh):
         return (f"-- Not one transaction: {target.no_ddl_transaction}. A failed run can "
                 f"leave {partial}; run it again after fixing the cause.")
+    note = target.refresh_transaction if refresh and target.no_ddl_transaction else (
+        target.transaction_note)
     return (f"-- One transaction: a run that fails leaves {kept} as it was"
-            + (f"; {target.transaction_note}." if target.transaction_note else "."))
+            + (f"; {note}." if note else "."))
 
 
-def _script(lines: list[str], body: list[str], target: Target) -> str:
+def _one_transaction(target: Target, refresh: bool) -> bool:
+    """Whether create_all.sql (or with ``refresh``, refresh.sql) runs as one transaction."""
+    if refresh and target.refresh_transaction is not None:
+        return True
+    return not target.no_ddl_transaction
+
+
+def _script(lines: list[str], body: list[str], target: Target, refresh: bool = False) -> str:
     """A script's header and statements, in one transaction where the target has one."""
-    if not target.no_ddl_transaction:
+    if _one_transaction(target, refresh):
         body = [_generate(exp.Transaction(), target, "transaction") + ";", *body,
                 _generate(exp.Commit(), target, "transaction") + ";"]
     if target.exec_batch:  # an error rolls the whole transaction back, not one statement
@@ -536,7 +546,7 @@ def _refresh(spec: Spec, target: Target, compiled: list[CompiledView]) -> str:
                  "period holding the first day read on")
     lines.append("-- (in full with activity.first_seen, and the revenue tables). Running it "
                  "twice changes no table.")
-    lines.append(_transaction_line(target, "some tables updated", "every table"))
+    lines.append(_transaction_line(target, "some tables updated", "every table", refresh=True))
     run = _through_exec if target.exec_batch else (lambda statement: statement + ";")
     body = []
     for part in parts_with_days(spec):
@@ -547,10 +557,10 @@ def _refresh(spec: Spec, target: Target, compiled: list[CompiledView]) -> str:
         if statements:
             body.append(f"-- {comment_text(c.view.name)}\n"
                         + "\n\n".join(run(s) for s in statements))
-    if target.snapshot_statement and not target.no_ddl_transaction:
+    if target.snapshot_statement and _one_transaction(target, refresh=True):
         body.insert(0, "-- Every step reads one snapshot of the source.\n"
                     f"{target.snapshot_statement};")
-    return _script(lines, body, target)
+    return _script(lines, body, target, refresh=True)
 
 
 def view_drops(spec: Spec, target: Target, compiled: list[CompiledView],

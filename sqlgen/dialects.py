@@ -71,6 +71,10 @@ class Target:
     # refresh.sql's first statement in its transaction, where the default isolation gives
     # each statement its own snapshot of the source (its steps must see one): "" elsewhere.
     snapshot_statement: str = ""
+    # refresh.sql holds only inserts, updates and deletes. None: it is one transaction
+    # exactly where create_all.sql is (no_ddl_transaction decides); a text: one
+    # transaction here even though the DDL is not, and what must hold for it to be.
+    refresh_transaction: str | None = None
 
     def dialect(self) -> Dialect:
         return _dialect(self.sqlglot_dialect)
@@ -313,6 +317,8 @@ _NO_IANA_TSQL = ("T-SQL's AT TIME ZONE takes Windows zone names, not IANA names;
 
 _NO_TX_MYSQL = ("every CREATE VIEW, DROP VIEW and CREATE DATABASE commits the open transaction "
                "implicitly (MySQL and MariaDB have no transactional DDL)")
+_MYSQL_REFRESH_TX = ("its tables must use a transactional storage engine (InnoDB, the "
+                     "default; MyISAM keeps each statement's changes)")
 _NO_TX_CLICKHOUSE = "ClickHouse has no transactions for DDL: each statement applies on its own"
 _NO_TX_SPARK = ("Spark SQL and Databricks SQL have no multi-statement transactions for CREATE "
                 "VIEW: each statement applies on its own")
@@ -414,6 +420,30 @@ def mysql_readable_numbers(tree: exp.Expression) -> exp.Expression:
     return tree.transform(rewrite, copy=False)
 
 
+def mysql_update_self_reads(tree: exp.Expression) -> exp.Expression:
+    """MySQL: an UPDATE may not read the table it changes in a subquery (error 1093,
+    ER_UPDATE_TABLE_USED) unless through a derived table that is materialised, not merged
+    (MySQL reference manual, Restrictions on Subqueries, from memory). So in an UPDATE each
+    subquery ``FROM t`` of that table becomes ``FROM (SELECT * FROM t) AS t`` with the
+    ``NO_MERGE`` hint the manual names. MariaDB (10.3.2 on) accepts either form, and reads
+    such a hint as a comment. refresh.sql's state updates are the statements concerned."""
+    if not isinstance(tree, exp.Update) or not isinstance(tree.this, exp.Table):
+        return tree
+    changed = tree.this
+    for select in list(tree.find_all(exp.Select)):
+        source = select.args.get("from_")
+        table = source.this if source else None
+        if not isinstance(table, exp.Table) or table.sql() != changed.sql() or table.alias:
+            continue
+        name = changed.name
+        inner = exp.select("*").from_(table.copy())
+        table.replace(exp.Subquery(this=inner, alias=exp.TableAlias(
+            this=exp.to_identifier(name))))
+        hint = exp.Anonymous(this="NO_MERGE", expressions=[exp.column(name)])
+        select.set("hint", exp.Hint(expressions=[hint]))
+    return tree
+
+
 _NO_TRY_CAST = ("sqlglot writes TRY_CAST as a plain CAST here, which fails on an unreadable "
                 "value instead of giving NULL (SQLite and MySQL: silently 0)")
 _NO_STARTS_WITH = "no STARTS_WITH function; write s LIKE 'prefix%'"
@@ -469,8 +499,6 @@ _NO_REFRESH = {
     "spark": _NO_REFRESH_YET.format("partition overwrite: DELETE does not work on Parquet "
                                     "tables"),
     "clickhouse": _NO_REFRESH_YET.format("a synchronous delete of the affected days"),
-    "mysql": _NO_REFRESH_YET.format("updates that read the table they change, which "
-                                    "MySQL refuses"),
 }
 
 TARGETS: dict[str, Target] = {
@@ -500,10 +528,10 @@ TARGETS: dict[str, Target] = {
                unsupported={"valid range before 1970 or after 2105": _NARROW_DATES_CLICKHOUSE,
                             "materialize: incremental": _NO_REFRESH["clickhouse"]}),
         Target("mysql", "mysql", "mysql", "replace",
-               (_zone_rewrite(_zones_mysql), window_keys_nulls_default, mysql_readable_numbers),
+               (_zone_rewrite(_zones_mysql), window_keys_nulls_default, mysql_readable_numbers,
+                mysql_update_self_reads),
                no_ddl_transaction=_NO_TX_MYSQL, schema_catalog=False, filter_gaps=_MYSQL_GAPS,
-               column_types=_MYSQL_COLUMN_TYPES,
-               unsupported={"materialize: incremental": _NO_REFRESH["mysql"]}),
+               column_types=_MYSQL_COLUMN_TYPES, refresh_transaction=_MYSQL_REFRESH_TX),
         Target("sqlite", "sqlite", "sqlite", "drop_create",
                (_zone_rewrite(_zones_utc_only), timestamp_offsets(_offset_sqlite),
                 sqlite_date_parts, sqlite_readable_values),
