@@ -191,12 +191,12 @@ def refresh_statements(view: View, spec: Spec, target: Target) -> tuple[str, ...
 
 
 def table_statements(table: exp.Table, query: exp.Expression, target: Target,
-                     key: str) -> tuple[str, ...]:
+                     key: str, state: bool = False) -> tuple[str, ...]:
     """DROP TABLE IF EXISTS, then CREATE TABLE ... AS the query in the target's form
     (``Target.table_form``; T-SQL: SELECT ... INTO, which sqlglot writes for it)."""
     drop = exp.Drop(tables=[table.copy()], kind="TABLE", exists=True)
     create = exp.Create(this=table, kind="TABLE", expression=query,
-                        properties=table_properties(target))
+                        properties=table_properties(target, state))
     return (_generate(drop, target, key), _generate(create, target, key))
 
 
@@ -507,6 +507,11 @@ def _create_all(spec: Spec, target: Target, compiled: list[CompiledView]) -> str
 def _transaction_line(target: Target, partial: str, kept: str, refresh: bool = False) -> str:
     """Whether a script is one transaction, and what a failed run leaves (``refresh``:
     refresh.sql, which holds no DDL)."""
+    if not _one_transaction(target, refresh) and refresh:
+        return (f"-- Not one transaction: {target.no_ddl_transaction}. Only the last "
+                f"statements move the state on, so a failed run can leave {partial} but "
+                "never the state; run it again after fixing the cause, and it computes the "
+                "same days and periods again.")
     if not _one_transaction(target, refresh):
         return (f"-- Not one transaction: {target.no_ddl_transaction}. A failed run can "
                 f"leave {partial}; run it again after fixing the cause.")
@@ -537,7 +542,8 @@ def _refresh(spec: Spec, target: Target, compiled: list[CompiledView]) -> str:
     """refresh.sql: the per-day, first-date and state tables of each part brought up to
     date, then each table's rows from its first changed period on (or in full, see
     ``materialize.per_period``), in one transaction where the target has one."""
-    from .materialize import parts_with_days, refresh_statements as day_statements
+    from .materialize import commit_statements, parts_with_days
+    from .materialize import refresh_statements as day_statements
 
     lines = header(spec, target, None)
     lines.append("-- Brings every table up to date: the source rows from each state table's "
@@ -557,6 +563,9 @@ def _refresh(spec: Spec, target: Target, compiled: list[CompiledView]) -> str:
         if statements:
             body.append(f"-- {comment_text(c.view.name)}\n"
                         + "\n\n".join(run(s) for s in statements))
+    for part in parts_with_days(spec):  # last: the state moves on only once all is done
+        body.append(f"-- {comment_text(part.output.prefix + 'sqlgen_refresh_state')}\n"
+                    + "\n\n".join(run(s) for s in commit_statements(part, target)))
     if target.snapshot_statement and _one_transaction(target, refresh=True):
         body.insert(0, "-- Every step reads one snapshot of the source.\n"
                     f"{target.snapshot_statement};")

@@ -75,6 +75,9 @@ class Target:
     # exactly where create_all.sql is (no_ddl_transaction decides); a text: one
     # transaction here even though the DDL is not, and what must hold for it to be.
     refresh_transaction: str | None = None
+    # refresh.sql's state table, which it UPDATEs: its CREATE TABLE form where that differs
+    # from table_form ("" where it does not).
+    state_table_form: str = ""
 
     def dialect(self) -> Dialect:
         return _dialect(self.sqlglot_dialect)
@@ -489,6 +492,9 @@ _PG_NOTE = ("CREATE OR REPLACE VIEW cannot change an existing view's columns on 
 # ClickHouse needs a table engine; MergeTree keeps rows on disk, ORDER BY tuple() keeps them
 # unsorted (the views' columns are Nullable, which a sorting key refuses by default).
 _CLICKHOUSE_TABLE = "ENGINE = MergeTree ORDER BY tuple()"
+# A lightweight UPDATE (ClickHouse 25.7 on) needs these two hidden columns on its table.
+_CLICKHOUSE_STATE_TABLE = (_CLICKHOUSE_TABLE + " SETTINGS enable_block_number_column = 1, "
+                           "enable_block_offset_column = 1")
 # Spark: Parquet, the file format it ships with (a plain CREATE TABLE is a Hive table where
 # Hive support is on). Databricks' default, Delta, is kept there.
 _SPARK_TABLE = "USING PARQUET"
@@ -498,7 +504,6 @@ _NO_REFRESH_YET = ("refresh.sql is not written for this target yet (it needs {})
 _NO_REFRESH = {
     "spark": _NO_REFRESH_YET.format("partition overwrite: DELETE does not work on Parquet "
                                     "tables"),
-    "clickhouse": _NO_REFRESH_YET.format("a synchronous delete of the affected days"),
 }
 
 TARGETS: dict[str, Target] = {
@@ -525,8 +530,8 @@ TARGETS: dict[str, Target] = {
         Target("clickhouse", "clickhouse", "clickhouse", "drop_create",
                (_zone_rewrite(_zones_clickhouse),), no_ddl_transaction=_NO_TX_CLICKHOUSE,
                schema_catalog=False, filter_gaps=_TRY_CAST_GAP, table_form=_CLICKHOUSE_TABLE,
-               unsupported={"valid range before 1970 or after 2105": _NARROW_DATES_CLICKHOUSE,
-                            "materialize: incremental": _NO_REFRESH["clickhouse"]}),
+               state_table_form=_CLICKHOUSE_STATE_TABLE,
+               unsupported={"valid range before 1970 or after 2105": _NARROW_DATES_CLICKHOUSE}),
         Target("mysql", "mysql", "mysql", "replace",
                (_zone_rewrite(_zones_mysql), window_keys_nulls_default, mysql_readable_numbers,
                 mysql_update_self_reads),
@@ -781,18 +786,19 @@ def rewrites(target: Target) -> list[Transform]:
             *target.transforms]
 
 
-def table_properties(target: Target) -> exp.Properties | None:
-    """The properties of ``Target.table_form``, parsed in the target's dialect (None: none)."""
-    if not target.table_form:
+def table_properties(target: Target, state: bool = False) -> exp.Properties | None:
+    """The properties of ``Target.table_form`` (with ``state``: of the state table's form,
+    ``Target.state_table_form`` where there is one), parsed in the target's dialect (None:
+    none)."""
+    form = (state and target.state_table_form) or target.table_form
+    if not form:
         return None
-    return _table_properties(target.name).copy()
+    return _table_properties(target.sqlglot_dialect, form).copy()
 
 
 @functools.lru_cache(maxsize=None)
-def _table_properties(name: str) -> exp.Properties:
-    target = TARGETS[name]
+def _table_properties(dialect: str, form: str) -> exp.Properties:
     import sqlglot
 
-    parsed = sqlglot.parse_one(f"CREATE TABLE sqlgen_t {target.table_form} AS SELECT 1",
-                               read=target.sqlglot_dialect)
+    parsed = sqlglot.parse_one(f"CREATE TABLE sqlgen_t {form} AS SELECT 1", read=dialect)
     return parsed.args["properties"]

@@ -6,20 +6,24 @@ per-(user, day) table ``<prefix>sqlgen_activity_days`` and the one-row state tab
 per-day table (templates read it in place of the activity table: ``render.reads_days``).
 
 refresh.sql, in one transaction where the target has one, for each part:
-  1. counts the source rows now before from_day that were not there when it was set
-     (late rows older than the lookback: not added, counted in the state table);
+  1. counts the source rows now before from_day (pending_before: with rows_before, the
+     late rows older than the lookback, not added but counted in the state table);
   2. deletes the days from from_day on and inserts them again from the source rows with a
      timestamp from from_day on (exact and idempotent: those days are complete);
-  3. keeps the from_day it read from as read_from, moves the mark to the newest day and
-     from_day to mark - lookback;
+  3. finds the new mark, the newest day (pending_mark), and counts the rows between from_day
+     and the new from_day, mark - lookback (pending_between);
   4. brings the per-user first active dates (``<prefix>sqlgen_first_days``) up to date:
-     those before read_from never change, the others are found again from read_from on;
-then deletes each activity table's rows from the period holding read_from on and inserts
+     those before from_day never change, the others are found again from from_day on;
+then deletes each activity table's rows from the period holding from_day on and inserts
 them from the view's own template rendered with ``refresh`` (PER_PERIOD; it reads the
 per-day rows from a period before, the first dates, and nothing older), and computes the
 revenue tables again from their source (subscription rows change after they are written)
-and, with first_seen, every table in full. Statements are templates in the source
-dialect, bound and rewritten per target like every view.
+and, with first_seen, every table in full. Last, one UPDATE per part commits the state
+(``commit_statements``): late_rows, rows_before, the mark and from_day move, read_from keeps
+the from_day read from. Until then no step changes a column another step reads, and every
+step is idempotent, so a run that fails anywhere (on a target without transactions too)
+leaves the state as it was, and the next run is correct. Statements are templates in the
+source dialect, bound and rewritten per target like every view.
 """
 
 from __future__ import annotations
@@ -70,12 +74,13 @@ def create_statements(part: Spec, target: Target) -> list[str]:
                            (FIRST, "sqlgen_first_days.sql"),
                            (STATE, "sqlgen_refresh_state.sql")):
         (query,) = _statements(template, part, target, since=False)
-        out += table_statements(view_table(part, name), query, target, f"view {name}")
+        out += table_statements(view_table(part, name), query, target, f"view {name}",
+                                state=name == STATE)
     return out
 
 
 def refresh_statements(part: Spec, target: Target) -> list[str]:
-    """Steps 1 to 3 of refresh.sql for a part (see the module's docstring)."""
+    """Steps 1 to 4 of refresh.sql for a part (see the module's docstring)."""
     from .compiler import _generate, view_table
 
     key = "output.materialize"
@@ -90,6 +95,15 @@ def refresh_statements(part: Spec, target: Target) -> list[str]:
              insert, *_statements("sqlgen_refresh_steps.sql", part, target, step="mark"),
              *_statements("sqlgen_refresh_steps.sql", part, target, step="first")]
     return [_generate(tree, target, key) for tree in trees]
+
+
+def commit_statements(part: Spec, target: Target) -> list[str]:
+    """refresh.sql's last statement for a part: its state moved on (see the module's
+    docstring)."""
+    from .compiler import _generate
+
+    return [_generate(tree, target, "output.materialize")
+            for tree in _statements("sqlgen_refresh_steps.sql", part, target, step="commit")]
 
 
 def recompute_statements(table: exp.Table, query: exp.Expression, target: Target,

@@ -28,11 +28,12 @@ since (source_ctes) keeps only the rows from the state table's from_day on: the 
 refresh reads again.
 With refresh (refresh.sql's query of a table it computes again from the first changed
 period on, sqlgen/materialize.py PER_PERIOD), source_ctes() starts with the CTE
-refresh_bounds (changed_key: the period holding the state's read_from, the first the
-refresh changes; changed_date: read_from; data_first_date and data_first_key: the first
-active date of any user and its period) and reads only the per-day rows from reads on:
+refresh_bounds (changed_key: the period holding the state's from_day, which only the
+refresh's last statement moves: the first period the refresh changes; changed_date:
+from_day; data_first_date and data_first_key: the first active date of any user and its
+period) and reads only the per-day rows from reads on:
 'period' the first day of the changed period, 'period_before' of the period before it,
-a number n: n days before read_from. active_periods() then adds first_key: the period of
+a number n: n days before from_day. active_periods() then adds first_key: the period of
 the user's first active date, from the per-user table refresh.sql keeps exact (a user
 whose earlier periods are not read is told apart from a new one).
 -#}
@@ -44,16 +45,16 @@ whose earlier periods are not read is told apart from a new one).
 {%- elif reads == 'period_before' %}{% set start = p.period_start('changed_key - ' ~ grain.step) %}
 {%- else %}{% set start = 'CAST(changed_date + INTERVAL (' ~ (-reads) ~ ') DAY AS DATE)' %}{% endif %}
 refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
-    {{ p.period_key('s.read_from') }} AS changed_key,
-    s.read_from AS changed_date,
+    {{ p.period_key('s.from_day') }} AS changed_key,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     {{ p.period_key('f.sqlgen_first_date') }} AS data_first_key
   FROM {{ ref('sqlgen_refresh_state') }} AS s
   CROSS JOIN (SELECT MIN(first_date) AS sqlgen_first_date FROM {{ ref('sqlgen_first_days') }}) AS f
 ), dated AS (
-  /* The per-(user, day) rows the changed rows depend on: {% if reads == 'period' %}from the changed period on{% elif reads == 'period_before' %}from the period before the changed one on{% else %}from {{ reads }} days before read_from on{% endif %}. */
+  /* The per-(user, day) rows the changed rows depend on: {% if reads == 'period' %}from the changed period on{% elif reads == 'period_before' %}from the period before the changed one on{% else %}from {{ reads }} days before from_day on{% endif %}. */
   SELECT user_id, activity_date, events AS sqlgen_events
   FROM {{ ref('sqlgen_activity_days') }}
   WHERE activity_date >= (SELECT {{ start }} FROM refresh_bounds)

@@ -16,7 +16,7 @@
     With first_seen, a user first seen on day s before the window is not new in it (the
     user is resurrected there, as in growth accounting): the first block's new span ends at
     min(f, s) + N instead of f + N, and is empty when s + N <= f.
-    With refresh (refresh.sql), only the days from read_from (day r) on: a day's counts
+    With refresh (refresh.sql), only the days from from_day (day r) on: a day's counts
     depend on the activity of the 2N days up to it, and every span of a block ending
     before the block holding r - 2N ends before r (l + 2N <= r), so only the blocks from
     that one on are read; a block is the user's first when its first day is the user's
@@ -149,7 +149,7 @@ WITH {{ a.source_ctes(reads=2 * longest + block) }}, numbered AS (
   GROUP BY change_window, change_day
 ), data_range AS (
 {%- if refresh %}
-  /* The first day of the calendar: the first block read, or read_from when earlier and later than the first active date; the last active day. */
+  /* The first day of the calendar: the first block read, or from_day when earlier and later than the first active date; the last active day. */
   SELECT
     CASE WHEN MIN(first_day) < (SELECT DATE_DIFF('day', DATE '1970-01-05', CASE WHEN data_first_date > changed_date THEN data_first_date ELSE changed_date END) FROM refresh_bounds) THEN MIN(first_day)
       ELSE (SELECT DATE_DIFF('day', DATE '1970-01-05', CASE WHEN data_first_date > changed_date THEN data_first_date ELSE changed_date END) FROM refresh_bounds) END AS first_day,

@@ -15,10 +15,10 @@
 -- Brings every table up to date: the source rows from each state table's from_day on are read again,
 -- those days computed again, then each activity table's rows from the period holding the first day read on
 -- (in full with activity.first_seen, and the revenue tables). Running it twice changes no table.
--- Not one transaction: BigQuery multi-statement transactions cannot hold CREATE VIEW or CREATE SCHEMA: each DDL statement applies on its own. A failed run can leave some tables updated; run it again after fixing the cause.
+-- Not one transaction: BigQuery multi-statement transactions cannot hold CREATE VIEW or CREATE SCHEMA: each DDL statement applies on its own. Only the last statements move the state on, so a failed run can leave some tables updated but never the state; run it again after fixing the cause, and it computes the same days and periods again.
 
 -- sqlgen_activity_days
-UPDATE `growth`.sqlgen_refresh_state SET late_rows = late_rows - rows_before, rows_before = (
+UPDATE `growth`.sqlgen_refresh_state SET pending_before = (
   SELECT
     COUNT(`occurred_at`)
   FROM `raw`.`app_events`
@@ -29,10 +29,6 @@ UPDATE `growth`.sqlgen_refresh_state SET late_rows = late_rows - rows_before, ro
       FROM `growth`.sqlgen_refresh_state
     )
 )
-WHERE
-  TRUE;
-
-UPDATE `growth`.sqlgen_refresh_state SET late_rows = late_rows + rows_before
 WHERE
   TRUE;
 
@@ -99,14 +95,10 @@ GROUP BY
   user_id,
   activity_date;
 
-UPDATE `growth`.sqlgen_refresh_state SET read_from = from_day
-WHERE
-  TRUE;
-
-UPDATE `growth`.sqlgen_refresh_state SET mark_day = COALESCE(
+UPDATE `growth`.sqlgen_refresh_state SET pending_mark = COALESCE(
   (
     SELECT
-      MAX(activity_date)
+      CASE WHEN COUNT(activity_date) > 0 THEN MAX(activity_date) END
     FROM `growth`.sqlgen_activity_days
     WHERE
       activity_date >= (
@@ -120,7 +112,7 @@ UPDATE `growth`.sqlgen_refresh_state SET mark_day = COALESCE(
 WHERE
   TRUE;
 
-UPDATE `growth`.sqlgen_refresh_state SET rows_before = rows_before + (
+UPDATE `growth`.sqlgen_refresh_state SET pending_between = (
   SELECT
     COUNT(`occurred_at`)
   FROM `raw`.`app_events`
@@ -132,14 +124,10 @@ UPDATE `growth`.sqlgen_refresh_state SET rows_before = rows_before + (
     )
     AND `occurred_at` < (
       SELECT
-        COALESCE(CAST(DATE_ADD(mark_day, INTERVAL -7 DAY) AS DATE), CAST('1990-01-01' AS DATE))
+        COALESCE(CAST(DATE_ADD(pending_mark, INTERVAL -7 DAY) AS DATE), CAST('1990-01-01' AS DATE))
       FROM `growth`.sqlgen_refresh_state
     )
 )
-WHERE
-  TRUE;
-
-UPDATE `growth`.sqlgen_refresh_state SET from_day = COALESCE(CAST(DATE_ADD(mark_day, INTERVAL -7 DAY) AS DATE), CAST('1990-01-01' AS DATE))
 WHERE
   TRUE;
 
@@ -147,7 +135,7 @@ DELETE FROM `growth`.sqlgen_first_days
 WHERE
   first_date >= (
     SELECT
-      read_from
+      from_day
     FROM `growth`.sqlgen_refresh_state
   );
 
@@ -161,7 +149,7 @@ LEFT JOIN `growth`.sqlgen_first_days AS k
 WHERE
   d.activity_date >= (
     SELECT
-      read_from
+      from_day
     FROM `growth`.sqlgen_refresh_state
   )
   AND k.user_id IS NULL
@@ -174,19 +162,19 @@ WHERE
   period_key >= (
     SELECT
       (
-        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+        EXTRACT(YEAR FROM from_day) * 12 + EXTRACT(MONTH FROM from_day) - 1
       )
     FROM `growth`.sqlgen_refresh_state
   );
 
 INSERT INTO `growth`.user_activity
 WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+      EXTRACT(YEAR FROM s.from_day) * 12 + EXTRACT(MONTH FROM s.from_day) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
@@ -264,19 +252,19 @@ WHERE
   period_key >= (
     SELECT
       (
-        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+        EXTRACT(YEAR FROM from_day) * 12 + EXTRACT(MONTH FROM from_day) - 1
       )
     FROM `growth`.sqlgen_refresh_state
   );
 
 INSERT INTO `growth`.user_states
 WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+      EXTRACT(YEAR FROM s.from_day) * 12 + EXTRACT(MONTH FROM s.from_day) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
@@ -400,19 +388,19 @@ WHERE
   period_key >= (
     SELECT
       (
-        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+        EXTRACT(YEAR FROM from_day) * 12 + EXTRACT(MONTH FROM from_day) - 1
       )
     FROM `growth`.sqlgen_refresh_state
   );
 
 INSERT INTO `growth`.growth_accounting
 WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+      EXTRACT(YEAR FROM s.from_day) * 12 + EXTRACT(MONTH FROM s.from_day) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
@@ -1078,19 +1066,19 @@ WHERE
   period_key >= (
     SELECT
       (
-        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+        EXTRACT(YEAR FROM from_day) * 12 + EXTRACT(MONTH FROM from_day) - 1
       )
     FROM `growth`.sqlgen_refresh_state
   );
 
 INSERT INTO `growth`.cohort_retention
 WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+      EXTRACT(YEAR FROM s.from_day) * 12 + EXTRACT(MONTH FROM s.from_day) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
@@ -1266,19 +1254,19 @@ WHERE
   period_key >= (
     SELECT
       (
-        EXTRACT(YEAR FROM read_from) * 12 + EXTRACT(MONTH FROM read_from) - 1
+        EXTRACT(YEAR FROM from_day) * 12 + EXTRACT(MONTH FROM from_day) - 1
       )
     FROM `growth`.sqlgen_refresh_state
   );
 
 INSERT INTO `growth`.engagement_depth
 WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+      EXTRACT(YEAR FROM s.from_day) * 12 + EXTRACT(MONTH FROM s.from_day) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
@@ -1475,18 +1463,18 @@ DELETE FROM `growth`.trailing_activity
 WHERE
   day_key >= (
     SELECT
-      DATE_DIFF(read_from, CAST('1970-01-05' AS DATE), DAY)
+      DATE_DIFF(from_day, CAST('1970-01-05' AS DATE), DAY)
     FROM `growth`.sqlgen_refresh_state
   );
 
 INSERT INTO `growth`.trailing_activity
 WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      EXTRACT(YEAR FROM s.read_from) * 12 + EXTRACT(MONTH FROM s.read_from) - 1
+      EXTRACT(YEAR FROM s.from_day) * 12 + EXTRACT(MONTH FROM s.from_day) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
@@ -1498,7 +1486,7 @@ WITH refresh_bounds AS (
     FROM `growth`.sqlgen_first_days
   ) AS f
 ), dated AS (
-  /* The per-(user, day) rows the changed rows depend on: from 63 days before read_from on. */
+  /* The per-(user, day) rows the changed rows depend on: from 63 days before from_day on. */
   SELECT
     user_id,
     activity_date,
@@ -1655,7 +1643,7 @@ WITH refresh_bounds AS (
     change_window,
     change_day
 ), data_range AS (
-  /* The first day of the calendar: the first block read, or read_from when earlier and later than the first active date; the last active day. */
+  /* The first day of the calendar: the first block read, or from_day when earlier and later than the first active date; the last active day. */
   SELECT
     CASE
       WHEN MIN(first_day) < (
@@ -1926,3 +1914,8 @@ SELECT
   cell_cohort_key AS cohort_key,
   cell_key AS period_key
 FROM running;
+
+-- sqlgen_refresh_state
+UPDATE `growth`.sqlgen_refresh_state SET late_rows = late_rows + pending_before - rows_before, rows_before = pending_before + pending_between, read_from = from_day, from_day = COALESCE(CAST(DATE_ADD(pending_mark, INTERVAL -7 DAY) AS DATE), CAST('1990-01-01' AS DATE)), mark_day = pending_mark, pending_before = NULL, pending_mark = NULL, pending_between = NULL
+WHERE
+  TRUE;

@@ -78,9 +78,9 @@ DROP TABLE IF EXISTS "growth".sqlgen_refresh_state;
 
 CREATE TABLE "growth".sqlgen_refresh_state AS
 WITH marked AS (
-  /* The high-water mark: the newest day with activity. */
+  /* The high-water mark: the newest day with activity (NULL when there is none). */
   SELECT
-    MAX(activity_date) AS sqlgen_mark
+    CASE WHEN COUNT(activity_date) > 0 THEN MAX(activity_date) END AS sqlgen_mark
   FROM "GROWTH".sqlgen_activity_days
 ), windowed AS (
   /* The first day the next refresh computes again. */
@@ -104,7 +104,10 @@ SELECT
       )
   ) AS rows_before,
   CAST(0 AS BIGINT) AS late_rows,
-  sqlgen_from AS read_from
+  sqlgen_from AS read_from,
+  CAST(NULL AS BIGINT) AS pending_before,
+  CAST(NULL AS DATE) AS pending_mark,
+  CAST(NULL AS BIGINT) AS pending_between
 FROM windowed;
 
 -- activity_source_summary

@@ -77,9 +77,9 @@ DROP TABLE IF EXISTS sqlgen_refresh_state;
 
 CREATE TABLE sqlgen_refresh_state AS
 WITH marked AS (
-  /* The high-water mark: the newest day with activity. */
+  /* The high-water mark: the newest day with activity (NULL when there is none). */
   SELECT
-    MAX(activity_date) AS sqlgen_mark
+    CASE WHEN COUNT(activity_date) > 0 THEN MAX(activity_date) END AS sqlgen_mark
   FROM sqlgen_activity_days
 ), windowed AS (
   /* The first day the next refresh computes again. */
@@ -103,7 +103,10 @@ SELECT
       )
   ) AS rows_before,
   CAST(0 AS INTEGER) AS late_rows,
-  sqlgen_from AS read_from
+  sqlgen_from AS read_from,
+  CAST(NULL AS INTEGER) AS pending_before,
+  DATE(NULL) AS pending_mark,
+  CAST(NULL AS INTEGER) AS pending_between
 FROM windowed;
 
 -- activity_source_summary

@@ -20,7 +20,7 @@
 BEGIN TRANSACTION;
 
 -- sqlgen_activity_days
-UPDATE sqlgen_refresh_state SET late_rows = late_rows - rows_before, rows_before = (
+UPDATE sqlgen_refresh_state SET pending_before = (
   SELECT
     COUNT("occurred_at")
   FROM "app_events"
@@ -31,10 +31,6 @@ UPDATE sqlgen_refresh_state SET late_rows = late_rows - rows_before, rows_before
       FROM sqlgen_refresh_state
     )
 )
-WHERE
-  TRUE;
-
-UPDATE sqlgen_refresh_state SET late_rows = late_rows + rows_before
 WHERE
   TRUE;
 
@@ -100,14 +96,10 @@ GROUP BY
   user_id,
   activity_date;
 
-UPDATE sqlgen_refresh_state SET read_from = from_day
-WHERE
-  TRUE;
-
-UPDATE sqlgen_refresh_state SET mark_day = COALESCE(
+UPDATE sqlgen_refresh_state SET pending_mark = COALESCE(
   (
     SELECT
-      MAX(activity_date)
+      CASE WHEN COUNT(activity_date) > 0 THEN MAX(activity_date) END
     FROM sqlgen_activity_days
     WHERE
       activity_date >= (
@@ -121,7 +113,7 @@ UPDATE sqlgen_refresh_state SET mark_day = COALESCE(
 WHERE
   TRUE;
 
-UPDATE sqlgen_refresh_state SET rows_before = rows_before + (
+UPDATE sqlgen_refresh_state SET pending_between = (
   SELECT
     COUNT("occurred_at")
   FROM "app_events"
@@ -133,14 +125,10 @@ UPDATE sqlgen_refresh_state SET rows_before = rows_before + (
     )
     AND "occurred_at" < (
       SELECT
-        COALESCE(DATE(DATE(mark_day, '-7 DAY')), DATE('1990-01-01'))
+        COALESCE(DATE(DATE(pending_mark, '-7 DAY')), DATE('1990-01-01'))
       FROM sqlgen_refresh_state
     )
 )
-WHERE
-  TRUE;
-
-UPDATE sqlgen_refresh_state SET from_day = COALESCE(DATE(DATE(mark_day, '-7 DAY')), DATE('1990-01-01'))
 WHERE
   TRUE;
 
@@ -148,7 +136,7 @@ DELETE FROM sqlgen_first_days
 WHERE
   first_date >= (
     SELECT
-      read_from
+      from_day
     FROM sqlgen_refresh_state
   );
 
@@ -162,7 +150,7 @@ LEFT JOIN sqlgen_first_days AS k
 WHERE
   d.activity_date >= (
     SELECT
-      read_from
+      from_day
     FROM sqlgen_refresh_state
   )
   AND k.user_id IS NULL
@@ -175,19 +163,19 @@ WHERE
   period_key >= (
     SELECT
       (
-        CAST(STRFTIME('%Y', read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', read_from) AS INTEGER) - 1
+        CAST(STRFTIME('%Y', from_day) AS INTEGER) * 12 + CAST(STRFTIME('%m', from_day) AS INTEGER) - 1
       )
     FROM sqlgen_refresh_state
   );
 
 INSERT INTO user_activity
 WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      CAST(STRFTIME('%Y', s.read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.read_from) AS INTEGER) - 1
+      CAST(STRFTIME('%Y', s.from_day) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.from_day) AS INTEGER) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       CAST(STRFTIME('%Y', f.sqlgen_first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.sqlgen_first_date) AS INTEGER) - 1
@@ -269,19 +257,19 @@ WHERE
   period_key >= (
     SELECT
       (
-        CAST(STRFTIME('%Y', read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', read_from) AS INTEGER) - 1
+        CAST(STRFTIME('%Y', from_day) AS INTEGER) * 12 + CAST(STRFTIME('%m', from_day) AS INTEGER) - 1
       )
     FROM sqlgen_refresh_state
   );
 
 INSERT INTO user_states
 WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      CAST(STRFTIME('%Y', s.read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.read_from) AS INTEGER) - 1
+      CAST(STRFTIME('%Y', s.from_day) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.from_day) AS INTEGER) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       CAST(STRFTIME('%Y', f.sqlgen_first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.sqlgen_first_date) AS INTEGER) - 1
@@ -411,19 +399,19 @@ WHERE
   period_key >= (
     SELECT
       (
-        CAST(STRFTIME('%Y', read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', read_from) AS INTEGER) - 1
+        CAST(STRFTIME('%Y', from_day) AS INTEGER) * 12 + CAST(STRFTIME('%m', from_day) AS INTEGER) - 1
       )
     FROM sqlgen_refresh_state
   );
 
 INSERT INTO growth_accounting
 WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      CAST(STRFTIME('%Y', s.read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.read_from) AS INTEGER) - 1
+      CAST(STRFTIME('%Y', s.from_day) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.from_day) AS INTEGER) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       CAST(STRFTIME('%Y', f.sqlgen_first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.sqlgen_first_date) AS INTEGER) - 1
@@ -1097,19 +1085,19 @@ WHERE
   period_key >= (
     SELECT
       (
-        CAST(STRFTIME('%Y', read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', read_from) AS INTEGER) - 1
+        CAST(STRFTIME('%Y', from_day) AS INTEGER) * 12 + CAST(STRFTIME('%m', from_day) AS INTEGER) - 1
       )
     FROM sqlgen_refresh_state
   );
 
 INSERT INTO cohort_retention
 WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      CAST(STRFTIME('%Y', s.read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.read_from) AS INTEGER) - 1
+      CAST(STRFTIME('%Y', s.from_day) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.from_day) AS INTEGER) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       CAST(STRFTIME('%Y', f.sqlgen_first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.sqlgen_first_date) AS INTEGER) - 1
@@ -1291,19 +1279,19 @@ WHERE
   period_key >= (
     SELECT
       (
-        CAST(STRFTIME('%Y', read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', read_from) AS INTEGER) - 1
+        CAST(STRFTIME('%Y', from_day) AS INTEGER) * 12 + CAST(STRFTIME('%m', from_day) AS INTEGER) - 1
       )
     FROM sqlgen_refresh_state
   );
 
 INSERT INTO engagement_depth
 WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      CAST(STRFTIME('%Y', s.read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.read_from) AS INTEGER) - 1
+      CAST(STRFTIME('%Y', s.from_day) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.from_day) AS INTEGER) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       CAST(STRFTIME('%Y', f.sqlgen_first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.sqlgen_first_date) AS INTEGER) - 1
@@ -1502,18 +1490,18 @@ DELETE FROM trailing_activity
 WHERE
   day_key >= (
     SELECT
-      CAST((JULIANDAY(read_from) - JULIANDAY(DATE('1970-01-05'))) AS INTEGER)
+      CAST((JULIANDAY(from_day) - JULIANDAY(DATE('1970-01-05'))) AS INTEGER)
     FROM sqlgen_refresh_state
   );
 
 INSERT INTO trailing_activity
 WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state's read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      CAST(STRFTIME('%Y', s.read_from) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.read_from) AS INTEGER) - 1
+      CAST(STRFTIME('%Y', s.from_day) AS INTEGER) * 12 + CAST(STRFTIME('%m', s.from_day) AS INTEGER) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       CAST(STRFTIME('%Y', f.sqlgen_first_date) AS INTEGER) * 12 + CAST(STRFTIME('%m', f.sqlgen_first_date) AS INTEGER) - 1
@@ -1525,7 +1513,7 @@ WITH refresh_bounds AS (
     FROM sqlgen_first_days
   ) AS f
 ), dated AS (
-  /* The per-(user, day) rows the changed rows depend on: from 63 days before read_from on. */
+  /* The per-(user, day) rows the changed rows depend on: from 63 days before from_day on. */
   SELECT
     user_id,
     activity_date,
@@ -1686,7 +1674,7 @@ WITH refresh_bounds AS (
     change_window,
     change_day
 ), data_range AS (
-  /* The first day of the calendar: the first block read, or read_from when earlier and later than the first active date; the last active day. */
+  /* The first day of the calendar: the first block read, or from_day when earlier and later than the first active date; the last active day. */
   SELECT
     CASE
       WHEN MIN(first_day) < (
@@ -1955,5 +1943,10 @@ SELECT
   cell_cohort_key AS cohort_key,
   cell_key AS period_key
 FROM running;
+
+-- sqlgen_refresh_state
+UPDATE sqlgen_refresh_state SET late_rows = late_rows + pending_before - rows_before, rows_before = pending_before + pending_between, read_from = from_day, from_day = COALESCE(DATE(DATE(pending_mark, '-7 DAY')), DATE('1990-01-01')), mark_day = pending_mark, pending_before = NULL, pending_mark = NULL, pending_between = NULL
+WHERE
+  TRUE;
 
 COMMIT;

@@ -22,7 +22,7 @@ SET XACT_ABORT ON;
 BEGIN TRANSACTION;
 
 -- sqlgen_activity_days
-EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET late_rows = late_rows - rows_before, rows_before = (
+EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET pending_before = (
   SELECT
     COUNT_BIG([occurred_at])
   FROM [raw].[app_events]
@@ -33,10 +33,6 @@ EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET late_rows = lat
       FROM [growth].sqlgen_refresh_state
     )
 )
-WHERE
-  (1 = 1)';
-
-EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET late_rows = late_rows + rows_before
 WHERE
   (1 = 1)';
 
@@ -103,14 +99,10 @@ GROUP BY
   user_id,
   activity_date';
 
-EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET read_from = from_day
-WHERE
-  (1 = 1)';
-
-EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET mark_day = COALESCE(
+EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET pending_mark = COALESCE(
   (
     SELECT
-      MAX(activity_date)
+      CASE WHEN COUNT_BIG(activity_date) > 0 THEN MAX(activity_date) END
     FROM [growth].sqlgen_activity_days
     WHERE
       activity_date >= (
@@ -124,7 +116,7 @@ EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET mark_day = COAL
 WHERE
   (1 = 1)';
 
-EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET rows_before = rows_before + (
+EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET pending_between = (
   SELECT
     COUNT_BIG([occurred_at])
   FROM [raw].[app_events]
@@ -136,14 +128,10 @@ EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET rows_before = r
     )
     AND [occurred_at] < (
       SELECT
-        COALESCE(CAST(DATEADD(DAY, -7, mark_day) AS DATE), CAST(''1990-01-01'' AS DATE))
+        COALESCE(CAST(DATEADD(DAY, -7, pending_mark) AS DATE), CAST(''1990-01-01'' AS DATE))
       FROM [growth].sqlgen_refresh_state
     )
 )
-WHERE
-  (1 = 1)';
-
-EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET from_day = COALESCE(CAST(DATEADD(DAY, -7, mark_day) AS DATE), CAST(''1990-01-01'' AS DATE))
 WHERE
   (1 = 1)';
 
@@ -151,7 +139,7 @@ EXECUTE sp_executesql N'DELETE FROM [growth].sqlgen_first_days
 WHERE
   first_date >= (
     SELECT
-      read_from
+      from_day
     FROM [growth].sqlgen_refresh_state
   )';
 
@@ -165,7 +153,7 @@ LEFT JOIN [growth].sqlgen_first_days AS k
 WHERE
   d.activity_date >= (
     SELECT
-      read_from
+      from_day
     FROM [growth].sqlgen_refresh_state
   )
   AND k.user_id IS NULL
@@ -178,18 +166,18 @@ WHERE
   period_key >= (
     SELECT
       (
-        DATEPART(YEAR, read_from) * 12 + DATEPART(MONTH, read_from) - 1
+        DATEPART(YEAR, from_day) * 12 + DATEPART(MONTH, from_day) - 1
       )
     FROM [growth].sqlgen_refresh_state
   )';
 
 EXECUTE sp_executesql N'WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state''s read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state''s from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      DATEPART(YEAR, s.read_from) * 12 + DATEPART(MONTH, s.read_from) - 1
+      DATEPART(YEAR, s.from_day) * 12 + DATEPART(MONTH, s.from_day) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       DATEPART(YEAR, f.sqlgen_first_date) * 12 + DATEPART(MONTH, f.sqlgen_first_date) - 1
@@ -268,18 +256,18 @@ WHERE
   period_key >= (
     SELECT
       (
-        DATEPART(YEAR, read_from) * 12 + DATEPART(MONTH, read_from) - 1
+        DATEPART(YEAR, from_day) * 12 + DATEPART(MONTH, from_day) - 1
       )
     FROM [growth].sqlgen_refresh_state
   )';
 
 EXECUTE sp_executesql N'WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state''s read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state''s from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      DATEPART(YEAR, s.read_from) * 12 + DATEPART(MONTH, s.read_from) - 1
+      DATEPART(YEAR, s.from_day) * 12 + DATEPART(MONTH, s.from_day) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       DATEPART(YEAR, f.sqlgen_first_date) * 12 + DATEPART(MONTH, f.sqlgen_first_date) - 1
@@ -404,18 +392,18 @@ WHERE
   period_key >= (
     SELECT
       (
-        DATEPART(YEAR, read_from) * 12 + DATEPART(MONTH, read_from) - 1
+        DATEPART(YEAR, from_day) * 12 + DATEPART(MONTH, from_day) - 1
       )
     FROM [growth].sqlgen_refresh_state
   )';
 
 EXECUTE sp_executesql N'WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state''s read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state''s from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      DATEPART(YEAR, s.read_from) * 12 + DATEPART(MONTH, s.read_from) - 1
+      DATEPART(YEAR, s.from_day) * 12 + DATEPART(MONTH, s.from_day) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       DATEPART(YEAR, f.sqlgen_first_date) * 12 + DATEPART(MONTH, f.sqlgen_first_date) - 1
@@ -1082,18 +1070,18 @@ WHERE
   period_key >= (
     SELECT
       (
-        DATEPART(YEAR, read_from) * 12 + DATEPART(MONTH, read_from) - 1
+        DATEPART(YEAR, from_day) * 12 + DATEPART(MONTH, from_day) - 1
       )
     FROM [growth].sqlgen_refresh_state
   )';
 
 EXECUTE sp_executesql N'WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state''s read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state''s from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      DATEPART(YEAR, s.read_from) * 12 + DATEPART(MONTH, s.read_from) - 1
+      DATEPART(YEAR, s.from_day) * 12 + DATEPART(MONTH, s.from_day) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       DATEPART(YEAR, f.sqlgen_first_date) * 12 + DATEPART(MONTH, f.sqlgen_first_date) - 1
@@ -1270,18 +1258,18 @@ WHERE
   period_key >= (
     SELECT
       (
-        DATEPART(YEAR, read_from) * 12 + DATEPART(MONTH, read_from) - 1
+        DATEPART(YEAR, from_day) * 12 + DATEPART(MONTH, from_day) - 1
       )
     FROM [growth].sqlgen_refresh_state
   )';
 
 EXECUTE sp_executesql N'WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state''s read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state''s from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      DATEPART(YEAR, s.read_from) * 12 + DATEPART(MONTH, s.read_from) - 1
+      DATEPART(YEAR, s.from_day) * 12 + DATEPART(MONTH, s.from_day) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       DATEPART(YEAR, f.sqlgen_first_date) * 12 + DATEPART(MONTH, f.sqlgen_first_date) - 1
@@ -1479,17 +1467,17 @@ EXECUTE sp_executesql N'DELETE FROM [growth].trailing_activity
 WHERE
   day_key >= (
     SELECT
-      DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), read_from)
+      DATEDIFF(DAY, CAST(''1970-01-05'' AS DATE), from_day)
     FROM [growth].sqlgen_refresh_state
   )';
 
 EXECUTE sp_executesql N'WITH refresh_bounds AS (
-  /* refresh.sql: the first period it computes again (the one holding the state''s read_from: days before read_from never change), read_from, and the first active date of any user with its period. */
+  /* refresh.sql: the first period it computes again (the one holding the state''s from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      DATEPART(YEAR, s.read_from) * 12 + DATEPART(MONTH, s.read_from) - 1
+      DATEPART(YEAR, s.from_day) * 12 + DATEPART(MONTH, s.from_day) - 1
     ) AS changed_key,
-    s.read_from AS changed_date,
+    s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
       DATEPART(YEAR, f.sqlgen_first_date) * 12 + DATEPART(MONTH, f.sqlgen_first_date) - 1
@@ -1501,7 +1489,7 @@ EXECUTE sp_executesql N'WITH refresh_bounds AS (
     FROM [growth].sqlgen_first_days
   ) AS f
 ), dated AS (
-  /* The per-(user, day) rows the changed rows depend on: from 63 days before read_from on. */
+  /* The per-(user, day) rows the changed rows depend on: from 63 days before from_day on. */
   SELECT
     user_id AS user_id,
     activity_date AS activity_date,
@@ -1662,7 +1650,7 @@ EXECUTE sp_executesql N'WITH refresh_bounds AS (
     change_window,
     change_day
 ), data_range AS (
-  /* The first day of the calendar: the first block read, or read_from when earlier and later than the first active date; the last active day. */
+  /* The first day of the calendar: the first block read, or from_day when earlier and later than the first active date; the last active day. */
   SELECT
     CASE
       WHEN MIN(first_day) < (
@@ -1934,5 +1922,10 @@ SELECT
   cell_cohort_key AS cohort_key,
   cell_key AS period_key
 FROM running';
+
+-- sqlgen_refresh_state
+EXECUTE sp_executesql N'UPDATE [growth].sqlgen_refresh_state SET late_rows = late_rows + pending_before - rows_before, rows_before = pending_before + pending_between, read_from = from_day, from_day = COALESCE(CAST(DATEADD(DAY, -7, pending_mark) AS DATE), CAST(''1990-01-01'' AS DATE)), mark_day = pending_mark, pending_before = NULL, pending_mark = NULL, pending_between = NULL
+WHERE
+  (1 = 1)';
 
 COMMIT TRANSACTION;
