@@ -294,6 +294,23 @@ def constant_unions_as_values(tree: exp.Expression) -> exp.Expression:
     return tree.transform(rewrite, copy=False)
 
 
+_WHOLE_PARTS = frozenset({"YEAR", "QUARTER", "MONTH", "DAY", "DOW", "ISODOW", "DOY", "WEEK",
+                          "ISOYEAR"})
+
+
+def postgres_whole_extracts(tree: exp.Expression) -> exp.Expression:
+    """PostgreSQL (14 on): EXTRACT returns NUMERIC, so the period keys built from it
+    (year * 12 + month) were grouped, sorted and windowed as NUMERIC, slower than integers
+    and spilling to disk sooner (bench/README.md, issue 15 findings). A part that is always
+    a whole number is cast to INT; EPOCH and SECOND keep their fractions."""
+    def rewrite(node: exp.Expression) -> exp.Expression:
+        if (isinstance(node, exp.Extract) and node.this.name.upper() in _WHOLE_PARTS
+                and not isinstance(node.parent, exp.Cast)):
+            return exp.Cast(this=node, to=exp.DataType.build("INT"))
+        return node
+    return tree.transform(rewrite, copy=False)
+
+
 def window_keys_nulls_default(tree: exp.Expression) -> exp.Expression:
     """MySQL, T-SQL, BigQuery: a window's ascending ORDER BY written in DuckDB carries DuckDB's
     NULLS LAST, which sqlglot cannot spell there ('NULLS LAST' translation not supported in
@@ -512,7 +529,8 @@ TARGETS: dict[str, Target] = {
         Target("duckdb", "duckdb", "duckdb", "replace",
                (_zone_rewrite(_zones_at_time_zone),)),
         Target("postgres", "postgres", "postgres", "replace",
-               (_zone_rewrite(_zones_at_time_zone),), ddl_note=_PG_NOTE, schema_catalog=False,
+               (_zone_rewrite(_zones_at_time_zone), postgres_whole_extracts), ddl_note=_PG_NOTE,
+               schema_catalog=False,
                filter_gaps=_TRY_CAST_GAP,
                snapshot_statement="SET TRANSACTION ISOLATION LEVEL REPEATABLE READ"),
         Target("spark", "spark", "spark", "replace",

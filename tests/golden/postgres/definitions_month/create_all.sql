@@ -152,7 +152,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     day_events
   FROM user_days
@@ -186,7 +186,7 @@ SELECT
 FROM user_periods
 WHERE
   period_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   );
 
 -- user_states
@@ -229,7 +229,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key
   FROM dated
 ), grouped_periods AS (
@@ -276,7 +276,7 @@ WITH sqlgen_source AS (
   SELECT
     sqlgen_seen_user,
     (
-      EXTRACT(YEAR FROM sqlgen_seen_first) * 12 + EXTRACT(MONTH FROM sqlgen_seen_first) - 1
+      CAST(EXTRACT(YEAR FROM sqlgen_seen_first) AS INT) * 12 + CAST(EXTRACT(MONTH FROM sqlgen_seen_first) AS INT) - 1
     ) AS sqlgen_seen_key,
     1 AS sqlgen_seen_found
   FROM seen_dates
@@ -338,7 +338,7 @@ SELECT
 FROM sequenced
 WHERE
   period_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   )
 UNION ALL
 SELECT
@@ -353,7 +353,7 @@ SELECT
 FROM lapsed
 WHERE
   lapse_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   );
 
 -- growth_accounting
@@ -396,7 +396,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key
   FROM dated
 ), grouped_periods AS (
@@ -443,7 +443,7 @@ WITH sqlgen_source AS (
   SELECT
     sqlgen_seen_user,
     (
-      EXTRACT(YEAR FROM sqlgen_seen_first) * 12 + EXTRACT(MONTH FROM sqlgen_seen_first) - 1
+      CAST(EXTRACT(YEAR FROM sqlgen_seen_first) AS INT) * 12 + CAST(EXTRACT(MONTH FROM sqlgen_seen_first) AS INT) - 1
     ) AS sqlgen_seen_key,
     1 AS sqlgen_seen_found
   FROM seen_dates
@@ -505,7 +505,7 @@ WITH sqlgen_source AS (
     last_key,
     data_through,
     (
-      EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') * 12 + EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1
+      CAST(EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') AS INT) * 12 + CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1
     ) AS after_data_key
   FROM data_range
 ), digits AS (
@@ -618,7 +618,7 @@ FROM balanced
 /* Only the periods from report_from on: the earlier ones were computed, so previous_active_users of the first row shown is real. */
 WHERE
   calendar_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   );
 
 -- cohort_retention
@@ -661,7 +661,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key
   FROM dated
 ), grouped_periods AS (
@@ -708,7 +708,7 @@ WITH sqlgen_source AS (
   SELECT
     sqlgen_seen_user,
     (
-      EXTRACT(YEAR FROM sqlgen_seen_first) * 12 + EXTRACT(MONTH FROM sqlgen_seen_first) - 1
+      CAST(EXTRACT(YEAR FROM sqlgen_seen_first) AS INT) * 12 + CAST(EXTRACT(MONTH FROM sqlgen_seen_first) AS INT) - 1
     ) AS sqlgen_seen_key,
     1 AS sqlgen_seen_found
   FROM seen_dates
@@ -834,7 +834,7 @@ LEFT JOIN cohort_actives AS c
 /* Only the cohorts from report_from on: an earlier cohort is not shown at any age. */
 WHERE
   t.cell_cohort_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   );
 
 -- engagement_depth
@@ -887,7 +887,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     day_events
   FROM user_days
@@ -1057,7 +1057,7 @@ LEFT JOIN period_totals AS t
   ON t.total_key = c.cell_key
 WHERE
   c.cell_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   );
 
 -- trailing_activity
@@ -1511,7 +1511,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     day_events
   FROM user_days
@@ -1545,7 +1545,7 @@ SELECT
 FROM user_periods
 WHERE
   period_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   );
 
 -- user_states
@@ -1588,7 +1588,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key
   FROM dated
 ), grouped_periods AS (
@@ -1635,7 +1635,7 @@ WITH sqlgen_source AS (
   SELECT
     sqlgen_seen_user,
     (
-      EXTRACT(YEAR FROM sqlgen_seen_first) * 12 + EXTRACT(MONTH FROM sqlgen_seen_first) - 1
+      CAST(EXTRACT(YEAR FROM sqlgen_seen_first) AS INT) * 12 + CAST(EXTRACT(MONTH FROM sqlgen_seen_first) AS INT) - 1
     ) AS sqlgen_seen_key,
     1 AS sqlgen_seen_found
   FROM seen_dates
@@ -1697,7 +1697,7 @@ SELECT
 FROM sequenced
 WHERE
   period_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   )
 UNION ALL
 SELECT
@@ -1712,7 +1712,7 @@ SELECT
 FROM lapsed
 WHERE
   lapse_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   );
 
 -- growth_accounting
@@ -1755,7 +1755,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key
   FROM dated
 ), grouped_periods AS (
@@ -1802,7 +1802,7 @@ WITH sqlgen_source AS (
   SELECT
     sqlgen_seen_user,
     (
-      EXTRACT(YEAR FROM sqlgen_seen_first) * 12 + EXTRACT(MONTH FROM sqlgen_seen_first) - 1
+      CAST(EXTRACT(YEAR FROM sqlgen_seen_first) AS INT) * 12 + CAST(EXTRACT(MONTH FROM sqlgen_seen_first) AS INT) - 1
     ) AS sqlgen_seen_key,
     1 AS sqlgen_seen_found
   FROM seen_dates
@@ -1864,7 +1864,7 @@ WITH sqlgen_source AS (
     last_key,
     data_through,
     (
-      EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') * 12 + EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1
+      CAST(EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') AS INT) * 12 + CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1
     ) AS after_data_key
   FROM data_range
 ), digits AS (
@@ -1977,7 +1977,7 @@ FROM balanced
 /* Only the periods from report_from on: the earlier ones were computed, so previous_active_users of the first row shown is real. */
 WHERE
   calendar_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   );
 
 -- cohort_retention
@@ -2020,7 +2020,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key
   FROM dated
 ), grouped_periods AS (
@@ -2067,7 +2067,7 @@ WITH sqlgen_source AS (
   SELECT
     sqlgen_seen_user,
     (
-      EXTRACT(YEAR FROM sqlgen_seen_first) * 12 + EXTRACT(MONTH FROM sqlgen_seen_first) - 1
+      CAST(EXTRACT(YEAR FROM sqlgen_seen_first) AS INT) * 12 + CAST(EXTRACT(MONTH FROM sqlgen_seen_first) AS INT) - 1
     ) AS sqlgen_seen_key,
     1 AS sqlgen_seen_found
   FROM seen_dates
@@ -2193,7 +2193,7 @@ LEFT JOIN cohort_actives AS c
 /* Only the cohorts from report_from on: an earlier cohort is not shown at any age. */
 WHERE
   t.cell_cohort_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   );
 
 -- engagement_depth
@@ -2246,7 +2246,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     day_events
   FROM user_days
@@ -2416,7 +2416,7 @@ LEFT JOIN period_totals AS t
   ON t.total_key = c.cell_key
 WHERE
   c.cell_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   );
 
 -- trailing_activity

@@ -62,7 +62,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     day_events
   FROM user_days
@@ -232,5 +232,5 @@ LEFT JOIN period_totals AS t
   ON t.total_key = c.cell_key
 WHERE
   c.cell_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   );

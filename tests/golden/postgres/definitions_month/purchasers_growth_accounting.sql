@@ -52,7 +52,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key
   FROM dated
 ), grouped_periods AS (
@@ -99,7 +99,7 @@ WITH sqlgen_source AS (
   SELECT
     sqlgen_seen_user,
     (
-      EXTRACT(YEAR FROM sqlgen_seen_first) * 12 + EXTRACT(MONTH FROM sqlgen_seen_first) - 1
+      CAST(EXTRACT(YEAR FROM sqlgen_seen_first) AS INT) * 12 + CAST(EXTRACT(MONTH FROM sqlgen_seen_first) AS INT) - 1
     ) AS sqlgen_seen_key,
     1 AS sqlgen_seen_found
   FROM seen_dates
@@ -161,7 +161,7 @@ WITH sqlgen_source AS (
     last_key,
     data_through,
     (
-      EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') * 12 + EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1
+      CAST(EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') AS INT) * 12 + CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1
     ) AS after_data_key
   FROM data_range
 ), digits AS (
@@ -274,5 +274,5 @@ FROM balanced
 /* Only the periods from report_from on: the earlier ones were computed, so previous_active_users of the first row shown is real. */
 WHERE
   calendar_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   );

@@ -53,7 +53,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key
   FROM dated
 ), grouped_periods AS (
@@ -100,7 +100,7 @@ WITH sqlgen_source AS (
   SELECT
     sqlgen_seen_user,
     (
-      EXTRACT(YEAR FROM sqlgen_seen_first) * 12 + EXTRACT(MONTH FROM sqlgen_seen_first) - 1
+      CAST(EXTRACT(YEAR FROM sqlgen_seen_first) AS INT) * 12 + CAST(EXTRACT(MONTH FROM sqlgen_seen_first) AS INT) - 1
     ) AS sqlgen_seen_key,
     1 AS sqlgen_seen_found
   FROM seen_dates
@@ -162,7 +162,7 @@ SELECT
 FROM sequenced
 WHERE
   period_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   )
 UNION ALL
 SELECT
@@ -177,5 +177,5 @@ SELECT
 FROM lapsed
 WHERE
   lapse_key >= (
-    EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) * 12 + EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) - 1
+    CAST(EXTRACT(YEAR FROM CAST('2023-01-01' AS DATE)) AS INT) * 12 + CAST(EXTRACT(MONTH FROM CAST('2023-01-01' AS DATE)) AS INT) - 1
   );

@@ -216,7 +216,7 @@ WITH dated AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     day_events
   FROM user_days
@@ -266,7 +266,7 @@ WITH dated AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     sqlgen_events
   FROM dated
@@ -352,7 +352,7 @@ WITH dated AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     sqlgen_events
   FROM dated
@@ -399,7 +399,7 @@ WITH dated AS (
     last_key,
     data_through,
     (
-      EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') * 12 + EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1
+      CAST(EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') AS INT) * 12 + CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1
     ) AS after_data_key
   FROM data_range
 ), digits AS (
@@ -650,10 +650,10 @@ WITH sqlgen_source AS (
   /* The first and last period of the counted rows. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
     ) AS first_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
     ) AS last_key
   FROM bounds
 ), keyed AS (
@@ -661,7 +661,7 @@ WITH sqlgen_source AS (
   SELECT
     counted_customer AS keyed_customer,
     (
-      EXTRACT(YEAR FROM counted_date) * 12 + EXTRACT(MONTH FROM counted_date) - 1
+      CAST(EXTRACT(YEAR FROM counted_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM counted_date) AS INT) - 1
     ) AS keyed_key,
     counted_amount AS keyed_amount
   FROM counted
@@ -827,10 +827,10 @@ WITH tallies AS (
   /* The first and last period with revenue data, and the last date. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
     ) AS first_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
     ) AS last_key,
     last_date AS data_through
   FROM "growth".revenue_source_summary
@@ -841,7 +841,7 @@ WITH tallies AS (
     last_key,
     data_through,
     (
-      EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') * 12 + EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1
+      CAST(EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') AS INT) * 12 + CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1
     ) AS after_data_key
   FROM data_range
 ), digits AS (
@@ -975,7 +975,7 @@ WITH dated AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     sqlgen_events
   FROM dated
@@ -1122,7 +1122,7 @@ WITH dated AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     day_events
   FROM user_days
@@ -1583,10 +1583,10 @@ WITH marked AS (
   /* The first and last period of revenue data. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
     ) AS first_data_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
     ) AS last_data_key
   FROM "growth".revenue_source_summary
 ), digits AS (

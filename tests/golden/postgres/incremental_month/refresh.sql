@@ -168,7 +168,7 @@ WHERE
   period_key >= (
     SELECT
       (
-        EXTRACT(YEAR FROM from_day) * 12 + EXTRACT(MONTH FROM from_day) - 1
+        CAST(EXTRACT(YEAR FROM from_day) AS INT) * 12 + CAST(EXTRACT(MONTH FROM from_day) AS INT) - 1
       )
     FROM "growth".sqlgen_refresh_state
   );
@@ -178,12 +178,12 @@ WITH refresh_bounds AS (
   /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      EXTRACT(YEAR FROM s.from_day) * 12 + EXTRACT(MONTH FROM s.from_day) - 1
+      CAST(EXTRACT(YEAR FROM s.from_day) AS INT) * 12 + CAST(EXTRACT(MONTH FROM s.from_day) AS INT) - 1
     ) AS changed_key,
     s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
-      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+      CAST(EXTRACT(YEAR FROM f.sqlgen_first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM f.sqlgen_first_date) AS INT) - 1
     ) AS data_first_key
   FROM "growth".sqlgen_refresh_state AS s
   CROSS JOIN (
@@ -221,7 +221,7 @@ WITH refresh_bounds AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     day_events
   FROM user_days
@@ -266,7 +266,7 @@ WHERE
   period_key >= (
     SELECT
       (
-        EXTRACT(YEAR FROM from_day) * 12 + EXTRACT(MONTH FROM from_day) - 1
+        CAST(EXTRACT(YEAR FROM from_day) AS INT) * 12 + CAST(EXTRACT(MONTH FROM from_day) AS INT) - 1
       )
     FROM "growth".sqlgen_refresh_state
   );
@@ -276,12 +276,12 @@ WITH refresh_bounds AS (
   /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      EXTRACT(YEAR FROM s.from_day) * 12 + EXTRACT(MONTH FROM s.from_day) - 1
+      CAST(EXTRACT(YEAR FROM s.from_day) AS INT) * 12 + CAST(EXTRACT(MONTH FROM s.from_day) AS INT) - 1
     ) AS changed_key,
     s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
-      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+      CAST(EXTRACT(YEAR FROM f.sqlgen_first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM f.sqlgen_first_date) AS INT) - 1
     ) AS data_first_key
   FROM "growth".sqlgen_refresh_state AS s
   CROSS JOIN (
@@ -312,7 +312,7 @@ WITH refresh_bounds AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     sqlgen_events
   FROM dated
@@ -333,7 +333,7 @@ WITH refresh_bounds AS (
     g.period_key,
     g.last_date,
     (
-      EXTRACT(YEAR FROM f.first_date) * 12 + EXTRACT(MONTH FROM f.first_date) - 1
+      CAST(EXTRACT(YEAR FROM f.first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM f.first_date) AS INT) - 1
     ) AS first_key
   FROM grouped_periods AS g
   JOIN "growth".sqlgen_first_days AS f
@@ -414,7 +414,7 @@ WHERE
   period_key >= (
     SELECT
       (
-        EXTRACT(YEAR FROM from_day) * 12 + EXTRACT(MONTH FROM from_day) - 1
+        CAST(EXTRACT(YEAR FROM from_day) AS INT) * 12 + CAST(EXTRACT(MONTH FROM from_day) AS INT) - 1
       )
     FROM "growth".sqlgen_refresh_state
   );
@@ -424,12 +424,12 @@ WITH refresh_bounds AS (
   /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      EXTRACT(YEAR FROM s.from_day) * 12 + EXTRACT(MONTH FROM s.from_day) - 1
+      CAST(EXTRACT(YEAR FROM s.from_day) AS INT) * 12 + CAST(EXTRACT(MONTH FROM s.from_day) AS INT) - 1
     ) AS changed_key,
     s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
-      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+      CAST(EXTRACT(YEAR FROM f.sqlgen_first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM f.sqlgen_first_date) AS INT) - 1
     ) AS data_first_key
   FROM "growth".sqlgen_refresh_state AS s
   CROSS JOIN (
@@ -460,7 +460,7 @@ WITH refresh_bounds AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     sqlgen_events
   FROM dated
@@ -481,7 +481,7 @@ WITH refresh_bounds AS (
     g.period_key,
     g.last_date,
     (
-      EXTRACT(YEAR FROM f.first_date) * 12 + EXTRACT(MONTH FROM f.first_date) - 1
+      CAST(EXTRACT(YEAR FROM f.first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM f.first_date) AS INT) - 1
     ) AS first_key
   FROM grouped_periods AS g
   JOIN "growth".sqlgen_first_days AS f
@@ -530,7 +530,7 @@ WITH refresh_bounds AS (
     last_key,
     data_through,
     (
-      EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') * 12 + EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1
+      CAST(EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') AS INT) * 12 + CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1
     ) AS after_data_key
   FROM data_range
 ), digits AS (
@@ -792,10 +792,10 @@ WITH sqlgen_source AS (
   /* The first and last period of the counted rows. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
     ) AS first_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
     ) AS last_key
   FROM bounds
 ), keyed AS (
@@ -803,7 +803,7 @@ WITH sqlgen_source AS (
   SELECT
     counted_customer AS keyed_customer,
     (
-      EXTRACT(YEAR FROM counted_date) * 12 + EXTRACT(MONTH FROM counted_date) - 1
+      CAST(EXTRACT(YEAR FROM counted_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM counted_date) AS INT) - 1
     ) AS keyed_key,
     counted_amount AS keyed_amount
   FROM counted
@@ -971,10 +971,10 @@ WITH tallies AS (
   /* The first and last period with revenue data, and the last date. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
     ) AS first_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
     ) AS last_key,
     last_date AS data_through
   FROM "growth".revenue_source_summary
@@ -985,7 +985,7 @@ WITH tallies AS (
     last_key,
     data_through,
     (
-      EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') * 12 + EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1
+      CAST(EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') AS INT) * 12 + CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1
     ) AS after_data_key
   FROM data_range
 ), digits AS (
@@ -1108,7 +1108,7 @@ WHERE
   period_key >= (
     SELECT
       (
-        EXTRACT(YEAR FROM from_day) * 12 + EXTRACT(MONTH FROM from_day) - 1
+        CAST(EXTRACT(YEAR FROM from_day) AS INT) * 12 + CAST(EXTRACT(MONTH FROM from_day) AS INT) - 1
       )
     FROM "growth".sqlgen_refresh_state
   );
@@ -1118,12 +1118,12 @@ WITH refresh_bounds AS (
   /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      EXTRACT(YEAR FROM s.from_day) * 12 + EXTRACT(MONTH FROM s.from_day) - 1
+      CAST(EXTRACT(YEAR FROM s.from_day) AS INT) * 12 + CAST(EXTRACT(MONTH FROM s.from_day) AS INT) - 1
     ) AS changed_key,
     s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
-      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+      CAST(EXTRACT(YEAR FROM f.sqlgen_first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM f.sqlgen_first_date) AS INT) - 1
     ) AS data_first_key
   FROM "growth".sqlgen_refresh_state AS s
   CROSS JOIN (
@@ -1154,7 +1154,7 @@ WITH refresh_bounds AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     sqlgen_events
   FROM dated
@@ -1175,7 +1175,7 @@ WITH refresh_bounds AS (
     g.period_key,
     g.last_date,
     (
-      EXTRACT(YEAR FROM f.first_date) * 12 + EXTRACT(MONTH FROM f.first_date) - 1
+      CAST(EXTRACT(YEAR FROM f.first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM f.first_date) AS INT) - 1
     ) AS first_key
   FROM grouped_periods AS g
   JOIN "growth".sqlgen_first_days AS f
@@ -1200,13 +1200,13 @@ WITH refresh_bounds AS (
   /* The size of a cohort: the users whose first active date is in it. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
     ) AS size_key,
     COUNT(*) AS size_count
   FROM "growth".sqlgen_first_days
   GROUP BY
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
     )
 ), data_range AS (
   /* The first cohort and the last period with data. */
@@ -1308,7 +1308,7 @@ WHERE
   period_key >= (
     SELECT
       (
-        EXTRACT(YEAR FROM from_day) * 12 + EXTRACT(MONTH FROM from_day) - 1
+        CAST(EXTRACT(YEAR FROM from_day) AS INT) * 12 + CAST(EXTRACT(MONTH FROM from_day) AS INT) - 1
       )
     FROM "growth".sqlgen_refresh_state
   );
@@ -1318,12 +1318,12 @@ WITH refresh_bounds AS (
   /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      EXTRACT(YEAR FROM s.from_day) * 12 + EXTRACT(MONTH FROM s.from_day) - 1
+      CAST(EXTRACT(YEAR FROM s.from_day) AS INT) * 12 + CAST(EXTRACT(MONTH FROM s.from_day) AS INT) - 1
     ) AS changed_key,
     s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
-      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+      CAST(EXTRACT(YEAR FROM f.sqlgen_first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM f.sqlgen_first_date) AS INT) - 1
     ) AS data_first_key
   FROM "growth".sqlgen_refresh_state AS s
   CROSS JOIN (
@@ -1361,7 +1361,7 @@ WITH refresh_bounds AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     day_events
   FROM user_days
@@ -1550,12 +1550,12 @@ WITH refresh_bounds AS (
   /* refresh.sql: the first period it computes again (the one holding the state's from_day: days before from_day never change), from_day, and the first active date of any user with its period. */
   SELECT
     (
-      EXTRACT(YEAR FROM s.from_day) * 12 + EXTRACT(MONTH FROM s.from_day) - 1
+      CAST(EXTRACT(YEAR FROM s.from_day) AS INT) * 12 + CAST(EXTRACT(MONTH FROM s.from_day) AS INT) - 1
     ) AS changed_key,
     s.from_day AS changed_date,
     f.sqlgen_first_date AS data_first_date,
     (
-      EXTRACT(YEAR FROM f.sqlgen_first_date) * 12 + EXTRACT(MONTH FROM f.sqlgen_first_date) - 1
+      CAST(EXTRACT(YEAR FROM f.sqlgen_first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM f.sqlgen_first_date) AS INT) - 1
     ) AS data_first_key
   FROM "growth".sqlgen_refresh_state AS s
   CROSS JOIN (
@@ -1900,10 +1900,10 @@ WITH marked AS (
   /* The first and last period of revenue data. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
     ) AS first_data_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
     ) AS last_data_key
   FROM "growth".revenue_source_summary
 ), digits AS (

@@ -136,7 +136,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     day_events
   FROM user_days
@@ -209,7 +209,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key
   FROM dated
 ), active_periods AS (
@@ -317,7 +317,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key
   FROM dated
 ), active_periods AS (
@@ -363,7 +363,7 @@ WITH sqlgen_source AS (
     last_key,
     data_through,
     (
-      EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') * 12 + EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1
+      CAST(EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') AS INT) * 12 + CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1
     ) AS after_data_key
   FROM data_range
 ), digits AS (
@@ -514,7 +514,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key
   FROM dated
 ), active_periods AS (
@@ -686,7 +686,7 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
     ) AS period_key,
     day_events
   FROM user_days

@@ -136,8 +136,8 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1 - (
-        EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
       ) % 3
     ) AS period_key,
     day_events
@@ -211,8 +211,8 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1 - (
-        EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
       ) % 3
     ) AS period_key
   FROM dated
@@ -321,8 +321,8 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1 - (
-        EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
       ) % 3
     ) AS period_key
   FROM dated
@@ -369,8 +369,8 @@ WITH sqlgen_source AS (
     last_key,
     data_through,
     (
-      EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') * 12 + EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1 - (
-        EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1
+      CAST(EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') AS INT) * 12 + CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1
       ) % 3
     ) AS after_data_key
   FROM data_range
@@ -521,8 +521,8 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1 - (
-        EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
       ) % 3
     ) AS period_key
   FROM dated
@@ -694,8 +694,8 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1 - (
-        EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
       ) % 3
     ) AS period_key,
     day_events

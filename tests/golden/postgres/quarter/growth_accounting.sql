@@ -49,8 +49,8 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1 - (
-        EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
       ) % 3
     ) AS period_key
   FROM dated
@@ -97,8 +97,8 @@ WITH sqlgen_source AS (
     last_key,
     data_through,
     (
-      EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') * 12 + EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1 - (
-        EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1
+      CAST(EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') AS INT) * 12 + CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1
       ) % 3
     ) AS after_data_key
   FROM data_range

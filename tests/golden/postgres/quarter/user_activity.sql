@@ -60,8 +60,8 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1 - (
-        EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
       ) % 3
     ) AS period_key,
     day_events

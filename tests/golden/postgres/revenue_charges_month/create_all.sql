@@ -163,10 +163,10 @@ WITH sqlgen_source AS (
   /* The first and last period of the counted rows. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
     ) AS first_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
     ) AS last_key
   FROM bounds
 ), keyed AS (
@@ -174,7 +174,7 @@ WITH sqlgen_source AS (
   SELECT
     counted_customer AS keyed_customer,
     (
-      EXTRACT(YEAR FROM counted_date) * 12 + EXTRACT(MONTH FROM counted_date) - 1
+      CAST(EXTRACT(YEAR FROM counted_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM counted_date) AS INT) - 1
     ) AS keyed_key,
     counted_amount AS keyed_amount
   FROM counted
@@ -338,10 +338,10 @@ WITH tallies AS (
   /* The first and last period with revenue data, and the last date. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
     ) AS first_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
     ) AS last_key,
     last_date AS data_through
   FROM "finance".revenue_source_summary
@@ -352,7 +352,7 @@ WITH tallies AS (
     last_key,
     data_through,
     (
-      EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') * 12 + EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1
+      CAST(EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') AS INT) * 12 + CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1
     ) AS after_data_key
   FROM data_range
 ), digits AS (
@@ -503,10 +503,10 @@ WITH marked AS (
   /* The first and last period of revenue data. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
     ) AS first_data_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
     ) AS last_data_key
   FROM "finance".revenue_source_summary
 ), digits AS (

@@ -82,10 +82,10 @@ WITH sqlgen_source AS (
   /* The first and last period of the counted rows. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
     ) AS first_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
     ) AS last_key
   FROM bounds
 ), keyed AS (
@@ -93,7 +93,7 @@ WITH sqlgen_source AS (
   SELECT
     counted_customer AS keyed_customer,
     (
-      EXTRACT(YEAR FROM counted_date) * 12 + EXTRACT(MONTH FROM counted_date) - 1
+      CAST(EXTRACT(YEAR FROM counted_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM counted_date) AS INT) - 1
     ) AS keyed_key,
     counted_amount AS keyed_amount
   FROM counted

@@ -42,10 +42,10 @@ WITH tallies AS (
   /* The first and last period with revenue data, and the last date. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
     ) AS first_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
     ) AS last_key,
     last_date AS data_through
   FROM "finance".revenue_source_summary
@@ -56,7 +56,7 @@ WITH tallies AS (
     last_key,
     data_through,
     (
-      EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') * 12 + EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1
+      CAST(EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') AS INT) * 12 + CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1
     ) AS after_data_key
   FROM data_range
 ), digits AS (

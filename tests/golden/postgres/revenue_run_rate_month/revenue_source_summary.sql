@@ -109,9 +109,9 @@ SELECT
       WHEN row_status = 'counted'
       AND row_end IS NOT NULL
       AND (
-        EXTRACT(YEAR FROM row_end) * 12 + EXTRACT(MONTH FROM row_end) - 1
+        CAST(EXTRACT(YEAR FROM row_end) AS INT) * 12 + CAST(EXTRACT(MONTH FROM row_end) AS INT) - 1
       ) = (
-        EXTRACT(YEAR FROM row_date) * 12 + EXTRACT(MONTH FROM row_date) - 1
+        CAST(EXTRACT(YEAR FROM row_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM row_date) AS INT) - 1
       )
       THEN 1
     END

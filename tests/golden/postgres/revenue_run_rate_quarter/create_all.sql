@@ -123,12 +123,12 @@ SELECT
       WHEN row_status = 'counted'
       AND row_end IS NOT NULL
       AND (
-        EXTRACT(YEAR FROM row_end) * 12 + EXTRACT(MONTH FROM row_end) - 1 - (
-          EXTRACT(MONTH FROM row_end) - 1
+        CAST(EXTRACT(YEAR FROM row_end) AS INT) * 12 + CAST(EXTRACT(MONTH FROM row_end) AS INT) - 1 - (
+          CAST(EXTRACT(MONTH FROM row_end) AS INT) - 1
         ) % 3
       ) = (
-        EXTRACT(YEAR FROM row_date) * 12 + EXTRACT(MONTH FROM row_date) - 1 - (
-          EXTRACT(MONTH FROM row_date) - 1
+        CAST(EXTRACT(YEAR FROM row_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM row_date) AS INT) - 1 - (
+          CAST(EXTRACT(MONTH FROM row_date) AS INT) - 1
         ) % 3
       )
       THEN 1
@@ -248,13 +248,13 @@ WITH sqlgen_source AS (
   /* The first and last period of the counted rows. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1 - (
-        EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
       ) % 3
     ) AS first_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1 - (
-        EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
       ) % 3
     ) AS last_key
   FROM bounds
@@ -264,16 +264,16 @@ WITH sqlgen_source AS (
   SELECT
     c.counted_customer AS range_customer,
     (
-      EXTRACT(YEAR FROM c.counted_date) * 12 + EXTRACT(MONTH FROM c.counted_date) - 1 - (
-        EXTRACT(MONTH FROM c.counted_date) - 1
+      CAST(EXTRACT(YEAR FROM c.counted_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM c.counted_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM c.counted_date) AS INT) - 1
       ) % 3
     ) AS range_first_key,
     CASE
       WHEN c.counted_end IS NULL
       THEN d.last_key
       ELSE (
-        EXTRACT(YEAR FROM c.counted_end) * 12 + EXTRACT(MONTH FROM c.counted_end) - 1 - (
-          EXTRACT(MONTH FROM c.counted_end) - 1
+        CAST(EXTRACT(YEAR FROM c.counted_end) AS INT) * 12 + CAST(EXTRACT(MONTH FROM c.counted_end) AS INT) - 1 - (
+          CAST(EXTRACT(MONTH FROM c.counted_end) AS INT) - 1
         ) % 3
       ) - 3
     END AS range_last_key,
@@ -510,13 +510,13 @@ WITH tallies AS (
   /* The first and last period with revenue data, and the last date. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1 - (
-        EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
       ) % 3
     ) AS first_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1 - (
-        EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
       ) % 3
     ) AS last_key,
     last_date AS data_through
@@ -528,8 +528,8 @@ WITH tallies AS (
     last_key,
     data_through,
     (
-      EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') * 12 + EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1 - (
-        EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') - 1
+      CAST(EXTRACT(YEAR FROM data_through + INTERVAL '1 DAY') AS INT) * 12 + CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM data_through + INTERVAL '1 DAY') AS INT) - 1
       ) % 3
     ) AS after_data_key
   FROM data_range
@@ -680,13 +680,13 @@ WITH marked AS (
   /* The first and last period of revenue data. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1 - (
-        EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
       ) % 3
     ) AS first_data_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1 - (
-        EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
       ) % 3
     ) AS last_data_key
   FROM "finance".revenue_source_summary

@@ -115,13 +115,13 @@ WITH sqlgen_source AS (
   /* The first and last period of the counted rows. */
   SELECT
     (
-      EXTRACT(YEAR FROM first_date) * 12 + EXTRACT(MONTH FROM first_date) - 1 - (
-        EXTRACT(MONTH FROM first_date) - 1
+      CAST(EXTRACT(YEAR FROM first_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM first_date) AS INT) - 1
       ) % 3
     ) AS first_key,
     (
-      EXTRACT(YEAR FROM last_date) * 12 + EXTRACT(MONTH FROM last_date) - 1 - (
-        EXTRACT(MONTH FROM last_date) - 1
+      CAST(EXTRACT(YEAR FROM last_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM last_date) AS INT) - 1
       ) % 3
     ) AS last_key
   FROM bounds
@@ -131,16 +131,16 @@ WITH sqlgen_source AS (
   SELECT
     c.counted_customer AS range_customer,
     (
-      EXTRACT(YEAR FROM c.counted_date) * 12 + EXTRACT(MONTH FROM c.counted_date) - 1 - (
-        EXTRACT(MONTH FROM c.counted_date) - 1
+      CAST(EXTRACT(YEAR FROM c.counted_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM c.counted_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM c.counted_date) AS INT) - 1
       ) % 3
     ) AS range_first_key,
     CASE
       WHEN c.counted_end IS NULL
       THEN d.last_key
       ELSE (
-        EXTRACT(YEAR FROM c.counted_end) * 12 + EXTRACT(MONTH FROM c.counted_end) - 1 - (
-          EXTRACT(MONTH FROM c.counted_end) - 1
+        CAST(EXTRACT(YEAR FROM c.counted_end) AS INT) * 12 + CAST(EXTRACT(MONTH FROM c.counted_end) AS INT) - 1 - (
+          CAST(EXTRACT(MONTH FROM c.counted_end) AS INT) - 1
         ) % 3
       ) - 3
     END AS range_last_key,

@@ -109,12 +109,12 @@ SELECT
       WHEN row_status = 'counted'
       AND row_end IS NOT NULL
       AND (
-        EXTRACT(YEAR FROM row_end) * 12 + EXTRACT(MONTH FROM row_end) - 1 - (
-          EXTRACT(MONTH FROM row_end) - 1
+        CAST(EXTRACT(YEAR FROM row_end) AS INT) * 12 + CAST(EXTRACT(MONTH FROM row_end) AS INT) - 1 - (
+          CAST(EXTRACT(MONTH FROM row_end) AS INT) - 1
         ) % 3
       ) = (
-        EXTRACT(YEAR FROM row_date) * 12 + EXTRACT(MONTH FROM row_date) - 1 - (
-          EXTRACT(MONTH FROM row_date) - 1
+        CAST(EXTRACT(YEAR FROM row_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM row_date) AS INT) - 1 - (
+          CAST(EXTRACT(MONTH FROM row_date) AS INT) - 1
         ) % 3
       )
       THEN 1

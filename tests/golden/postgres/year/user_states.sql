@@ -50,8 +50,8 @@ WITH sqlgen_source AS (
     user_id,
     activity_date,
     (
-      EXTRACT(YEAR FROM activity_date) * 12 + EXTRACT(MONTH FROM activity_date) - 1 - (
-        EXTRACT(MONTH FROM activity_date) - 1
+      CAST(EXTRACT(YEAR FROM activity_date) AS INT) * 12 + CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1 - (
+        CAST(EXTRACT(MONTH FROM activity_date) AS INT) - 1
       ) % 12
     ) AS period_key
   FROM dated
