@@ -36,7 +36,7 @@ QUERIES = {
 def create(engine, schema: str, numeric: bool) -> None:
     target = TARGETS["postgres"]
     if numeric:
-        target = dataclasses.replace(target, name="postgres", transforms=tuple(
+        target = dataclasses.replace(target, transforms=tuple(
             t for t in target.transforms if t is not postgres_whole_extracts))
     spec = parse_spec(oe._spec_text().replace(f"schema: {oe.SCHEMA}", f"schema: {schema}"),
                       "bench_month.yml")

@@ -506,26 +506,24 @@ def _create_all(spec: Spec, target: Target, compiled: list[CompiledView]) -> str
 
 def _transaction_line(target: Target, partial: str, kept: str, refresh: bool = False) -> str:
     """Whether a script is one transaction, and what a failed run leaves (``refresh``:
-    refresh.sql, which holds no DDL)."""
-    if not _one_transaction(target, refresh) and refresh:
-        return (f"-- Not one transaction: {target.no_ddl_transaction}. Only the last "
-                f"statements move the state on, so a failed run can leave {partial} but "
-                "never the state; run it again after fixing the cause, and it computes the "
-                "same days and periods again.")
+    refresh.sql, which holds no DDL and moves its state on last)."""
     if not _one_transaction(target, refresh):
+        if refresh:
+            return (f"-- Not one transaction: {target.no_ddl_transaction}. Only the last "
+                    f"statements move the state on, so a failed run can leave {partial} but "
+                    "never the state; run it again after fixing the cause, and it computes "
+                    "the same days and periods again.")
         return (f"-- Not one transaction: {target.no_ddl_transaction}. A failed run can "
                 f"leave {partial}; run it again after fixing the cause.")
-    note = target.refresh_transaction if refresh and target.no_ddl_transaction else (
-        target.transaction_note)
+    note = (target.refresh_transaction if refresh and target.no_ddl_transaction
+            else target.transaction_note)
     return (f"-- One transaction: a run that fails leaves {kept} as it was"
             + (f"; {note}." if note else "."))
 
 
 def _one_transaction(target: Target, refresh: bool) -> bool:
     """Whether create_all.sql (or with ``refresh``, refresh.sql) runs as one transaction."""
-    if refresh and target.refresh_transaction is not None:
-        return True
-    return not target.no_ddl_transaction
+    return not target.no_ddl_transaction or (refresh and target.refresh_transaction is not None)
 
 
 def _script(lines: list[str], body: list[str], target: Target, refresh: bool = False) -> str:

@@ -124,20 +124,22 @@ def check_tables(engine, target: str, names: list[str], tables: str = "t_",
         assert comparable(from_table) == comparable(from_view), name
 
 
+def state_table(target: str) -> str:
+    return ("" if target in FLAT_TARGETS else f"{VIEW_SCHEMA}.") + "t_sqlgen_refresh_state"
+
+
 def state(engine, target: str) -> tuple:
-    schema = "" if target in FLAT_TARGETS else f"{VIEW_SCHEMA}."
     ((from_day, late, before),) = engine.query(
-        f"SELECT from_day, late_rows, rows_before FROM {schema}t_sqlgen_refresh_state",
+        f"SELECT from_day, late_rows, rows_before FROM {state_table(target)}",
         date_columns=[0])
     return from_day, late, before
 
 
 def committed(engine, target: str) -> tuple:
     """The state's committed columns (pending_* are a refresh's work in progress)."""
-    schema = "" if target in FLAT_TARGETS else f"{VIEW_SCHEMA}."
     return tuple(engine.query(
         "SELECT mark_day, from_day, rows_before, late_rows, read_from "
-        f"FROM {schema}t_sqlgen_refresh_state", date_columns=[0, 1, 4]))
+        f"FROM {state_table(target)}", date_columns=[0, 1, 4]))
 
 
 def append(engine, name: str, rows) -> None:
@@ -207,9 +209,8 @@ def run_case(engine, target: str, grain: str, lookback: int, parts: list[list],
         check_tables(engine, target, names)
         check_first_days(engine, target, seen)
         assert state(engine, target)[:2] == (expected_from_day(seen, lookback), late)
-        schema = "" if target in FLAT_TARGETS else f"{VIEW_SCHEMA}."
         assert engine.query("SELECT pending_before, pending_mark, pending_between FROM "
-                            f"{schema}t_sqlgen_refresh_state") == [(None, None, None)]
+                            f"{state_table(target)}") == [(None, None, None)]
     done = snapshot(engine, target, names, read_from=False)
     _run_script(engine, target, incremental["t_refresh.sql"])  # again: nothing changes
     assert snapshot(engine, target, names, read_from=False) == done
