@@ -480,19 +480,8 @@ def parse_spec(text: str, filename: str = "spec.yml") -> Spec:
 
 def _built_checks(spec: Spec, checker: _Checker) -> list[Problem]:
     """Checks of values a definition may take from `activity` or the top level: a
-    report_from that would leave every period out; first_seen with segments."""
+    report_from that would leave every period out."""
     found = []
-    for part in spec.parts():
-        seen_in = part.activity is not None and part.activity.first_seen is not None
-        if seen_in and any(s.splits_activity for s in spec.segments):
-            at = f"definitions.{part.definition}" if part.definition else "activity"
-            line, col = checker.positions["segments"]
-            found.append(Problem(checker.filename, line, col, "segments",
-                                 f"the segmented views do not read first_seen (set in {at}): "
-                                 "their new and resurrected users would not follow the "
-                                 "first-seen rule, and kind user values would not add up "
-                                 "to the totals; remove segments or first_seen"))
-            break
     for part in spec.parts():
         source = part.activity
         at = f"definitions.{part.definition}" if part.definition else "activity"

@@ -3,7 +3,8 @@
   segment_periods(windows)  the CTEs ending in segment_periods: one row per segment, value,
                      user and active period (segment_name, value_missing, value_text, user_id,
                      period_key, last_date and the window columns asked for: prior_key,
-                     later_key, first_key, see window_columns). The windows run on each
+                     later_key, first_key, see window_columns; with first_seen, seen_key:
+                     the user's first-seen period, NULL without one). The windows run on each
                      segment's own keys (the user alone for kind user: its states are the
                      totals'), before the values become text. The events are grouped once, by user, period
                      and the value of every segment read from the rows; each segment then
@@ -105,7 +106,7 @@
     ON t.sqlgen_key = u.user_id
 )
 {%- endif -%}
-{%- endfor %}, segment_periods AS (
+{%- endfor %}, {{ 'segment_union' if source.first_seen else 'segment_periods' }} AS (
   /* Every segment's rows, the value as text: value_missing 1 for NULL, value_text '' then. */
 {%- for s in segments if s.splits_activity %}
   {% if not loop.first %}UNION ALL
@@ -113,6 +114,14 @@
   FROM seg_sequenced_{{ segments.index(s) }}
 {%- endfor %}
 )
+{%- if source.first_seen %}, {{ a.first_seen_ctes() }}, segment_periods AS (
+  /* Each segment's rows with the period the user was first seen in (NULL: no valid first-seen date). */
+  SELECT q.segment_name, q.value_missing, q.value_text, q.user_id, q.period_key, q.last_date{% for name in windows %}, q.{{ name }}_key{% endfor %}, CASE WHEN s.sqlgen_seen_found = 1 THEN s.sqlgen_seen_key END AS seen_key
+  FROM segment_union AS q
+  LEFT JOIN first_seen AS s
+    ON s.sqlgen_seen_user = q.user_id
+)
+{%- endif %}
 {%- endmacro -%}
 
 {#- The window columns a view asks for, over each user's periods in order, partitioned by

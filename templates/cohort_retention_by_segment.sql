@@ -2,7 +2,9 @@
 {%- import '_segments.sql' as s with context -%}
 {#- cohort_retention per segment value: a user's cohort is the user's first active period in
     the value (for a kind user segment, the user's first active period). The ages run to the
-    totals' last period with data. -#}
+    totals' last period with data. With first_seen the cohort is the earlier of the
+    first-seen period and the first active period in the value, and a cohort's size counts
+    its users whether or not they were active at age 0. -#}
 WITH {{ s.segment_periods(['first']) }}, marked AS (
   /* Each active (segment, value, user, period) with the user's cohort in the value: the first active period there. */
   SELECT
@@ -10,7 +12,12 @@ WITH {{ s.segment_periods(['first']) }}, marked AS (
     value_missing,
     value_text,
     period_key AS marked_key,
+{%- if source.first_seen %}
+    CASE WHEN seen_key < first_key THEN seen_key ELSE first_key END AS marked_cohort_key,
+    first_key AS marked_first_key
+{%- else %}
     first_key AS marked_cohort_key
+{%- endif %}
   FROM segment_periods
 ), cohort_actives AS (
   /* Actives per segment, value, cohort and period. */
@@ -24,6 +31,17 @@ WITH {{ s.segment_periods(['first']) }}, marked AS (
   FROM marked
   GROUP BY segment_name, value_missing, value_text, marked_cohort_key, marked_key
 ), cohort_sizes AS (
+{%- if source.first_seen %}
+  /* The size of a cohort: its users in the value, each counted once (in the user's first active period there). */
+  SELECT segment_name AS size_segment, value_missing AS size_missing, value_text AS size_text, marked_cohort_key AS size_key, COUNT(CASE WHEN marked_key = marked_first_key THEN 1 END) AS size_count
+  FROM marked
+  GROUP BY segment_name, value_missing, value_text, marked_cohort_key
+), data_range AS (
+  /* The first cohort and the last period with data. */
+  SELECT MIN(marked_cohort_key) AS first_data_key, MAX(marked_key) AS last_data_key
+  FROM marked
+),
+{%- else %}
   /* The size of a cohort: its actives in the cohort period. */
   SELECT active_segment AS size_segment, active_missing AS size_missing, active_text AS size_text, active_cohort_key AS size_key, active_count AS size_count
   FROM cohort_actives
@@ -32,7 +50,8 @@ WITH {{ s.segment_periods(['first']) }}, marked AS (
   /* The first and last period with data. */
   SELECT MIN(period_key) AS first_data_key, MAX(period_key) AS last_data_key
   FROM segment_periods
-), {{ p.digits_cte() }}, ages AS (
+),
+{%- endif %} {{ p.digits_cte() }}, ages AS (
   /* Ages 0, 1, 2, ... periods, as many as the data spans. */
   SELECT {{ p.counting_value(grain.calendar_digits) }} AS age_number
   FROM data_range AS r

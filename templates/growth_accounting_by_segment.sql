@@ -6,7 +6,9 @@
     totals' one (every segment covers every counted row, so its first and last period are
     the totals'), crossed with every value, so each value's rows span it. A kind user
     segment gives each user one value, so its values' counts add up to the totals; a kind
-    event segment counts a user in every value the user was active with, so they need not. -#}
+    event segment counts a user in every value the user was active with, so they need not.
+    With first_seen, a user's first active period in a value counts as resurrected, not new,
+    when the user was first seen in an earlier period (seen_key < period_key). -#}
 WITH {{ s.segment_periods(['prior']) }}, tallies AS (
   /* Per segment, value and period: actives, new, retained, resurrected. */
   SELECT
@@ -16,9 +18,15 @@ WITH {{ s.segment_periods(['prior']) }}, tallies AS (
     period_key AS tally_key,
     MAX(last_date) AS through_tally,
     COUNT(*) AS active_tally,
+{%- if source.first_seen %}
+    COUNT(CASE WHEN prior_key IS NULL AND (seen_key IS NULL OR seen_key >= period_key) THEN 1 END) AS new_tally,
+    COUNT(CASE WHEN prior_key = period_key - {{ grain.step }} THEN 1 END) AS retained_tally,
+    COUNT(CASE WHEN prior_key < period_key - {{ grain.step }} OR (prior_key IS NULL AND seen_key < period_key) THEN 1 END) AS resurrected_tally
+{%- else %}
     COUNT(CASE WHEN prior_key IS NULL THEN 1 END) AS new_tally,
     COUNT(CASE WHEN prior_key = period_key - {{ grain.step }} THEN 1 END) AS retained_tally,
     COUNT(CASE WHEN prior_key < period_key - {{ grain.step }} THEN 1 END) AS resurrected_tally
+{%- endif %}
   FROM segment_periods
   GROUP BY segment_name, value_missing, value_text, period_key
 ), data_range AS (

@@ -1,7 +1,8 @@
 {%- import '_periods.sql' as p with context -%}
 {%- import '_segments.sql' as s with context -%}
 {#- user_states per segment value: a user's states within each value (for a kind user
-    segment, the user's one value, so the states are the totals'). -#}
+    segment, the user's one value, so the states are the totals'). With first_seen, a user's
+    first active period in a value is resurrected when the user was first seen earlier. -#}
 WITH {{ s.segment_periods(['prior', 'later']) }}, data_range AS (
   /* The last period with data: a user lapses only before it. */
   SELECT MAX(period_key) AS last_key FROM segment_periods
@@ -21,6 +22,9 @@ SELECT
   period_key,
   {{ p.period_start('period_key') }} AS period_start,
   CASE
+{%- if source.first_seen %}
+    WHEN prior_key IS NULL AND seen_key < period_key THEN 'resurrected'
+{%- endif %}
     WHEN prior_key IS NULL THEN 'new'
     WHEN prior_key = period_key - {{ grain.step }} THEN 'retained'
     ELSE 'resurrected'

@@ -9,7 +9,11 @@ and no SQL, and follows the definitions directly, without the SQL's tricks:
   smallest non-None value of the key, None when missing; else the value on the user's first
   counted row, the smallest non-None one among rows at that instant) and splits the users;
 - every value's rows span the totals' calendar, from the first to the last period with any
-  activity; a user lapses only up to that last period.
+  activity; a user lapses only up to that last period;
+- with first-seen dates (``{user: date}``, reference.first_seen_dates) the first-seen rule
+  applies within each value: a user's first active period in a value is resurrected, not
+  new, when the user's first-seen period is earlier; the user's cohort in the value is the
+  earlier of the two periods.
 
 Input rows are ``(user, ts, values)``, ``values`` a dict of column -> value; rows with a
 None user or ts, or a local date outside the valid range, are left out.
@@ -91,32 +95,44 @@ def _status(rows, last, grain, week_start, timezone):
         else "in_progress"
 
 
-def growth_by_segment(rows, segments, grain, week_start="monday", timezone=None, tables=None):
+def _seen_periods(first_seen, grain, week_start):
+    return {u: period_start(d, grain, week_start) for u, d in (first_seen or {}).items()}
+
+
+def _is_new(user, p, periods, seen):
+    """p is the user's first active period in the value and no earlier first-seen period."""
+    return p == min(periods) and not (user in seen and seen[user] < p)
+
+
+def growth_by_segment(rows, segments, grain, week_start="monday", timezone=None, tables=None,
+                      first_seen=None):
     """One dict per segment, value and period of the totals' calendar (SEGMENT_GROWTH_COLUMNS).
 
-    ``segments``: {name: {"kind", "column"[, "table"]}}; ``tables``: {table: [(key, value)]}.
+    ``segments``: {name: {"kind", "column"[, "table"]}}; ``tables``: {table: [(key, value)]};
+    ``first_seen``: {user: first-seen date}.
     """
     rows = counted(rows, timezone)
     if not rows:
         return []
     calendar = _calendar(rows, grain, week_start, timezone)
     last_status = _status(rows, calendar[-1], grain, week_start, timezone)
+    seen = _seen_periods(first_seen, grain, week_start)
     out = []
     for name, segment in segments.items():
         table = (tables or {}).get(segment.get("table")) if segment.get("table") else None
         for value, users in value_periods(rows, segment, grain, week_start, timezone,
                                           table).items():
             for p in calendar:
-                out.append(_row(name, value, users, p, grain, week_start))
+                out.append(_row(name, value, users, p, grain, week_start, seen))
             out[-1]["period_status"] = last_status
     return out
 
 
-def _row(name, value, users, p, grain, week_start):
+def _row(name, value, users, p, grain, week_start, seen):
     prev = previous_period_start(p, grain, week_start)
     active = {u for u, ps in users.items() if p in ps}
     previous = {u for u, ps in users.items() if prev in ps}
-    new = {u for u in active if min(users[u]) == p}
+    new = {u for u in active if _is_new(u, p, users[u], seen)}
     retained = active & previous
     resurrected = active - new - retained
     churned = previous - active
@@ -130,12 +146,14 @@ def _row(name, value, users, p, grain, week_start):
             "churn_rate": _ratio(len(churned), len(previous)), "period_status": "complete"}
 
 
-def states_by_segment(rows, segments, grain, week_start="monday", timezone=None, tables=None):
+def states_by_segment(rows, segments, grain, week_start="monday", timezone=None, tables=None,
+                      first_seen=None):
     """The set of (segment, value, user, period_start, state) rows."""
     rows = counted(rows, timezone)
     if not rows:
         return set()
     last = _calendar(rows, grain, week_start, timezone)[-1]
+    seen = _seen_periods(first_seen, grain, week_start)
     out = set()
     for name, segment in segments.items():
         table = (tables or {}).get(segment.get("table")) if segment.get("table") else None
@@ -144,7 +162,7 @@ def states_by_segment(rows, segments, grain, week_start="monday", timezone=None,
             for user, periods in users.items():
                 for p in periods:
                     prev = previous_period_start(p, grain, week_start)
-                    state = ("new" if p == min(periods) else
+                    state = ("new" if _is_new(user, p, periods, seen) else
                              "retained" if prev in periods else "resurrected")
                     out.add((name, value, str(user), p, state))
                     q = next_period_start(p, grain, week_start)
@@ -153,13 +171,16 @@ def states_by_segment(rows, segments, grain, week_start="monday", timezone=None,
     return out
 
 
-def cohorts_by_segment(rows, segments, grain, week_start="monday", timezone=None, tables=None):
+def cohorts_by_segment(rows, segments, grain, week_start="monday", timezone=None, tables=None,
+                       first_seen=None):
     """One dict per segment, value, cohort and age (SEGMENT_COHORT_COLUMNS): a user's cohort
-    is the first active period in the value; ages run to the totals' last period."""
+    is the first active period in the value (with first_seen, the earlier of that and the
+    first-seen period); ages run to the totals' last period."""
     rows = counted(rows, timezone)
     if not rows:
         return []
     last = _calendar(rows, grain, week_start, timezone)[-1]
+    seen = _seen_periods(first_seen, grain, week_start)
     out = []
     for name, segment in segments.items():
         table = (tables or {}).get(segment.get("table")) if segment.get("table") else None
@@ -167,7 +188,8 @@ def cohorts_by_segment(rows, segments, grain, week_start="monday", timezone=None
                                           table).items():
             cohorts = defaultdict(set)
             for user, periods in users.items():
-                cohorts[min(periods)].add(user)
+                start = min(periods)
+                cohorts[min(start, seen[user]) if user in seen else start].add(user)
             for start, members in cohorts.items():
                 p, age = start, 0
                 while p <= last:

@@ -85,10 +85,6 @@ CASES = [
     ("first_seen without the user key", SEEN.replace("    user: user_id\n", ""),
      ["s.yml:7:5: activity.first_seen.user: required key is missing from activity.first_seen; "
       "e.g. user: user_id"]),
-    ("first_seen with segments", SEEN + "segments:\n  p: {kind: event, column: platform}\n",
-     ["s.yml:12:3: segments: the segmented views do not read first_seen (set in activity): "
-      "their new and resurrected users would not follow the first-seen rule, and kind user "
-      "values would not add up to the totals; remove segments or first_seen"]),
     ("first_seen without a table", SEEN.replace("    table: app.users\n", ""),
      ["s.yml:7:5: activity.first_seen.table: required key is missing from "
       "activity.first_seen; e.g. table: app.users"]),

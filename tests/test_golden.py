@@ -81,7 +81,18 @@ definitions:
     where: "event_name = 'purchase'"
 """)
 SPECS = {label: (SPEC, grain) for label, grain in GRAINS.items()}
-SPECS["definitions_month"] = (DEFINITIONS_SPEC, GRAINS["month"])
+# With segments too: the segmented views of each definition apply the first-seen rule.
+SPECS["definitions_month"] = (DEFINITIONS_SPEC + """\
+segments:
+  platform:
+    kind: event
+    column: platform
+  channel:
+    kind: user
+    column: channel
+    table: raw.users
+    key: user_id
+""", GRAINS["month"])
 SPECS.update({f"revenue_{label}": (REVENUE_SPEC, grain) for label, grain in GRAINS.items()})
 SPECS.update({f"revenue_run_rate_{label}": (RUN_RATE_SPEC, grain)
               for label, grain in GRAINS.items()})

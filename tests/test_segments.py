@@ -102,11 +102,11 @@ def assert_identities_per_value(growth) -> None:
         ref.assert_identities(rows)
 
 
-def assert_user_kinds_add_up(growth, totals) -> None:
+def assert_user_kinds_add_up(growth, totals, segments=SEGMENTS) -> None:
     """A kind user segment partitions the users: its values' counts sum to the totals in
     every period of the totals' calendar."""
     total = {r["period_start"]: r for r in totals}
-    for name, segment in SEGMENTS.items():
+    for name, segment in segments.items():
         if segment["kind"] != "user":
             continue
         sums = defaultdict(lambda: defaultdict(int))
@@ -275,3 +275,150 @@ def test_revenue_by_segment_on_every_engine(engines, engine_name, target, grain,
     for period, total in totals.items():
         for column in rr.MONEY + ("customers", "new_customers", "churned_customers"):
             assert sum(r[column] for r in rows if r["period_start"] == period) == total[column]
+
+
+# ---------------------------------------------------------------- with first_seen
+
+SEEN_FIXTURE = ref.FIXTURES_DIR / "segments_first_seen"
+SEEN_SEGMENTS = {"platform": {"kind": "event", "column": "platform"},
+                 "channel": {"kind": "user", "column": "channel", "table": "members"}}
+
+
+def members_table(target: str) -> str:
+    return "members" if target in FLAT_TARGETS else "raw.members"
+
+
+def seen_spec(target: str, grain: str, week_start: str) -> str:
+    """Segments and activity.first_seen over one users table (members: user_id, channel,
+    signed_up_at), read as the first-seen table and as the kind user segment's table."""
+    text = spec_text(target, grain=grain, week_start=week_start, extra=(
+        "cohorts: true\nsegments:\n  platform: {kind: event, column: platform}\n"
+        f"  channel: {{kind: user, column: channel, table: {members_table(target)}, "
+        "key: user_id}\n"))
+    return text.replace("  timestamp_type: timestamp\n", (
+        "  timestamp_type: timestamp\n  first_seen:\n"
+        f"    table: {members_table(target)}\n    user: user_id\n"
+        "    timestamp: signed_up_at\n    timestamp_type: timestamp\n"), 1)
+
+
+def run_seen(engine, target, rows, members, grain, week_start) -> dict[str, list[dict]]:
+    """``members``: (user, channel, signed_up_at) rows."""
+    load(engine, target, rows, [])
+    engine.create_table(members_table(target), [("user_id", "text"), ("channel", "text"),
+                                                ("signed_up_at", "timestamp")],
+                        [(None if u is None else str(u), c, ts) for u, c, ts in members])
+    create_views(engine, seen_spec(target, grain, week_start), target)
+    return {name: read_view(engine, name, target) for name in SEGMENTED}
+
+
+def check_seen(results, rows, members, grain, week_start) -> None:
+    """Every segmented view against the reference with the first-seen dates, the identities
+    per value, and the kind user values adding up to the totals (which apply the same rule)."""
+    tables = {"members": [(u, c) for u, c, _ts in members]}
+    seen = ref.first_seen_dates([(u, ts) for u, _c, ts in members])
+    args = dict(tables=tables, first_seen=seen)
+    growth = results["growth_accounting_by_segment"]
+    assert_rows_match(_sortable(growth), _sortable(rs.growth_by_segment(
+        rows, SEEN_SEGMENTS, grain, week_start, **args)), ("segment", "_v", "period_start"),
+        rs.SEGMENT_GROWTH_COLUMNS)
+    got = {(r["segment"], r["segment_value"], str(r["user_id"]), r["period_start"], r["state"])
+           for r in results["user_states_by_segment"]}
+    want = rs.states_by_segment(rows, SEEN_SEGMENTS, grain, week_start, **args)
+    assert got == want, (sorted(got - want, key=str)[:5], sorted(want - got, key=str)[:5])
+    assert_rows_match(_sortable(results["cohort_retention_by_segment"]),
+                      _sortable(rs.cohorts_by_segment(rows, SEEN_SEGMENTS, grain, week_start,
+                                                      **args)),
+                      ("segment", "_v", "cohort_start", "age"), rs.SEGMENT_COHORT_COLUMNS)
+    assert_identities_per_value(growth)
+    assert_user_kinds_add_up(growth, results["growth_accounting"], SEEN_SEGMENTS)
+    totals = {r["period_start"]: r for r in ref.growth_accounting(
+        [(u, ts) for u, ts, _v in rows], grain, week_start, first_seen=seen)}
+    assert {r["period_start"]: {c: r[c] for c in COUNTS} for r in results["growth_accounting"]} \
+        == {p: {c: r[c] for c in COUNTS} for p, r in totals.items()}
+
+
+def seen_fixture():
+    import csv
+
+    with (SEEN_FIXTURE / "events.csv").open(encoding="utf-8", newline="") as f:
+        rows = [(r["user_id"], dt.datetime.fromisoformat(r["occurred_at"]),
+                 {"platform": r["platform"]}) for r in csv.DictReader(f)]
+    with (SEEN_FIXTURE / "members.csv").open(encoding="utf-8", newline="") as f:
+        members = [(r["user_id"], r["channel"] or None,
+                    dt.datetime.fromisoformat(r["signed_up_at"]) if r["signed_up_at"] else None)
+                   for r in csv.DictReader(f)]
+    return rows, members
+
+
+def seen_expected() -> list[dict]:
+    import csv
+
+    path = SEEN_FIXTURE / "expected" / "growth_accounting_by_segment_month.csv"
+    with path.open(encoding="utf-8", newline="") as f:
+        return [{k: (dt.date.fromisoformat(v) if k == "period_start" else
+                     int(v) if k in COUNTS else (v or None)) for k, v in r.items()}
+                for r in csv.DictReader(f)]
+
+
+def test_reference_with_first_seen_agrees_with_the_hand_derivation():
+    """fixtures/segments_first_seen/expected, derived by hand in its README, and the hand
+    cohorts: the reference applies the first-seen rule within each value."""
+    rows, members = seen_fixture()
+    seen = ref.first_seen_dates([(u, ts) for u, _c, ts in members])
+    tables = {"members": [(u, c) for u, c, _ts in members]}
+    got = rs.growth_by_segment(rows, SEEN_SEGMENTS, "month", tables=tables, first_seen=seen)
+    assert_rows_match(_sortable(got), _sortable(seen_expected()),
+                      ("segment", "_v", "period_start"), HAND_COLUMNS)
+    cohorts = rs.cohorts_by_segment(rows, SEEN_SEGMENTS, "month", tables=tables,
+                                    first_seen=seen)
+    ios_nov = [(r["age"], r["cohort_users"], r["active_users"]) for r in cohorts
+               if r["segment_value"] == "ios" and r["cohort_start"] == dt.date(2023, 11, 1)]
+    assert ios_nov == [(0, 1, 0), (1, 1, 0), (2, 1, 0), (3, 1, 0), (4, 1, 1)]
+    starts = {(r["segment_value"], r["cohort_start"]) for r in cohorts}
+    assert ("android", dt.date(2023, 12, 1)) in starts and ("organic", dt.date(2023, 12, 1)) \
+        in starts and (None, dt.date(2024, 1, 1)) in starts
+
+
+@pytest.mark.parametrize("engine_name,target", PAIRS)
+@pytest.mark.parametrize("grain,week_start", [("month", "monday"), ("week", "sunday")])
+def test_first_seen_fixture_on_every_engine(engines, engine_name, target, grain, week_start):
+    """fixtures/segments_first_seen: every segmented view against the reference, and at month
+    grain the hand-derived rows as committed."""
+    rows, members = seen_fixture()
+    results = run_seen(engines(engine_name), target, rows, members, grain, week_start)
+    check_seen(results, rows, members, grain, week_start)
+    if grain == "month":
+        assert_rows_match(_sortable(results["growth_accounting_by_segment"]),
+                          _sortable(seen_expected()), ("segment", "_v", "period_start"),
+                          HAND_COLUMNS)
+
+
+@st.composite
+def seen_rows(draw, engine_name):
+    """segmented_rows' events and a members table: some users (some twice, some absent),
+    each with a channel and a first-seen instant (NULLs and sentinels among them)."""
+    rows, _users = draw(segmented_rows())
+    pool = sorted({u for u, _ts, _v in rows if u is not None}) or ["nobody"]
+    stamps = draw(strategies.events(max_size=8, sentinels=strategies.sentinel_values(
+        "timestamp", engine_name)))
+    members = [(draw(st.sampled_from(pool)), draw(st.sampled_from(CHANNELS)), ts)
+               for _u, ts in stamps]
+    return rows, members
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("engine_name,target", PAIRS)
+def test_first_seen_random_data_on_every_engine(engines, engine_name, target):
+    engine = engines(engine_name)
+
+    @settings(max_examples=max(2, HYPOTHESIS_EXAMPLES[engine_name] // 3))
+    @given(data=seen_rows(engine_name), grain=strategies.grains(),
+           week_start=strategies.week_starts())
+    def run(data, grain, week_start):
+        rows, members = data
+        rows = [(None if u is None else str(u), ts, v) for u, ts, v in rows]
+        members = storable_rows(engine_name, members)
+        results = run_seen(engine, target, rows, members, grain, week_start)
+        check_seen(results, rows, members, grain, week_start)
+
+    run()
