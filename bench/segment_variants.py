@@ -154,6 +154,7 @@ def main(argv=None) -> int:
     args = parser.parse_args(argv)
     db = data.generate(data.SIZES[args.size], args.data_dir)
     data.add_segment_tables(db)
+    data.add_revenue_tables(db, data.SIZES[args.size])  # the segment spec has revenue too
     con = duckdb.connect(str(db))
     con.execute("SET enable_progress_bar = false")
     generated.create_views(con, "month", generated.SEGMENT_SCHEMA, generated.segment_spec_text())

@@ -9,7 +9,9 @@ refresh.sql, in one transaction where the target has one, for each part:
   1. counts the source rows now before from_day (pending_before: with rows_before, the
      late rows older than the lookback, not added but counted in the state table);
   2. deletes the days from from_day on and inserts them again from the source rows with a
-     timestamp from from_day on (exact and idempotent: those days are complete);
+     timestamp from from_day on (exact and idempotent: those days are complete); with
+     segments read from the activity rows, the same for the per-(user, day, value) table
+     ``<prefix>sqlgen_segment_days`` the segmented views read;
   3. finds the new mark, the newest day (pending_mark), and counts the rows between from_day
      and the new from_day, mark - lookback (pending_between);
   4. brings the per-user first active dates (``<prefix>sqlgen_first_days``) up to date:
@@ -18,6 +20,7 @@ then deletes each activity table's rows from the period holding from_day on and 
 them from the view's own template rendered with ``refresh`` (PER_PERIOD; it reads the
 per-day rows from a period before, the first dates, and nothing older), and computes the
 revenue tables again from their source (subscription rows change after they are written)
+and the segmented tables from the per-day tables (a segments table can change any period),
 and, with first_seen, every table in full. Last, one UPDATE per part commits the state
 (``commit_statements``): late_rows, rows_before, the mark and from_day move, read_from keeps
 the from_day read from. Until then no step changes a column another step reads, and every
@@ -32,10 +35,11 @@ import sqlglot
 from sqlglot import exp
 
 from .dialects import Target
-from .render import bind, render_template
+from .render import bind, render_template, segment_carry
 from .spec import Spec
 
 DAYS = "sqlgen_activity_days"
+SEGMENT_DAYS = "sqlgen_segment_days"
 FIRST = "sqlgen_first_days"
 STATE = "sqlgen_refresh_state"
 REFRESH = "refresh.sql"
@@ -70,12 +74,21 @@ def create_statements(part: Spec, target: Target) -> list[str]:
     from .compiler import table_statements, view_table
 
     out: list[str] = []
-    for name, template in ((DAYS, "sqlgen_activity_days.sql"),
-                           (FIRST, "sqlgen_first_days.sql"),
-                           (STATE, "sqlgen_refresh_state.sql")):
+    for name, template in day_tables(part) + [(FIRST, "sqlgen_first_days.sql"),
+                                              (STATE, "sqlgen_refresh_state.sql")]:
         (query,) = _statements(template, part, target, since=False)
         out += table_statements(view_table(part, name), query, target, f"view {name}",
                                 state=name == STATE)
+    return out
+
+
+def day_tables(part: Spec) -> list[tuple[str, str]]:
+    """(table, template) of the per-day tables of a part: sqlgen_activity_days, and with
+    segments read from the activity rows, sqlgen_segment_days (the segmented views read
+    it: it keeps their columns, so they count the same rows as every other table)."""
+    out = [(DAYS, "sqlgen_activity_days.sql")]
+    if segment_carry(part):
+        out.append((SEGMENT_DAYS, "sqlgen_segment_days.sql"))
     return out
 
 
@@ -84,15 +97,17 @@ def refresh_statements(part: Spec, target: Target) -> list[str]:
     from .compiler import _generate, view_table
 
     key = "output.materialize"
-    days = view_table(part, DAYS)
     state = view_table(part, STATE)
-    since = exp.select("from_day").from_(state.copy()).subquery()
-    delete = exp.Delete(this=days.copy(), where=exp.Where(this=exp.GTE(
-        this=exp.column("activity_date"), expression=since)))
-    (query,) = _statements("sqlgen_activity_days.sql", part, target, since=True)
-    insert = exp.Insert(this=days.copy(), expression=query)
-    trees = [*_statements("sqlgen_refresh_steps.sql", part, target, step="late"), delete,
-             insert, *_statements("sqlgen_refresh_steps.sql", part, target, step="mark"),
+    days = []
+    for name, template in day_tables(part):
+        table = view_table(part, name)
+        since = exp.select("from_day").from_(state.copy()).subquery()
+        days.append(exp.Delete(this=table.copy(), where=exp.Where(this=exp.GTE(
+            this=exp.column("activity_date"), expression=since))))
+        (query,) = _statements(template, part, target, since=True)
+        days.append(exp.Insert(this=table.copy(), expression=query))
+    trees = [*_statements("sqlgen_refresh_steps.sql", part, target, step="late"), *days,
+             *_statements("sqlgen_refresh_steps.sql", part, target, step="mark"),
              *_statements("sqlgen_refresh_steps.sql", part, target, step="first")]
     return [_generate(tree, target, key) for tree in trees]
 

@@ -103,8 +103,22 @@ def render_template(name: str, spec: Spec, from_days: bool = False, refresh: boo
         windows=spec.trailing_windows,
         definitions=[d.name for d in spec.definitions],
         segments=spec.segments,
+        segment_carry=segment_carry(spec),
         ref=lambda name: f"{VIEW_MARKER}{name}",
     )
+
+
+def segment_carry(spec: Spec) -> list[tuple[str, str]]:
+    """The columns the segmented views carry from the activity rows, as (marker, name): the
+    value of each segment that splits the activity and is read from the rows, then, when one
+    of those is kind user, the timestamp (its value is the one on the user's first row).
+    With `materialize: incremental` the per-(user, day, value) table keeps them (see
+    sqlgen/materialize.py); [] when no segment is read from the rows."""
+    carry = [(f"__segment_{i}__", f"sqlgen_seg_{i}") for i, s in enumerate(spec.segments)
+             if s.splits_activity and s.from_events]
+    if any(s.splits_activity and s.from_events and s.kind == "user" for s in spec.segments):
+        carry.append(("__timestamp__", "sqlgen_seg_ts"))
+    return carry
 
 
 def parse(sql: str) -> exp.Expression:

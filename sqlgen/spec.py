@@ -542,7 +542,7 @@ def _cross_checks(checker: _Checker, root: Node, v: dict[str, Any]) -> None:
 def _incremental_checks(checker: _Checker, v: dict[str, Any]) -> None:
     """What `materialize: incremental` cannot keep exact yet, refused at its key: a time zone
     conversion or an instant type (a local date then differs from the timestamp's date, so
-    the days a refresh reads and the days it computes again would not match), segments."""
+    the days a refresh reads and the days it computes again would not match)."""
     if v.get("output.materialize") != "incremental":
         return
     pos = checker.positions.get("output.materialize", (1, 1))
@@ -556,9 +556,6 @@ def _incremental_checks(checker: _Checker, v: dict[str, Any]) -> None:
             checker.report(pos, "output.materialize",
                            f"incremental does not support {path}.timestamp_type: timestamptz "
                            "yet: use materialize: table")
-    if v.get("segments"):
-        checker.report(pos, "output.materialize",
-                       "incremental does not support segments yet: use materialize: table")
 
 
 def _segment_revenue_check(checker: _Checker, v: dict[str, Any]) -> None:

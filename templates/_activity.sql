@@ -24,6 +24,8 @@ however often the view refers to it.
 With `output.materialize: incremental` (from_days), source_ctes() reads the per-(user, day)
 table instead (its rows are what `dated` grouped by user and date, with their count as
 sqlgen_events), which user_periods() takes as its user_days; every other CTE is unchanged.
+With carry (the segmented views' columns read from the rows), it reads the per-(user, day,
+value) table, which keeps those columns (the timestamp as its earliest one per row).
 since (source_ctes) keeps only the rows from the state table's from_day on: the rows a
 refresh reads again.
 With refresh (refresh.sql's query of a table it computes again from the first changed
@@ -58,6 +60,12 @@ refresh_bounds AS (
   SELECT user_id, activity_date, events AS sqlgen_events
   FROM {{ ref('sqlgen_activity_days') }}
   WHERE activity_date >= (SELECT {{ start }} FROM refresh_bounds)
+)
+{%- elif from_days and carry %}
+dated AS (
+  /* The activity rows that count, grouped by user, local date and the columns the segments read from the rows (the table refresh.sql keeps up to date). */
+  SELECT user_id, activity_date, events AS sqlgen_events{% for _column, name in carry %}, {{ name }}{% endfor %}
+  FROM {{ ref('sqlgen_segment_days') }}
 )
 {%- elif from_days %}
 dated AS (

@@ -26,14 +26,13 @@
 
 {%- macro segment_periods(windows=('prior',)) -%}
 {#- Only the segments that split the activity views (a table with customer_key alone does not). -#}
-{%- set ns = namespace(carry=[], first=false, user=false) -%}
+{#- segment_carry (sqlgen/render.py): the values read from the rows, then sqlgen_seg_ts when a kind user segment is among them. -#}
+{%- set ns = namespace(carry=segment_carry, first=false, user=false) -%}
 {%- for s in segments if s.splits_activity -%}
-{%- if s.from_events -%}{%- set ns.carry = ns.carry + [('__segment_' ~ segments.index(s) ~ '__', 'sqlgen_seg_' ~ segments.index(s))] -%}{%- endif -%}
 {%- if s.from_events and s.kind == 'user' -%}{%- set ns.first = true -%}{%- endif -%}
 {%- if s.kind == 'user' -%}{%- set ns.user = true -%}{%- endif -%}
 {%- endfor -%}
-{%- set alone = ns.carry | length == 1 -%}
-{%- if ns.first -%}{%- set ns.carry = ns.carry + [('__timestamp__', 'sqlgen_seg_ts')] -%}{%- endif -%}
+{%- set alone = (ns.carry | length) - (1 if ns.first else 0) == 1 -%}
 {{ a.keyed(ns.carry) }}, seg_grouped AS (
   /* The one grouping of the events: per user, period and value of each segment read from the rows{% if ns.first %}, the first timestamp{% endif %} and the last active date. */
   SELECT user_id, period_key{% for _c, name in ns.carry if name != 'sqlgen_seg_ts' %}, {{ name }}{% endfor %},{% if ns.first %} MIN(sqlgen_seg_ts) AS first_ts,{% endif %} MAX(activity_date) AS last_date

@@ -127,6 +127,9 @@ SPECS["incremental_month"] = (SPEC.replace(
     "  schema: growth\n", "  schema: growth\n  materialize: incremental\n  lookback: 1 week\n")
     + "revenue:\n  table: billing.invoice_lines\n  customer: account_id\n"
     "  timestamp: invoiced_at\n  amount: amount\n", GRAINS["month"])
+# Incremental with segments of every kind: the per-(user, day, value) table they read.
+SPECS["incremental_segments_month"] = (SEGMENT_SPEC.replace(
+    "  schema: growth\n", "  schema: growth\n  materialize: incremental\n"), GRAINS["month"])
 
 
 def refused(target: str, label: str) -> bool:

@@ -49,23 +49,40 @@ def tables_for(target: str) -> tuple[str, str]:
     return "raw.app_events", "raw.app_events_kept"
 
 
+def channels_table(target: str) -> str:
+    return "channels" if target in FLAT_TARGETS else "raw.channels"
+
+
+def segments_text(target: str) -> str:
+    """Segments of every kind: event (event_name), user from the rows (the name on the
+    user's first row) and user from a table (channels.channel)."""
+    return ("segments:\n  named:\n    kind: event\n    column: event_name\n"
+            "  first_named:\n    kind: user\n    column: event_name\n"
+            f"  channel:\n    kind: user\n    table: {channels_table(target)}\n"
+            "    key: user_id\n    column: channel\n")
+
+
 def spec_text(target: str, table: str, prefix: str, grain: str, lookback: int,
-              materialize: str, extra: str = "") -> str:
-    """``extra``: further lines of the activity section (first_seen, report_from)."""
+              materialize: str, extra: str = "", segments: bool = False) -> str:
+    """``extra``: further lines of the activity section (first_seen, report_from);
+    ``segments``: with the segments of ``segments_text``."""
     schema = "" if target in FLAT_TARGETS else f"  schema: {VIEW_SCHEMA}\n"
     return ("version: 1\nactivity:\n"
             f"  table: {table}\n  user: user_id\n  timestamp: occurred_at\n{extra}"
             f"grain: {grain}\ncohorts: true\nengagement: true\ntrailing_windows: [3, 7]\n"
-            f"output:\n  dialect: {target}\n{schema}  prefix: {prefix}\n"
+            + (segments_text(target) if segments else "")
+            + f"output:\n  dialect: {target}\n{schema}  prefix: {prefix}\n"
             f"  materialize: {materialize}\n  lookback: {lookback} days\n")
 
 
-def build(target: str, grain: str, lookback: int,
-          extra: str = "") -> tuple[dict, dict, list[str]]:
+def build(target: str, grain: str, lookback: int, extra: str = "",
+          segments: bool = False) -> tuple[dict, dict, list[str]]:
     """(incremental files, view files, names of the compared views)."""
     full, kept = tables_for(target)
-    tables = parse_spec(spec_text(target, full, "t_", grain, lookback, "incremental", extra))
-    views = parse_spec(spec_text(target, kept, "v_", grain, lookback, "view", extra))
+    tables = parse_spec(spec_text(target, full, "t_", grain, lookback, "incremental", extra,
+                                  segments))
+    views = parse_spec(spec_text(target, kept, "v_", grain, lookback, "view", extra,
+                                 segments))
     names = [view.name for _part, view in planned(views)
              if view.name != "activity_source_summary"]  # a view in both: it reads the source
     return render_files(tables), render_files(views), names
@@ -89,7 +106,10 @@ def snapshot(engine, target: str, names: list[str], read_from: bool = True) -> d
     """Every table's rows; without read_from, the state less that column (the day a
     refresh read from: a second refresh reads from the newer from_day, by design)."""
     out = {}
-    for name in names + ["sqlgen_refresh_state", "sqlgen_activity_days", "sqlgen_first_days"]:
+    days = ["sqlgen_activity_days", "sqlgen_first_days"]
+    if any(name.endswith("_by_segment") for name in names):
+        days.append("sqlgen_segment_days")
+    for name in names + ["sqlgen_refresh_state"] + days:
         rows = read_view(engine, f"t_{name}", target)
         if not read_from and name == "sqlgen_refresh_state":
             rows = [{k: v for k, v in row.items() if k != "read_from"} for row in rows]
@@ -148,8 +168,9 @@ def append(engine, name: str, rows) -> None:
 
 
 USERS = st.sampled_from(["a", "b", "c", "d", "e", None])
+NAMES = st.sampled_from(["app_opened", "app_opened", "purchase", None])
 NORMAL = st.tuples(USERS, st.integers(0, SPAN_DAYS - 1), st.integers(0, 23),
-                   st.integers(0, 3))  # user, day, hour, delay in batches
+                   st.integers(0, 3), NAMES)  # user, day, hour, delay in batches, event
 ODD = st.tuples(USERS, st.sampled_from([None, dt.datetime(1, 1, 1), dt.datetime(9999, 12, 31),
                                         dt.datetime(1989, 12, 31, 23)]),
                 st.integers(0, BATCHES - 1))
@@ -159,8 +180,8 @@ ODD = st.tuples(USERS, st.sampled_from([None, dt.datetime(1, 1, 1), dt.datetime(
 def batches(draw):
     """BATCHES lists of rows: each row in its time's batch plus a delay (late rows)."""
     out = [[] for _ in range(BATCHES)]
-    for user, day, hour, delay in draw(st.lists(NORMAL, max_size=40)):
-        row = (user, START + dt.timedelta(days=day, hours=hour), "app_opened")
+    for user, day, hour, delay, name in draw(st.lists(NORMAL, max_size=40)):
+        row = (user, START + dt.timedelta(days=day, hours=hour), name)
         batch = min(BATCHES - 1, day * BATCHES // SPAN_DAYS + delay)
         out[batch] += [row] * draw(st.sampled_from([1, 1, 2]))  # some duplicated
     for user, ts, batch in draw(st.lists(ODD, max_size=4)):
@@ -168,17 +189,26 @@ def batches(draw):
     return out
 
 
+CHANNELS = [("a", "ads"), ("b", None), ("c", "ads"), ("c", "search"), (None, "ads"),
+            ("d", "search")]  # c listed twice, e and the others missing, a NULL key
+
+
 def run_case(engine, target: str, grain: str, lookback: int, parts: list[list],
-             interrupt_at: int | None, extra: str = "", users=()) -> None:
+             interrupt_at: int | None, extra: str = "", users=(),
+             segments: bool = False) -> None:
     """``extra``: activity lines of both specs; ``users``: (user, ts) rows of the
-    first-seen table, loaded after the reset."""
+    first-seen table, loaded after the reset; ``segments``: both specs with the segments
+    of ``segments_text`` (their table from CHANNELS)."""
     engine.reset()
     if users:
         from test_definitions import load_users
 
         load_users(engine, users, target)
+    if segments:
+        engine.create_table(channels_table(target), [("user_id", "text"), ("channel", "text")],
+                            CHANNELS)
     full, kept = tables_for(target)
-    incremental, views, names = build(target, grain, lookback, extra)
+    incremental, views, names = build(target, grain, lookback, extra, segments)
     engine.create_table(full, COLUMNS, parts[0])
     engine.create_table(kept, COLUMNS, parts[0])
     _run_script(engine, target, views["v_create_all.sql"])
@@ -281,6 +311,43 @@ def test_batches_that_change_earlier_periods(engines, engine_name, target):
 
 @pytest.mark.engines
 @pytest.mark.parametrize("engine_name,target", PAIRS)
+def test_segments_are_refreshed(engines, engine_name, target):
+    """Segments of every kind, materialised incrementally: the segmented tables, computed
+    again by each refresh from the per-(user, day, value) table, equal their views over the
+    kept rows (a late row beyond the lookback is left out of them as out of the totals);
+    a user whose first row's name changes with a late row inside the lookback (a: 'purchase'
+    on Jan 2 arrives after 'app_opened' on Jan 3), a NULL name, a new name in a new month,
+    and, per kind user value, the counts add up to the totals' in every period."""
+    T = dt.datetime
+    parts = [
+        [("a", T(2024, 1, 3, 9), "app_opened"), ("b", T(2024, 1, 20), None),
+         ("b", T(2024, 1, 20), None), ("c", T(2024, 1, 21), "purchase")],
+        [("a", T(2024, 1, 2, 8), "purchase"), ("e", T(2024, 1, 22), "purchase")],  # inside
+        [],
+        [("b", T(2024, 2, 2), "purchase"), ("a", T(2024, 2, 29, 23), None),
+         ("d", T(2024, 1, 1), "app_opened")],  # d: beyond (from_day is Jan 2)
+        [("c", T(2024, 3, 4), "refund"), ("e", T(2024, 3, 5), "app_opened")],
+    ]
+    engine = engines(engine_name)
+    for grain, interrupt in (("month", 3), ("week", None)):
+        run_case(engine, target, grain, 20, parts, interrupt_at=interrupt, segments=True)
+        totals = {row["period_start"]: row
+                  for row in read_view(engine, "t_growth_accounting", target)}
+        split = read_view(engine, "t_growth_accounting_by_segment", target)
+        for segment in ("first_named", "channel"):
+            for column in ("active_users", "new_users", "retained_users",
+                           "resurrected_users", "churned_users"):
+                sums: dict = {}
+                for row in split:
+                    if row["segment"] == segment:
+                        sums[row["period_start"]] = (sums.get(row["period_start"], 0)
+                                                     + row[column])
+                assert sums == {k: row[column] for k, row in totals.items()}, (segment, column)
+        assert len({row["segment_value"] for row in split if row["segment"] == "named"}) == 4
+
+
+@pytest.mark.engines
+@pytest.mark.parametrize("engine_name,target", PAIRS)
 def test_two_incremental_specs_in_one_schema(engines, engine_name, target, tmp_path):
     """Two incremental specs (prefixes t_ and u_, month and week grain) over one source,
     built into one folder and run in one schema: no file or table is shared, and after a
@@ -323,9 +390,11 @@ def test_random_batches(engines, engine_name, target):
     @settings(max_examples=max(2, HYPOTHESIS_EXAMPLES[engine_name] // 4), deadline=None,
               derandomize=True, suppress_health_check=list(HealthCheck))
     @given(parts=batches(), grain=st.sampled_from(["day", "week", "month"]),
-           lookback=st.sampled_from([0, 2, 9]), interrupt=st.integers(1, BATCHES))
-    def case(parts, grain, lookback, interrupt):
-        run_case(engine, target, grain, lookback, parts, interrupt_at=interrupt)
+           lookback=st.sampled_from([0, 2, 9]), interrupt=st.integers(1, BATCHES),
+           segments=st.booleans())
+    def case(parts, grain, lookback, interrupt, segments):
+        run_case(engine, target, grain, lookback, parts, interrupt_at=interrupt,
+                 segments=segments)
 
     case()
 
