@@ -1,4 +1,4 @@
-"""`output.materialize: incremental` on DuckDB: refresh.sql against the full computation.
+"""`output.materialize: incremental`: refresh.sql against the full computation.
 
 For each history length and batch size: the activity table holds the events before a cut,
 create_all.sql builds the tables (not timed), the events of the batch (the days after the
@@ -11,6 +11,12 @@ shared, so absolute times move between runs.
 
     .venv/bin/python -m bench.incremental --db bench/data/activity_10m.duckdb
     .venv/bin/python -m bench.incremental --size smoke      # generates the data first
+    .venv/bin/python -m bench.incremental --size 10m --engine postgres --days 1
+
+With ``--engine`` (postgres, spark, clickhouse, mysql: the test suite's engines, started
+as the tests start them) the same case runs there, each script as that engine's client runs
+it; wall seconds only (the engine is another process), the tables checked equal to the
+views (EXCEPT ALL on every growth_accounting column) before a row is printed.
 """
 
 from __future__ import annotations
@@ -45,8 +51,9 @@ output:
 """
 
 
-def files(prefix: str, materialize: str) -> dict[str, str]:
-    return render_files(parse_spec(SPEC.format(prefix=prefix, materialize=materialize)))
+def files(prefix: str, materialize: str, target: str = "duckdb") -> dict[str, str]:
+    return render_files(parse_spec(SPEC.format(prefix=prefix, materialize=materialize)),
+                        target)
 
 
 def timed(con, sql: str, reps: int = 1) -> float:
@@ -95,6 +102,58 @@ def case(source: str, since: dt.datetime, cut: dt.datetime, days: int, threads: 
             "refresh_cpu": refresh_cpu, "full_cpu": full_cpu, "load": load}
 
 
+def engine_case(engine, source: str, since: dt.datetime, cut: dt.datetime,
+                days: int) -> dict:
+    """``case`` on an engine of the test suite (``--engine``)."""
+    import sys
+
+    sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
+    from test_create_all import _run_script  # noqa: E402  (the tests' script runner)
+
+    target = engine.name
+    engine.reset()
+    end = cut + dt.timedelta(days=days)
+    with duckdb.connect(source, read_only=True) as con:
+        def rows(lo, hi):
+            return con.execute("SELECT user_id, ts FROM events WHERE ts >= ? AND ts < ?",
+                               [lo, hi]).fetchall()
+        history_rows, batch_rows = rows(since, cut), rows(cut, end)
+    columns = [("user_id", "bigint"), ("ts", "timestamp")]
+    engine.create_table("ev", columns, history_rows)
+    incremental, table, view = (files("t_", "incremental", target), files("f_", "table", target),
+                                files("v_", "view", target))
+    _run_script(engine, target, view["v_create_all.sql"])
+    _run_script(engine, target, incremental["t_create_all.sql"])
+    engine._load(engine.qualified("ev"), columns, batch_rows)
+
+    def timed_script(script: str) -> float:
+        start = time.perf_counter()
+        _run_script(engine, target, script)
+        return time.perf_counter() - start
+
+    def timed_read(name: str) -> float:
+        times = []
+        for _ in range(3):
+            start = time.perf_counter()
+            engine.query(f"SELECT * FROM {name}")
+            times.append(time.perf_counter() - start)
+        return statistics.median(times)
+
+    load = os.getloadavg()[0]
+    refresh = timed_script(incremental["t_refresh.sql"])
+    full = timed_script(table["f_create_all.sql"])
+    load = max(load, os.getloadavg()[0])
+    read_view, read_table = timed_read("v_growth_accounting"), timed_read("t_growth_accounting")
+    names = ", ".join(engine.column_names("SELECT * FROM v_growth_accounting"))
+    ((differ,),) = engine.query(
+        f"SELECT count(*) FROM (SELECT {names} FROM t_growth_accounting EXCEPT ALL "
+        f"SELECT {names} FROM v_growth_accounting) AS d")
+    assert differ == 0, "the refreshed table differs from the view"
+    return {"history": len(history_rows), "batch": len(batch_rows), "days": days,
+            "refresh": refresh, "full": full, "read_view": read_view,
+            "read_table": read_table, "refresh_cpu": None, "full_cpu": None, "load": load}
+
+
 def main(argv: list[str] | None = None) -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--size", default="10m", choices=sorted(data.SIZES))
@@ -105,6 +164,8 @@ def main(argv: list[str] | None = None) -> None:
                         help="batch sizes in days (at most 30)")
     parser.add_argument("--history", default="both",
                         choices=["both", "full history", "last 6 months"])
+    parser.add_argument("--engine", choices=["duckdb", "postgres", "spark", "clickhouse",
+                                             "mysql"], default="duckdb")
     args = parser.parse_args(argv)
     source = args.db or data.generate(data.SIZES[args.size], args.data_dir)
     with duckdb.connect(str(source), read_only=True) as con:
@@ -118,15 +179,29 @@ def main(argv: list[str] | None = None) -> None:
           "refresh / full, CPU | table read / view read | refresh s (CPU s) | "
           "full s (CPU s) | load average |")
     print("| --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |")
-    for label, since in histories.items():
-        for days in args.days:
-            r = case(str(source), since, cut, days, args.threads)
-            print(f"| {label} | {r['history']:,} | {days} day{'s' if days > 1 else ''} | "
-                  f"{r['batch']:,} | {r['refresh'] / r['full']:.1%} | "
-                  f"{r['refresh_cpu'] / r['full_cpu']:.1%} | "
-                  f"{r['read_table'] / r['read_view']:.2%} | {r['refresh']:.2f} "
-                  f"({r['refresh_cpu']:.2f}) | {r['full']:.2f} ({r['full_cpu']:.2f}) | "
-                  f"{r['load']:.1f} |", flush=True)
+    engine = None
+    if args.engine != "duckdb":
+        import sys
+
+        sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
+        from engines import start_engine  # noqa: E402  (tests/engines.py)
+
+        engine = start_engine(args.engine)
+    try:
+        for label, since in histories.items():
+            for days in args.days:
+                r = (engine_case(engine, str(source), since, cut, days) if engine else
+                     case(str(source), since, cut, days, args.threads))
+                cpu = ("n/a" if r["refresh_cpu"] is None
+                       else f"{r['refresh_cpu'] / r['full_cpu']:.1%}")
+                print(f"| {label} | {r['history']:,} | {days} day{'s' if days > 1 else ''} | "
+                      f"{r['batch']:,} | {r['refresh'] / r['full']:.1%} | {cpu} | "
+                      f"{r['read_table'] / r['read_view']:.2%} | {r['refresh']:.2f} "
+                      f"({r['refresh_cpu'] or 0:.2f}) | {r['full']:.2f} "
+                      f"({r['full_cpu'] or 0:.2f}) | {r['load']:.1f} |", flush=True)
+    finally:
+        if engine is not None:
+            engine.close()
 
 
 if __name__ == "__main__":

@@ -153,7 +153,10 @@ def ddl_statements(view: View, spec: Spec, target: Target,
     table = view_table(spec, view.name)
     key = f"view {view.name}"
     if materialized(view, spec):
-        return table_statements(table, query, target, key)
+        from .materialize import partition_column
+
+        return table_statements(table, query, target, key,
+                                partition=partition_column(view.name, spec, target))
     if target.view_ddl == "drop_create":
         drop = exp.Drop(tables=[table.copy()], kind="VIEW", exists=True)
         create = exp.Create(this=table, kind="VIEW", expression=query)
@@ -186,17 +189,25 @@ def refresh_statements(view: View, spec: Spec, target: Target) -> tuple[str, ...
         return tuple(_generate(tree, target, key)
                      for tree in period_statements(view.name, view.template, spec, target))
     query = compile_query(view, spec, target)
-    return tuple(recompute_statements(view_table(spec, view.name), query, target,
+    return tuple(recompute_statements(view_table(spec, view.name), query, spec, target,
                                       f"view {view.name}"))
 
 
 def table_statements(table: exp.Table, query: exp.Expression, target: Target,
-                     key: str, state: bool = False) -> tuple[str, ...]:
+                     key: str, state: bool = False,
+                     partition: str | None = None) -> tuple[str, ...]:
     """DROP TABLE IF EXISTS, then CREATE TABLE ... AS the query in the target's form
-    (``Target.table_form``; T-SQL: SELECT ... INTO, which sqlglot writes for it)."""
+    (``Target.table_form``; T-SQL: SELECT ... INTO, which sqlglot writes for it).
+    ``partition``: the column it is partitioned by, for ``Target.partition_overwrite``
+    (``materialize.partition_column``; the constant one is added to the query's)."""
+    from .materialize import CONSTANT_PART
+
+    if partition == CONSTANT_PART:
+        query = exp.select(exp.Star(), exp.Literal.number(0).as_(CONSTANT_PART)).from_(
+            query.subquery("sqlgen_rows", copy=False))
     drop = exp.Drop(tables=[table.copy()], kind="TABLE", exists=True)
     create = exp.Create(this=table, kind="TABLE", expression=query,
-                        properties=table_properties(target, state))
+                        properties=table_properties(target, state, partition))
     return (_generate(drop, target, key), _generate(create, target, key))
 
 

@@ -78,6 +78,10 @@ class Target:
     # refresh.sql's state table, which it UPDATEs: its CREATE TABLE form where that differs
     # from table_form ("" where it does not).
     state_table_form: str = ""
+    # Where the tables refresh.sql writes have neither DELETE nor UPDATE: their CREATE
+    # TABLE form, with dynamic partition overwrite (materialize.overwrite_form); each is
+    # partitioned by materialize.partition_column. "" where refresh.sql deletes and updates.
+    partition_overwrite: str = ""
 
     def dialect(self) -> Dialect:
         return _dialect(self.sqlglot_dialect)
@@ -519,9 +523,13 @@ _SPARK_TABLE = "USING PARQUET"
 _NO_REFRESH_YET = ("refresh.sql is not written for this target yet (it needs {}); use "
                    "materialize: table")
 _NO_REFRESH = {
-    "spark": _NO_REFRESH_YET.format("partition overwrite: DELETE does not work on Parquet "
-                                    "tables"),
+    "databricks": _NO_REFRESH_YET.format("Delta's DELETE and UPDATE, which no engine in "
+                                         "the tests runs; Spark's Parquet form would need "
+                                         "external tables there"),
 }
+# Spark: Parquet tables have no DELETE or UPDATE; refresh.sql overwrites their partitions
+# (materialize.overwrite_form), each written aside and moved in when its statement succeeds.
+_SPARK_OVERWRITE = "USING PARQUET OPTIONS ('partitionOverwriteMode' = 'dynamic')"
 
 TARGETS: dict[str, Target] = {
     t.name: t
@@ -537,12 +545,12 @@ TARGETS: dict[str, Target] = {
                (_zone_rewrite(_zones_spark), timestamp_offsets(_offset_spark), int_date_offsets,
                 constant_unions_as_values),
                no_ddl_transaction=_NO_TX_SPARK, table_form=_SPARK_TABLE,
-               unsupported={"materialize: incremental": _NO_REFRESH["spark"]}),
+               partition_overwrite=_SPARK_OVERWRITE),
         Target("databricks", "databricks", "spark", "replace",
                (_zone_rewrite(_zones_spark), timestamp_offsets(_offset_spark), int_date_offsets,
                 constant_unions_as_values),
                executed=_DATABRICKS_EXECUTED, no_ddl_transaction=_NO_TX_SPARK,
-               unsupported={"materialize: incremental": _NO_REFRESH["spark"]}),
+               unsupported={"materialize: incremental": _NO_REFRESH["databricks"]}),
         # drop_create: ClickHouse's CREATE OR REPLACE VIEW silently replaces a *table* of
         # that name (its data gone), while DROP VIEW refuses one ("is not a View").
         Target("clickhouse", "clickhouse", "clickhouse", "drop_create",
@@ -804,10 +812,18 @@ def rewrites(target: Target) -> list[Transform]:
             *target.transforms]
 
 
-def table_properties(target: Target, state: bool = False) -> exp.Properties | None:
+def table_properties(target: Target, state: bool = False,
+                     partition: str | None = None) -> exp.Properties | None:
     """The properties of ``Target.table_form`` (with ``state``: of the state table's form,
-    ``Target.state_table_form`` where there is one), parsed in the target's dialect (None:
-    none)."""
+    ``Target.state_table_form`` where there is one; with ``partition``: of
+    ``Target.partition_overwrite``, partitioned by that column), parsed in the target's
+    dialect (None: none)."""
+    if partition is not None:
+        properties = _table_properties(target.sqlglot_dialect,
+                                       target.partition_overwrite).copy()
+        properties.append("expressions", exp.PartitionedByProperty(this=exp.Schema(
+            expressions=[exp.to_identifier(partition, quoted=True)])))
+        return properties
     form = (state and target.state_table_form) or target.table_form
     if not form:
         return None

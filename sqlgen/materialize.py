@@ -27,6 +27,17 @@ the from_day read from. Until then no step changes a column another step reads, 
 step is idempotent, so a run that fails anywhere (on a target without transactions too)
 leaves the state as it was, and the next run is correct. Statements are templates in the
 source dialect, bound and rewritten per target like every view.
+
+Where a target's tables have neither DELETE nor UPDATE (Spark's Parquet tables:
+``Target.partition_overwrite``), ``overwrite_form`` turns each DELETE and the INSERT that
+follows it, and each UPDATE of the state, into one INSERT OVERWRITE in dynamic partition
+mode, which writes its partitions aside and moves them in only when the statement succeeds
+(so a statement that fails changes nothing, and it may read the table it writes). Each
+table is partitioned so that its deleted rows are whole partitions (``partition_column``):
+the per-day tables by day, the tables rebuilt from a period on by their period key; the
+per-user first dates and the state, whose rows move between days, by one constant column
+(``CONSTANT_PART``): every refresh writes them again whole. The tables computed again in
+full are not partitioned (INSERT OVERWRITE of the whole table).
 """
 
 from __future__ import annotations
@@ -43,6 +54,8 @@ SEGMENT_DAYS = "sqlgen_segment_days"
 FIRST = "sqlgen_first_days"
 STATE = "sqlgen_refresh_state"
 REFRESH = "refresh.sql"
+# The partition column of the tables an overwrite target writes whole at every refresh.
+CONSTANT_PART = "sqlgen_partition"
 
 
 def parts_with_days(spec: Spec) -> list[Spec]:
@@ -78,7 +91,8 @@ def create_statements(part: Spec, target: Target) -> list[str]:
                                               (STATE, "sqlgen_refresh_state.sql")]:
         (query,) = _statements(template, part, target, since=False)
         out += table_statements(view_table(part, name), query, target, f"view {name}",
-                                state=name == STATE)
+                                state=name == STATE,
+                                partition=partition_column(name, part, target))
     return out
 
 
@@ -109,7 +123,7 @@ def refresh_statements(part: Spec, target: Target) -> list[str]:
     trees = [*_statements("sqlgen_refresh_steps.sql", part, target, step="late"), *days,
              *_statements("sqlgen_refresh_steps.sql", part, target, step="mark"),
              *_statements("sqlgen_refresh_steps.sql", part, target, step="first")]
-    return [_generate(tree, target, key) for tree in trees]
+    return [_generate(tree, target, key) for tree in overwrite_form(trees, part, target)]
 
 
 def commit_statements(part: Spec, target: Target) -> list[str]:
@@ -117,19 +131,20 @@ def commit_statements(part: Spec, target: Target) -> list[str]:
     docstring)."""
     from .compiler import _generate
 
+    trees = _statements("sqlgen_refresh_steps.sql", part, target, step="commit")
     return [_generate(tree, target, "output.materialize")
-            for tree in _statements("sqlgen_refresh_steps.sql", part, target, step="commit")]
+            for tree in overwrite_form(trees, part, target)]
 
 
-def recompute_statements(table: exp.Table, query: exp.Expression, target: Target,
-                         key: str) -> list[str]:
+def recompute_statements(table: exp.Table, query: exp.Expression, part: Spec,
+                         target: Target, key: str) -> list[str]:
     """A table's rows computed again: DELETE (WHERE TRUE: BigQuery refuses a DELETE
     without a WHERE clause), then INSERT of its query."""
     from .compiler import _generate
 
     delete = exp.Delete(this=table.copy(), where=exp.Where(this=exp.true()))
-    return [_generate(delete, target, key),
-            _generate(exp.Insert(this=table.copy(), expression=query), target, key)]
+    trees = [delete, exp.Insert(this=table.copy(), expression=query)]
+    return [_generate(tree, target, key) for tree in overwrite_form(trees, part, target)]
 
 
 # The tables refresh.sql computes again from the first changed period on, not in full:
@@ -162,4 +177,131 @@ def period_statements(view_name: str, template: str, part: Spec,
     (query,) = _statements(template, part, target, from_days=True, refresh=True)
     from .compiler import view_table
 
-    return [delete, exp.Insert(this=view_table(part, view_name), expression=query)]
+    trees = [delete, exp.Insert(this=view_table(part, view_name), expression=query)]
+    return overwrite_form(trees, part, target)
+
+
+def partition_column(name: str, part: Spec, target: Target) -> str | None:
+    """The column an overwrite target (``Target.partition_overwrite``) partitions an
+    incremental table by (see the module's docstring); None: not partitioned, or not such
+    a target."""
+    if not target.partition_overwrite or part.output.materialize != "incremental":
+        return None
+    if name in (DAYS, SEGMENT_DAYS):
+        return "activity_date"
+    if name in (FIRST, STATE):
+        return CONSTANT_PART
+    if per_period(name, part):
+        return PER_PERIOD[name][0]
+    return None
+
+
+def _partitions(part: Spec, target: Target) -> list[tuple[exp.Table, str | None]]:
+    """(table, partition column) of every table refresh.sql writes for a part."""
+    from .compiler import view_table
+
+    names = [DAYS, SEGMENT_DAYS, FIRST, STATE, *PER_PERIOD]
+    return [(view_table(part, name), partition_column(name, part, target)) for name in names]
+
+
+def _same_table(a: exp.Table, b: exp.Table) -> bool:
+    return [a.name, a.db, a.catalog] == [b.name, b.db, b.catalog]
+
+
+def _named(query: exp.Expression) -> list[str]:
+    names = query.named_selects
+    if not names or "*" in names:
+        raise AssertionError("an incremental table's query names each of its columns")
+    return names
+
+
+def _projected(names: list[str], source: exp.Expression, alias: str) -> exp.Select:
+    return exp.select(*(exp.column(n, table=alias, quoted=True) for n in names)).from_(
+        source.subquery(alias, copy=False) if not isinstance(source, exp.Table)
+        else source.as_(alias))
+
+
+def overwrite_form(trees: list[exp.Expression], part: Spec,
+                   target: Target) -> list[exp.Expression]:
+    """refresh.sql's statements as INSERT OVERWRITE where the target has neither DELETE
+    nor UPDATE (see the module's docstring); unchanged elsewhere.
+
+    A DELETE of the rows where c, then INSERT of q: q reading the table as it is after
+    the delete (its rows where c is not true); the table's partitions, where c holds
+    exactly for whole partitions, are overwritten by q's rows; with the constant partition
+    by its rows where c is not true and q's; without a partition, whole by q. An UPDATE
+    of the one-row state: its row again, each column set or kept."""
+    if not target.partition_overwrite:
+        return trees
+    layout = _partitions(part, target)
+
+    def partition_of(table: exp.Table) -> str | None:
+        return next((column for t, column in layout if _same_table(t, table)), None)
+
+    out: list[exp.Expression] = []
+    pending: exp.Delete | None = None
+    for tree in trees:
+        if isinstance(tree, exp.Delete):
+            pending = tree
+            continue
+        if isinstance(tree, exp.Update):
+            out.append(_overwrite_update(tree, part, target))
+            continue
+        if not isinstance(tree, exp.Insert) or pending is None or not _same_table(
+                pending.this, tree.this):
+            raise AssertionError(f"refresh step without an overwrite form: {tree.sql()}")
+        table, column = tree.this, partition_of(tree.this)
+        condition = pending.args["where"].this
+        pending = None
+        query = tree.expression
+        if condition == exp.true():
+            if any(_same_table(t, table) for t in query.find_all(exp.Table)):
+                raise AssertionError("a table computed again in full reads itself")
+            kept = None
+        else:
+            kept = exp.select("*").from_(table.copy()).where(
+                exp.not_(exp.func("COALESCE", condition.copy(), exp.false())))
+            for read in list(query.find_all(exp.Table)):
+                if _same_table(read, table):
+                    read.replace(kept.copy().subquery(read.alias_or_name, copy=False))
+        names = _named(query)
+        if column is None:
+            rows = query
+        elif column == CONSTANT_PART:
+            rows = _projected(names, query, "sqlgen_rows")
+            if kept is not None:
+                rows = exp.union(_projected(names, kept, "sqlgen_kept"), rows, distinct=False)
+            rows = exp.select(*(exp.column(n, quoted=True) for n in names),
+                              exp.Literal.number(0).as_(CONSTANT_PART)).from_(
+                rows.subquery("sqlgen_rows", copy=False))
+        else:
+            rows = _projected([n for n in names if n != column] + [column], query,
+                              "sqlgen_rows")
+        out.append(_insert_overwrite(table, column, rows))
+    if pending is not None:
+        raise AssertionError("a DELETE without its INSERT")
+    return out
+
+
+def _insert_overwrite(table: exp.Table, column: str | None,
+                      rows: exp.Expression) -> exp.Insert:
+    target_table = table.copy()
+    if column is not None:
+        target_table.set("partition", exp.Partition(
+            expressions=[exp.column(column, quoted=True)]))
+    return exp.Insert(this=target_table, expression=rows, overwrite=True)
+
+
+def _overwrite_update(update: exp.Update, part: Spec, target: Target) -> exp.Insert:
+    """UPDATE state SET c = e, ... as the state row written again (it has one row)."""
+    from .compiler import view_table
+
+    table = view_table(part, STATE)
+    if not _same_table(update.this, table):
+        raise AssertionError("only the state table is updated")
+    assigned = {eq.this.name: eq.expression for eq in update.expressions}
+    (query,) = _statements("sqlgen_refresh_state.sql", part, target, since=False)
+    columns = [assigned.get(n, exp.column(n, quoted=True)).copy().as_(n, quoted=True)
+               for n in _named(query)]
+    rows = exp.select(*columns, exp.column(CONSTANT_PART, quoted=True)).from_(table.copy())
+    return _insert_overwrite(table, CONSTANT_PART, rows)

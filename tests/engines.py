@@ -841,6 +841,7 @@ class SparkEngine(Engine):
 
     def _start(self):
         self._spark = _spark_session()
+        self._folders = {}  # table made by create_table -> its folder (for _load)
 
     def create_table(self, name, columns, rows):
         """(Re)create `name` as a parquet table over the rows written to a new folder."""
@@ -853,6 +854,12 @@ class SparkEngine(Engine):
         cols = ', '.join(f'{self.quote(c)} {self.sql_type(t)}' for c, t in columns)
         self._exec(f'DROP TABLE IF EXISTS {target}')
         self._exec(f"CREATE TABLE {target} ({cols}) USING parquet LOCATION '{folder}'")
+        self._folders[target] = folder
+
+    def _load(self, target, columns, rows):
+        """Append rows to a table made by create_table: one more file in its folder."""
+        _write_parquet(columns, rows, self._folders[target], utc_timestamps=True)
+        self._exec(f'REFRESH TABLE {target}')
 
     def _exec(self, sql):
         try:

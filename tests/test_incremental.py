@@ -35,12 +35,20 @@ from sqlgen.compiler import _one_transaction
 from sqlgen.dialects import TARGETS
 from sqlgen.views import planned
 
-PAIRS = engine_target_pairs(only=("duckdb", "postgres", "sqlite", "mysql", "clickhouse"))
+PAIRS = engine_target_pairs(only=("duckdb", "postgres", "sqlite", "mysql", "clickhouse", "spark"))
 START = dt.datetime(2024, 1, 1)
 SPAN_DAYS = 75  # three calendar months: batches open new months and weeks
 BATCHES = 5
 VALID = (dt.date(1990, 1, 1), dt.date(2100, 1, 1))  # the default valid range
 COLUMNS = [("user_id", "text"), ("occurred_at", "timestamp"), ("event_name", "text")]
+# Spark plans and runs each of a refresh's statements and each view read in a second or
+# more (a run_case costs it about a minute), so for CI's budget it runs less: the weekly
+# pinned log (with the failed refresh) but not the day, month and first_seen ones, the
+# segments at month grain only, and it compares the tables with the views after
+# create_all.sql, after the refresh that follows a failed one and after the last refresh
+# (the state, first dates and pending columns after every one). The statements are the
+# same overwrite form in each case; the other engines run and compare everything.
+SLOW = ("spark",)
 
 
 def tables_for(target: str) -> tuple[str, str]:
@@ -141,7 +149,16 @@ def check_tables(engine, target: str, names: list[str], tables: str = "t_",
     for name in names:
         from_view = read_view(engine, f"{views}{name}", target)
         from_table = read_view(engine, f"{tables}{name}", target)
-        assert comparable(from_table) == comparable(from_view), name
+        assert comparable(aligned(from_table, from_view)) == comparable(from_view), name
+
+
+def aligned(table_rows: list[dict], view_rows: list[dict]) -> list[dict]:
+    """A table's rows with its view's columns in the view's order (Spark keeps a table's
+    partition column last); the same columns either way."""
+    if not table_rows or not view_rows:
+        return table_rows
+    assert set(table_rows[0]) == set(view_rows[0])
+    return [{c: row[c] for c in view_rows[0]} for row in table_rows]
 
 
 def state_table(target: str) -> str:
@@ -225,18 +242,20 @@ def run_case(engine, target: str, grain: str, lookback: int, parts: list[list],
         seen += [row for row in batch if row not in lost]
         late += len(lost)
         if number == interrupt_at:
-            before = snapshot(engine, target, names)
+            one = _one_transaction(TARGETS[target], refresh=True)
+            before = snapshot(engine, target, names) if one else None
             committed_before = committed(engine, target)
             failing = broken(incremental["t_refresh.sql"])  # outside raises: its own checks
             with pytest.raises(Exception, match="sqlgen_no_such_table"):
                 _run_script(engine, target, failing)
-            if _one_transaction(TARGETS[target], refresh=True):
+            if one:
                 assert snapshot(engine, target, names) == before, "a failed refresh changed data"
             else:  # no transaction: the state, the commit point, is as it was; the next
                 # refresh computes the changed days and periods again (checked below)
                 assert committed(engine, target) == committed_before
         _run_script(engine, target, incremental["t_refresh.sql"])
-        check_tables(engine, target, names)
+        if engine.name not in SLOW or number in (interrupt_at, len(parts) - 1):
+            check_tables(engine, target, names)
         check_first_days(engine, target, seen)
         assert state(engine, target)[:2] == (expected_from_day(seen, lookback), late)
         assert engine.query("SELECT pending_before, pending_mark, pending_between FROM "
@@ -244,7 +263,8 @@ def run_case(engine, target: str, grain: str, lookback: int, parts: list[list],
     done = snapshot(engine, target, names, read_from=False)
     _run_script(engine, target, incremental["t_refresh.sql"])  # again: nothing changes
     assert snapshot(engine, target, names, read_from=False) == done
-    check_tables(engine, target, names)
+    if engine.name not in SLOW:  # there the last refresh was checked, and nothing changed
+        check_tables(engine, target, names)
 
 
 def broken(script: str) -> str:
@@ -296,8 +316,10 @@ def test_batches_that_change_earlier_periods(engines, engine_name, target):
         [("a", T(2024, 1, 2), "x"), ("b", T(2024, 2, 21), "x"), ("c", T(2024, 3, 1), "x")],
     ]
     engine = engines(engine_name)
-    run_case(engine, target, "day", 2, parts, None)
     run_case(engine, target, "week", 2, parts, interrupt_at=1)
+    if engine_name in SLOW:
+        return
+    run_case(engine, target, "day", 2, parts, None)
     # Monthly with report_from inside the data: the rebuilt rows are cut at both bounds.
     run_case(engine, target, "month", 2, parts, None, extra="  report_from: 2024-01-15\n")
     # first_seen: every activity table is computed again in full (a users table can change).
@@ -329,7 +351,7 @@ def test_segments_are_refreshed(engines, engine_name, target):
         [("c", T(2024, 3, 4), "refund"), ("e", T(2024, 3, 5), "app_opened")],
     ]
     engine = engines(engine_name)
-    for grain, interrupt in (("month", 3), ("week", None)):
+    for grain, interrupt in (("month", 3), ("week", None))[:1 if engine_name in SLOW else 2]:
         run_case(engine, target, grain, 20, parts, interrupt_at=interrupt, segments=True)
         totals = {row["period_start"]: row
                   for row in read_view(engine, "t_growth_accounting", target)}
@@ -430,6 +452,10 @@ def test_revenue_tables_follow_their_source(engines, engine_name, target):
     if engine.name == "clickhouse":  # its plain UPDATE needs table settings the source lacks
         engine.execute([f"ALTER TABLE {engine.qualified(charges)} UPDATE amount = 6 "
                         "WHERE account_id = 'b' SETTINGS mutations_sync = 2"])
+    elif engine.name == "spark":  # a Parquet table has no UPDATE: the table written again
+        engine.create_table(charges, columns, [
+            ("a", T(2024, 1, 3), Decimal("10.00")), ("b", T(2024, 2, 3), Decimal("6.00")),
+            ("a", T(2024, 3, 9), Decimal("12.00"))])
     else:
         engine.execute([f"UPDATE {engine.qualified(charges)} SET amount = 6 "
                         "WHERE account_id = 'b'"])
@@ -468,12 +494,15 @@ def test_definitions_are_refreshed_per_period(engines, engine_name, target):
                                                          planned(made["v_"][0]))
              if view.name != "activity_source_summary"]
     assert any(table.startswith("t_buyers_") for table, _view in pairs)
-    for batch in parts[1:]:
+    for number, batch in enumerate(parts[1:], start=1):
         append(engine, full, batch)
         _run_script(engine, target, made["t_"][1]["t_refresh.sql"])
+        if engine_name in SLOW and number < len(parts) - 1:
+            continue  # Spark: every part's tables checked after the last refresh
         for table, view in pairs:
-            assert comparable(read_view(engine, table, target)) == comparable(
-                read_view(engine, view, target)), table
+            from_view = read_view(engine, view, target)
+            assert comparable(aligned(read_view(engine, table, target), from_view)) == (
+                comparable(from_view)), table
 
 
 def test_mysql_updates_read_their_table_through_a_derived_table():
