@@ -102,12 +102,19 @@ def case(source: str, since: dt.datetime, cut: dt.datetime, days: int, threads: 
             "refresh_cpu": refresh_cpu, "full_cpu": full_cpu, "load": load}
 
 
+def _tests_on_path() -> None:
+    """tests/ importable: the engines and the script runner of the test suite."""
+    import sys
+
+    tests = str(Path(__file__).resolve().parent.parent / "tests")
+    if tests not in sys.path:
+        sys.path.insert(0, tests)
+
+
 def engine_case(engine, source: str, since: dt.datetime, cut: dt.datetime,
                 days: int) -> dict:
     """``case`` on an engine of the test suite (``--engine``)."""
-    import sys
-
-    sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
+    _tests_on_path()
     from test_create_all import _run_script  # noqa: E402  (the tests' script runner)
 
     target = engine.name
@@ -181,9 +188,7 @@ def main(argv: list[str] | None = None) -> None:
     print("| --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |")
     engine = None
     if args.engine != "duckdb":
-        import sys
-
-        sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
+        _tests_on_path()
         from engines import start_engine  # noqa: E402  (tests/engines.py)
 
         engine = start_engine(args.engine)
